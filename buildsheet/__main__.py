@@ -1,0 +1,7 @@
+"""``python -m buildsheet``."""
+
+import sys
+
+from buildsheet.cli import main
+
+sys.exit(main())

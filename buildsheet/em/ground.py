@@ -1,0 +1,103 @@
+"""Ground models: ITU-R P.527 ground classes, complex permittivity and Fresnel coefficients.
+
+Angles are elevation (grazing) angles psi in radians above the horizon. Time dependence
+e^{+j omega t}, so a lossy ground has eps_c = eps_r - j sigma/(omega eps0).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+
+from buildsheet.constants import C0, EPS0
+
+GroundKind = Literal["free_space", "perfect", "real"]
+
+
+@dataclass(frozen=True)
+class GroundClass:
+    """Electrical constants of one ground class at HF.
+
+    eps_r: relative permittivity (dimensionless); sigma: conductivity, S/m.
+    """
+
+    key: str
+    title: str
+    eps_r: float
+    sigma: float
+
+
+#: ITU-R Recommendation P.527 ground classes, single HF values as read from the P.527-3 curves
+#: and used as curve labels in ITU-R P.368 (from memory; see shared REFERENCES.md section 7.1).
+GROUND_CLASSES: dict[str, GroundClass] = {
+    g.key: g
+    for g in (
+        GroundClass("sea", "sea water (average salinity)", 70.0, 5.0),
+        GroundClass("fresh_water", "fresh water", 80.0, 3e-3),
+        GroundClass("wet", "wet ground", 30.0, 1e-2),
+        GroundClass("medium_dry", "medium dry ground", 15.0, 1e-3),
+        GroundClass("very_dry", "very dry ground", 3.0, 1e-4),
+    )
+}
+
+
+@dataclass(frozen=True)
+class Ground:
+    """The ground under an antenna: free space, a perfect conductor, or a P.527 class."""
+
+    kind: GroundKind
+    ground_class: GroundClass | None = None
+
+    @property
+    def title(self) -> str:
+        if self.kind == "free_space":
+            return "free space"
+        if self.kind == "perfect":
+            return "perfect ground"
+        assert self.ground_class is not None
+        return self.ground_class.title
+
+
+FREE_SPACE = Ground("free_space")
+PERFECT_GROUND = Ground("perfect")
+
+
+def real_ground(key: str) -> Ground:
+    """Ground for the P.527 class ``key`` (one of GROUND_CLASSES)."""
+    return Ground("real", GROUND_CLASSES[key])
+
+
+def complex_permittivity(ground: GroundClass, frequency_hz: float) -> complex:
+    """Relative complex permittivity eps_r - j sigma/(omega eps0) (= eps_r - j 60 sigma lambda)."""
+    omega = 2.0 * math.pi * frequency_hz
+    return complex(ground.eps_r, -ground.sigma / (omega * EPS0))
+
+
+def fresnel_horizontal(eps_c: complex, psi: np.ndarray | float) -> np.ndarray:
+    """Fresnel reflection coefficient for E perpendicular to the plane of incidence.
+
+    Gamma_h = (sin psi - sqrt(eps_c - cos^2 psi)) / (sin psi + sqrt(eps_c - cos^2 psi))
+    (Balanis, Antenna Theory, section 4.8; -1 at grazing incidence).
+    """
+    s = np.sin(psi)
+    root = np.sqrt(eps_c - np.cos(psi) ** 2 + 0j)
+    return (s - root) / (s + root)
+
+
+def fresnel_vertical(eps_c: complex, psi: np.ndarray | float) -> np.ndarray:
+    """Fresnel reflection coefficient for E in the plane of incidence.
+
+    Gamma_v = (eps_c sin psi - sqrt(eps_c - cos^2 psi)) / (eps_c sin psi + sqrt(...))
+    (Balanis section 4.8; -1 at grazing, minimum near the pseudo-Brewster angle).
+    """
+    s = np.sin(psi)
+    root = np.sqrt(eps_c - np.cos(psi) ** 2 + 0j)
+    return (eps_c * s - root) / (eps_c * s + root)
+
+
+def wavelength(frequency_hz: float) -> float:
+    """Free-space wavelength, m."""
+    return C0 / frequency_hz

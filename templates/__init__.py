@@ -1,0 +1,1 @@
+"""Jinja2 templates for the record pages (shipped as package data)."""
