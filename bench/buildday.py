@@ -1,0 +1,53 @@
+"""Build-day benchmarks (issue 5): spool cut plan for 1,000 cuts on 50 spools.
+
+Prints timings; target: the spool plan under 1 s. Instance data are synthetic (seeded): legs
+of 80/60/40 m-band lengths for a large day, two wire types, 25 spools of each.
+Run: python bench/buildday.py
+"""
+
+from __future__ import annotations
+
+import random
+import statistics
+import time
+
+from buildsheet.stock import Cut, StockItem, plan_spools
+
+
+def instance(seed: int = 5) -> tuple[list[Cut], list[StockItem]]:
+    """1,000 leg cuts (500 kits' worth of legs split over two wires) and 50 spools."""
+    rng = random.Random(seed)
+    bands = (("80m", 19.3, 21.0), ("60m", 12.8, 13.6), ("40m", 9.7, 10.4))
+    cuts = []
+    k = 0
+    while len(cuts) < 1000:
+        k += 1
+        band, lo, hi = bands[k % 3]
+        length = round(rng.uniform(lo, hi), 3)
+        wire = "awg14-pvc" if k % 2 else "awg18-pvc"
+        for leg in "AB":
+            cuts.append(Cut(f"K{k:03d}-{band}-{leg}", wire, length, f"{band} leg {leg}"))
+    stock = [StockItem("awg14-pvc", 305.0, 25, "14 AWG PVC, 1000 ft spool"),
+             StockItem("awg18-pvc", 305.0, 25, "18 AWG PVC, 1000 ft spool")]
+    return cuts[:1000], stock
+
+
+def main() -> None:
+    cuts, stock = instance()
+    times = []
+    plan = None
+    for _ in range(5):
+        t0 = time.perf_counter()
+        plan = plan_spools(cuts, stock)
+        times.append(time.perf_counter() - t0)
+    assert plan is not None
+    print(f"spool plan: {len(cuts)} cuts, {sum(s.count for s in stock)} spools on hand")
+    print(f"  time: median {statistics.median(times):.3f} s, max {max(times):.3f} s "
+          f"(target < 1 s)")
+    for m in plan.materials:
+        print(f"  {m.material}: {m.spools_used} spools used, lower bound {m.lower_bound}, "
+              f"waste {m.waste_m:.2f} m, unassigned {len(m.unassigned)}, method {m.method}")
+
+
+if __name__ == "__main__":
+    main()

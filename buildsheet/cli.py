@@ -1,0 +1,105 @@
+"""Command line: argument parsing and exit codes only (0 ok, 1 spec/build problem, 2 usage)."""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+from datetime import datetime, timezone
+from importlib import resources
+from pathlib import Path
+
+from buildsheet.errors import BuildsheetError
+
+
+def build_timestamp() -> str:
+    """One build time for the whole packet: SOURCE_DATE_EPOCH if set (reproducible), else now."""
+    epoch = os.environ.get("SOURCE_DATE_EPOCH")
+    moment = (datetime.fromtimestamp(int(epoch), timezone.utc) if epoch and epoch.isdigit()
+              else datetime.now(timezone.utc))
+    return moment.strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def demo_spec_text() -> str:
+    """The bundled demo spec (an invented club build day)."""
+    return resources.files("buildsheet").joinpath("data/demo.toml").read_text(encoding="utf-8")
+
+
+def _cmd_packet(args: argparse.Namespace) -> int:
+    from buildsheet.build import build
+
+    result = build(args.spec, args.output, built_at=build_timestamp(), model=args.model)
+    for w in result.packet.warnings:
+        print(f"warning: {w}", file=sys.stderr)
+    print(f"wrote {', '.join(result.files)} to {result.out_dir}")
+    return 0
+
+
+def _cmd_check(args: argparse.Namespace) -> int:
+    from buildsheet.packet import build_packet
+    from buildsheet.report import cut_table
+    from buildsheet.spec import load_spec
+
+    spec = load_spec(args.spec)
+    packet = build_packet(spec, built_at=build_timestamp(), model=args.model)
+    print(cut_table(packet))
+    for w in packet.warnings:
+        print(f"warning: {w}", file=sys.stderr)
+    return 0
+
+
+def _cmd_demo(args: argparse.Namespace) -> int:
+    from buildsheet.build import build
+    from buildsheet.outdir import write_atomic
+
+    out = Path(args.output)
+    out.mkdir(parents=True, exist_ok=True)
+    spec_path = out / "demo.toml"
+    write_atomic(spec_path, demo_spec_text().encode())
+    result = build(spec_path, out / "packet", built_at=build_timestamp(), model=args.model)
+    print(f"demo spec: {spec_path}")
+    print(f"wrote {', '.join(result.files)} to {result.out_dir}")
+    return 0
+
+
+def make_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="buildsheet",
+        description="Build packets for club HF wire-antenna build days.")
+    sub = parser.add_subparsers(dest="command", required=True)
+
+    def model_option(p: argparse.ArgumentParser) -> None:
+        p.add_argument("--model", choices=("mom", "closed_form"), default="mom",
+                       help="model behind the cut lengths (default: method of moments)")
+
+    p = sub.add_parser("packet", help="build the packet (sheets, labels, manifest) for a spec")
+    p.add_argument("spec", help="the TOML spec")
+    p.add_argument("-o", "--output", required=True, help="output folder")
+    model_option(p)
+    p.set_defaults(func=_cmd_packet)
+
+    p = sub.add_parser("check", help="validate a spec and print the cut table")
+    p.add_argument("spec")
+    model_option(p)
+    p.set_defaults(func=_cmd_check)
+
+    p = sub.add_parser("demo", help="write the bundled demo spec and build its packet")
+    p.add_argument("-o", "--output", default="out/demo", help="folder (default out/demo)")
+    model_option(p)
+    p.set_defaults(func=_cmd_demo)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Entry point. Exit 0 on success, 1 for a problem in the spec or build, 2 for usage."""
+    args = make_parser().parse_args(argv)
+    try:
+        return args.func(args)
+    except BuildsheetError as exc:
+        for problem in exc.problems:
+            print(f"error: {problem}", file=sys.stderr)
+        return 1
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,119 @@
+"""Cut lengths per leg: model resonant length plus trim, termination and feed allowances,
+the tuning line, and the deployed geometry of each element (one design, all kits alike)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from buildsheet.em import closed_form
+from buildsheet.em.predict import DesignPrediction, ElementPrediction
+from buildsheet.geometry import LegGeometry, footprint, Footprint, included_angle_deg, leg_geometry
+from buildsheet.model import AntennaDesign, ElementSpec
+
+#: Frequency step of the printed tuning line, Hz.
+TUNING_STEP_HZ = 100e3
+#: Included angle below which the sheet warns (common practice: 90-120 degrees).
+MIN_INCLUDED_ANGLE_DEG = 90.0
+#: Lowest end height the sheet accepts without a caution, m (common practice: 1-2 m).
+MIN_SAFE_END_HEIGHT_M = 2.0
+
+
+@dataclass(frozen=True)
+class ElementCut:
+    """Everything printed for one element: model lengths, allowances, cut length, geometry."""
+
+    element: ElementSpec
+    rule468_leg_m: float  # half of 468/f, m (common practice, for comparison)
+    closed_form_leg_m: float  # induced-EMF straight dipole, m
+    predicted_leg_m: float  # the length the cut is based on, m
+    model: str  # which model gave predicted_leg_m
+    trim_fraction: float  # trim allowance as a fraction of the predicted leg
+    trim_m: float
+    termination_m: float
+    feed_m: float
+    cut_leg_m: float  # predicted + trim + termination + feed, m
+    prediction: ElementPrediction
+    spread_fraction: float | None  # model spread across grounds (None without a band)
+    legs: tuple[LegGeometry, LegGeometry]
+    included_angle_deg: float
+
+    @property
+    def tuning_m_per_100khz(self) -> float:
+        """Length to cut from EACH leg to raise resonance by 100 kHz, m (positive)."""
+        return -self.prediction.slope_m_per_hz * TUNING_STEP_HZ
+
+
+@dataclass(frozen=True)
+class DesignCuts:
+    """Cut list and geometry of one antenna design."""
+
+    design: AntennaDesign
+    elements: tuple[ElementCut, ...]
+    footprint: Footprint
+    prediction: DesignPrediction
+    closed_form: DesignPrediction
+    warnings: tuple[str, ...]
+
+
+def trim_fraction_for(design: AntennaDesign, spread: float | None) -> float:
+    """Trim allowance as a fraction of the leg.
+
+    An explicit spec value wins. Otherwise the model spread across ground models is covered
+    (never below the spec's minimum); without a spread the default (3 %) applies.
+    """
+    a = design.allowances
+    if a.trim_explicit or spread is None:
+        return a.trim_fraction if a.trim_fraction is not None else 0.0
+    return max(a.min_trim_fraction, spread)
+
+
+def element_cut(design: AntennaDesign, element: ElementSpec, prediction: ElementPrediction,
+                closed: ElementPrediction, spread: float | None, model: str) -> ElementCut:
+    """Cut length and geometry of one element from its predicted resonant leg length."""
+    a = design.allowances
+    leg = prediction.leg_length_m
+    fraction = trim_fraction_for(design, spread)
+    trim = a.trim_m if (a.trim_explicit and a.trim_m is not None) else fraction * leg
+    cut = leg + trim + a.termination_m + a.feed_m
+    legs = tuple(
+        leg_geometry(side, element.bearing_deg + (0.0 if side == "A" else 180.0), leg,
+                     design.apex_height_m, element.end_height_m, knot_m=a.cord_knot_m,
+                     hitch_m=a.cord_stake_m, flat_cord_angle_deg=design.tie_off_angle_deg)
+        for side in ("A", "B")
+    )
+    angle = included_angle_deg(leg, design.apex_height_m - element.end_height_m)
+    return ElementCut(element, closed_form.rule_468_length(element.frequency_hz) / 2.0,
+                      closed.leg_length_m, leg, model, trim / leg, trim, a.termination_m, a.feed_m,
+                      cut, prediction, spread, legs, angle)  # type: ignore[arg-type]
+
+
+def design_cuts(design: AntennaDesign, prediction: DesignPrediction,
+                closed: DesignPrediction) -> DesignCuts:
+    """All element cuts of ``design``; geometry problems raise ValueError with the element."""
+    cuts, warnings = [], list(prediction.notes)
+    for i, e in enumerate(design.elements):
+        p = prediction.element(e.key)
+        spread = prediction.spread[i] if prediction.spread else None
+        try:
+            cut = element_cut(design, e, p, closed.element(e.key), spread, prediction.model)
+        except ValueError as exc:
+            raise ValueError(f"designs.{design.key}.elements[{i}] ({e.key}): {exc}") from None
+        cuts.append(cut)
+        if design.mount == "inverted_v" and cut.included_angle_deg < MIN_INCLUDED_ANGLE_DEG:
+            warnings.append(f"{design.key} {e.key}: included angle {cut.included_angle_deg:.0f} deg "
+                            "is below 90 deg: bandwidth narrows and feed resistance falls; "
+                            "raise the apex or lower the ends less")
+        if e.end_height_m < MIN_SAFE_END_HEIGHT_M:
+            warnings.append(f"{design.key} {e.key}: ends at {e.end_height_m:.1f} m are within "
+                            "reach; rope them off while transmitting (high RF voltage)")
+        if a_trim_short(design, cut):
+            warnings.append(f"{design.key} {e.key}: the trim allowance {cut.trim_fraction:.1%} "
+                            f"is less than the model spread {cut.spread_fraction:.1%}")
+    legs = [leg for c in cuts for leg in c.legs]
+    return DesignCuts(design, tuple(cuts), footprint(legs), prediction, closed, tuple(warnings))
+
+
+def a_trim_short(design: AntennaDesign, cut: ElementCut) -> bool:
+    """True when an explicit trim allowance does not cover the model spread."""
+    return (design.allowances.trim_explicit and cut.spread_fraction is not None
+            and cut.trim_fraction < cut.spread_fraction)

@@ -1,0 +1,327 @@
+"""Thin-wire method of moments: mixed-potential EFIE, triangle basis, Galerkin testing.
+
+Our implementation of the published method (Harrington, *Field Computation by Moment Methods*,
+1968, ch. 4; formulation as in shared REFERENCES.md section 5.1):
+
+    Z_mn = jk eta  sum int int (f_m . f_n) G dl dl'  -  j (eta/k) int int (div f_m)(div' f_n) G dl dl'
+           + int z'(l) f_m . f_n dl,                 V_m = int f_m . E_inc dl,
+
+G = exp(-jkR) / (4 pi R) with the reduced (thin-wire) kernel R = sqrt(|r - r'|^2 + a^2): source
+on the wire axis, observation on its surface. The triangle ("rooftop") basis spans two segments
+sharing a node; a junction of M wire ends gets M - 1 functions pairing the first end with each of
+the others (Kirchhoff's current law); a delta-gap port between two coincident terminal nodes is
+one function pairing their first ends, excited with V_m = V. Free ends carry no basis (I = 0).
+
+Integrals: the static part 1/(4 pi R) of each source segment is done analytically,
+int ds / sqrt((s - u)^2 + b^2) = asinh((D - u)/b) + asinh(u/b) and its linear-weighted companion,
+with Gauss-Legendre over the test segment; the smooth rest (exp(-jkR) - 1)/(4 pi R) by
+Gauss-Legendre on both segments. Frequency-independent geometry is computed once per structure.
+
+Ground: perfect ground by image theory (horizontal currents reversed, vertical kept, charge
+negated). Real ground: the same image weighted by the Fresnel coefficients at the specular angle
+between each pair of segments (Gamma_h on horizontal current components and on charge, Gamma_v
+on vertical current components). This reflection-coefficient image is an approximation; an exact
+half-space needs Sommerfeld integrals (Miller, Poggio, Burke & Selden, Canadian J. Phys. 50, 1972).
+Distributed loading z' (insulation after Richmond & Newman 1976, skin effect) comes from
+:func:`buildsheet.em.loading.series_impedance_per_m`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+
+from buildsheet.constants import C0, ETA0
+from buildsheet.em.currents import SegmentCurrents
+from buildsheet.em.deployed import DeployedAntenna, Structure, build_structure, highest_frequency
+from buildsheet.em.ground import complex_permittivity, fresnel_horizontal, fresnel_vertical
+from buildsheet.em.loading import conductor_impedance_per_m, series_impedance_per_m
+from buildsheet.errors import BuildError
+
+#: Gauss-Legendre points over the test segment for the static (1/R) part.
+STATIC_POINTS: int = 12
+#: Gauss-Legendre points on each segment for the smooth (exp(-jkR) - 1)/R part.
+SMOOTH_POINTS: int = 2
+
+
+@dataclass(frozen=True, eq=False)
+class Mesh:
+    """Segments, basis functions and the frequency-independent integrals of one structure.
+
+    p0, p1: (N, 3) segment ends, m; t: (N, 3) unit directions; length: (N,), m; radius: (N,), m;
+    wire_of: (N,) index into ``structure.wires``; T: (Nb, 2N) basis-to-segment-end coefficients
+    (column 2i + e is the linear shape of segment i peaking at end e, along t_i); D: (Nb, N)
+    divergence of each basis on each segment, 1/m; port_basis: (P,) basis index of each port.
+    static / static_img: (2, 2, N, N) analytic-static integrals int int w_a w_b / R, m;
+    dist / dist_img: (N, Q, N, Q) reduced-kernel distances between smooth quadrature points, m.
+    """
+
+    structure: Structure
+    p0: np.ndarray
+    p1: np.ndarray
+    t: np.ndarray
+    length: np.ndarray
+    radius: np.ndarray
+    wire_of: np.ndarray
+    T: np.ndarray
+    D: np.ndarray
+    port_basis: np.ndarray
+    static: np.ndarray
+    dist: np.ndarray
+    static_img: np.ndarray | None
+    dist_img: np.ndarray | None
+
+    @property
+    def n_segments(self) -> int:
+        return int(self.length.size)
+
+    @property
+    def n_unknowns(self) -> int:
+        return int(self.T.shape[0])
+
+
+def _segments(structure: Structure) -> tuple[np.ndarray, ...]:
+    """Split every wire into equal straight segments (vectorised per wire)."""
+    p0s, p1s, rad, owner = [], [], [], []
+    for w_i, w in enumerate(structure.wires):
+        a, b = np.asarray(w.start, float), np.asarray(w.end, float)
+        frac = np.linspace(0.0, 1.0, w.n_segments + 1)[:, None]
+        pts = a + frac * (b - a)
+        p0s.append(pts[:-1])
+        p1s.append(pts[1:])
+        rad.append(np.full(w.n_segments, w.radius_m))
+        owner.append(np.full(w.n_segments, w_i))
+    p0, p1 = np.concatenate(p0s), np.concatenate(p1s)
+    vec = p1 - p0
+    length = np.linalg.norm(vec, axis=1)
+    if np.any(length <= 0):
+        raise BuildError("a wire has zero length")
+    return p0, p1, vec / length[:, None], length, np.concatenate(rad), np.concatenate(owner)
+
+
+def _basis(structure: Structure, length: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Triangle basis: interior nodes, junctions (M - 1 each) and ports (one each).
+
+    A wire end is (segment, end e, outward sign s): the current leaving the node into the wire
+    is s * t along the segment's shape peaking at end e; its divergence is -1/D.
+    """
+    n_seg = length.size
+    first = np.cumsum([0] + [w.n_segments for w in structure.wires])
+    pairs: list[tuple[tuple[int, int, int], tuple[int, int, int]]] = []  # (into node, out of node)
+    nodes: dict[str, list[tuple[int, int, int]]] = {}
+    for w_i, w in enumerate(structure.wires):
+        s0, s1 = int(first[w_i]), int(first[w_i + 1])
+        pairs += [((s, 1, -1), (s + 1, 0, 1)) for s in range(s0, s1 - 1)]
+        if w.start_node:
+            nodes.setdefault(w.start_node, []).append((s0, 0, 1))
+        if w.end_node:
+            nodes.setdefault(w.end_node, []).append((s1 - 1, 1, -1))
+    for ends in nodes.values():
+        pairs += [(ends[0], e) for e in ends[1:]]
+    port_basis = []
+    for port in structure.ports:
+        if port.node_a not in nodes or port.node_b not in nodes:
+            raise BuildError(f"port {port} names a node no wire ends on")
+        port_basis.append(len(pairs))
+        pairs.append((nodes[port.node_a][0], nodes[port.node_b][0]))
+    n_b = len(pairs)
+    T = np.zeros((n_b, 2 * n_seg))
+    D = np.zeros((n_b, n_seg))
+    idx = np.arange(n_b)
+    into = np.array([p[0] for p in pairs]).reshape(n_b, 3)
+    out = np.array([p[1] for p in pairs]).reshape(n_b, 3)
+    np.add.at(T, (idx, 2 * into[:, 0] + into[:, 1]), -into[:, 2])
+    np.add.at(T, (idx, 2 * out[:, 0] + out[:, 1]), out[:, 2])
+    np.add.at(D, (idx, into[:, 0]), 1.0 / length[into[:, 0]])
+    np.add.at(D, (idx, out[:, 0]), -1.0 / length[out[:, 0]])
+    return T, D, np.array(port_basis, dtype=int)
+
+
+def _gauss(n: int) -> tuple[np.ndarray, np.ndarray]:
+    """Gauss-Legendre nodes and weights on [0, 1]."""
+    x, w = np.polynomial.legendre.leggauss(n)
+    return (x + 1.0) / 2.0, w / 2.0
+
+
+def _static_integrals(p0: np.ndarray, t: np.ndarray, length: np.ndarray, a2: np.ndarray,
+                      q0: np.ndarray, qt: np.ndarray) -> np.ndarray:
+    """int_test int_source w_a(u) w_b(u') / R du' du for all segment pairs, (2, 2, N, N), m.
+
+    Test segments (p0, t, length); source segments (q0, qt, same lengths). The source integral is
+    analytic (shared REFERENCES.md section 5.1): with xi the projection of the observation point
+    on the source axis and b^2 = rho^2 + a^2, I0 = asinh((D - xi)/b) + asinh(xi/b) and
+    I1 = int u'/R = R(D) - R(0) + xi I0. The test integral is Gauss-Legendre.
+    """
+    x, w = _gauss(STATIC_POINTS)
+    obs = p0[:, None, :] + (length[:, None] * x[None, :])[:, :, None] * t[:, None, :]  # (N,Q,3)
+    d = obs[:, :, None, :] - q0[None, None, :, :]                                      # (N,Q,N,3)
+    xi = np.einsum("ipjk,jk->ipj", d, qt)
+    b2 = np.maximum(np.einsum("ipjk,ipjk->ipj", d, d) - xi**2, 0.0) + a2[:, None, :]
+    b = np.sqrt(b2)
+    dj = length[None, None, :]
+    i0 = np.arcsinh((dj - xi) / b) + np.arcsinh(xi / b)
+    i1 = np.sqrt((dj - xi) ** 2 + b2) - np.sqrt(xi**2 + b2) + xi * i0
+    inner = np.stack([i0 - i1 / dj, i1 / dj])                      # (b, N, Q, N): shapes w_0, w_1
+    outer = np.stack([1.0 - x, x]) * w[None, :]                    # (a, Q)
+    return np.einsum("ap,bipj,i->abij", outer, inner, length)
+
+
+def _smooth_distances(p0: np.ndarray, t: np.ndarray, length: np.ndarray, a2: np.ndarray,
+                      q0: np.ndarray, qt: np.ndarray) -> np.ndarray:
+    """Reduced-kernel distances between smooth quadrature points, (N, Q, N, Q), m."""
+    x, _ = _gauss(SMOOTH_POINTS)
+    obs = p0[:, None, :] + (length[:, None] * x[None, :])[:, :, None] * t[:, None, :]
+    src = q0[:, None, :] + (length[:, None] * x[None, :])[:, :, None] * qt[:, None, :]
+    diff = obs[:, :, None, None, :] - src[None, None, :, :, :]
+    return np.sqrt(np.einsum("ipjqk,ipjqk->ipjq", diff, diff) + a2[:, None, :, None])
+
+
+def build_mesh(structure: Structure) -> Mesh:
+    """Segments, basis and frequency-independent integrals of ``structure``."""
+    p0, p1, t, length, radius, owner = _segments(structure)
+    T, D, ports = _basis(structure, length)
+    a2 = (radius[:, None] ** 2 + radius[None, :] ** 2) / 2.0
+    static = _static_integrals(p0, t, length, a2, p0, t)
+    dist = _smooth_distances(p0, t, length, a2, p0, t)
+    static_img = dist_img = None
+    if structure.ground.kind != "free_space":
+        mirror = np.array([1.0, 1.0, -1.0])
+        static_img = _static_integrals(p0, t, length, a2, p0 * mirror, t * mirror)
+        dist_img = _smooth_distances(p0, t, length, a2, p0 * mirror, t * mirror)
+    return Mesh(structure, p0, p1, t, length, radius, owner, T, D, ports, static, dist,
+                static_img, dist_img)
+
+
+def _kernel_integrals(static: np.ndarray, dist: np.ndarray, length: np.ndarray,
+                      k: float) -> np.ndarray:
+    """int int w_a w_b G for all pairs at wavenumber k, (2, 2, N, N) complex, m."""
+    x, w = _gauss(SMOOTH_POINTS)
+    g = (np.exp(-1j * k * dist) - 1.0) / dist                      # smooth part, 1/m
+    shape = np.stack([1.0 - x, x]) * w[None, :]                    # (2, Q)
+    lw = length[:, None, None] * shape[None, :, :]                 # (N, 2, Q)
+    smooth = np.einsum("iap,ipjq,jbq->abij", lw, g, lw, optimize=True)
+    return (static + smooth) / (4.0 * math.pi)
+
+
+def _assemble(mesh: Mesh, P: np.ndarray, vec_factor: np.ndarray, scal_factor: np.ndarray | float,
+              k: float) -> np.ndarray:
+    """Vector- and scalar-potential parts of Z from pair integrals P (2, 2, N, N)."""
+    n = mesh.n_segments
+    pv = (P * vec_factor[None, None]).transpose(2, 0, 3, 1).reshape(2 * n, 2 * n)
+    s = P.sum(axis=(0, 1)) * scal_factor
+    return 1j * k * ETA0 * (mesh.T @ pv @ mesh.T.T) - 1j * (ETA0 / k) * (mesh.D @ s @ mesh.D.T)
+
+
+def _image_factors(mesh: Mesh, frequency_hz: float) -> tuple[np.ndarray, np.ndarray]:
+    """Weights of the image current (per pair) for the vector and scalar potentials.
+
+    Perfect ground: Gamma_h = -1, Gamma_v = +1. Real ground: Fresnel coefficients (Balanis,
+    Antenna Theory, section 4.8) at the specular elevation angle between segment centres.
+    """
+    t = mesh.t
+    horiz = t[:, None, 0] * t[None, :, 0] + t[:, None, 1] * t[None, :, 1]
+    vert = t[:, None, 2] * t[None, :, 2]
+    ground = mesh.structure.ground
+    if ground.kind == "perfect":
+        return vert - horiz, np.full(horiz.shape, -1.0)
+    assert ground.ground_class is not None
+    c = (mesh.p0 + mesh.p1) / 2.0
+    rho = np.hypot(c[:, None, 0] - c[None, :, 0], c[:, None, 1] - c[None, :, 1])
+    psi = np.arctan2(c[:, None, 2] + c[None, :, 2], rho)
+    eps_c = complex_permittivity(ground.ground_class, frequency_hz)
+    gh, gv = fresnel_horizontal(eps_c, psi), fresnel_vertical(eps_c, psi)
+    return gh * horiz + gv * vert, gh
+
+
+def _loading(mesh: Mesh, frequency_hz: float, *, loss_only: bool = False) -> np.ndarray:
+    """Galerkin matrix of the distributed series loading int z' f_m . f_n dl, ohm."""
+    zw = np.array([0j if w.wire is None else
+                   (conductor_impedance_per_m(w.wire, frequency_hz).real if loss_only
+                    else series_impedance_per_m(w.wire, frequency_hz))
+                   for w in mesh.structure.wires])
+    zs = zw[mesh.wire_of] * mesh.length
+    n = mesh.n_segments
+    blk = np.array([[1.0 / 3.0, 1.0 / 6.0], [1.0 / 6.0, 1.0 / 3.0]])  # int w_a w_b du / D
+    L = np.zeros((2 * n, 2 * n), dtype=complex)
+    idx = np.arange(n)
+    for a in (0, 1):
+        for b in (0, 1):
+            L[2 * idx + a, 2 * idx + b] = zs * blk[a, b]
+    return mesh.T @ L @ mesh.T.T
+
+
+def impedance_matrix(mesh: Mesh, frequency_hz: float) -> np.ndarray:
+    """Galerkin impedance matrix Z (Nb x Nb, ohm) of ``mesh`` at ``frequency_hz``."""
+    k = 2.0 * math.pi * frequency_hz / C0
+    tt = mesh.t @ mesh.t.T
+    Z = _assemble(mesh, _kernel_integrals(mesh.static, mesh.dist, mesh.length, k), tt, 1.0, k)
+    if mesh.static_img is not None and mesh.dist_img is not None:
+        vec, scal = _image_factors(mesh, frequency_hz)
+        P_img = _kernel_integrals(mesh.static_img, mesh.dist_img, mesh.length, k)
+        Z = Z + _assemble(mesh, P_img, vec, scal, k)
+    return Z + _loading(mesh, frequency_hz)
+
+
+def port_impedances(mesh: Mesh, frequencies_hz: np.ndarray | float) -> np.ndarray:
+    """Open-circuit impedance matrix of the ports, (F, P, P) complex ohm."""
+    f = np.atleast_1d(np.asarray(frequencies_hz, dtype=float))
+    V = np.zeros((mesh.n_unknowns, mesh.port_basis.size))
+    V[mesh.port_basis, np.arange(mesh.port_basis.size)] = 1.0
+    out = np.empty((f.size, V.shape[1], V.shape[1]), dtype=complex)
+    for i, fi in enumerate(f):
+        Y = np.linalg.solve(impedance_matrix(mesh, float(fi)), V)[mesh.port_basis]
+        out[i] = np.linalg.inv(Y)
+    return out
+
+
+@lru_cache(maxsize=32)
+def mesh_for(antenna: DeployedAntenna, max_frequency_hz: float | None = None,
+             segment_counts: tuple[int, ...] | None = None) -> Mesh:
+    """Cached mesh of ``antenna`` (identical geometry is built and integrated once)."""
+    return build_mesh(build_structure(antenna, max_frequency_hz, segment_counts=segment_counts))
+
+
+def _segmentation_frequency(antenna: DeployedAntenna, frequencies_hz: np.ndarray) -> float:
+    """Highest frequency analysed: the top band edge, or a higher requested frequency, Hz."""
+    return float(max(highest_frequency(antenna), float(np.max(frequencies_hz))))
+
+
+def feed_impedance(antenna: DeployedAntenna, frequencies_hz: np.ndarray | float) -> np.ndarray:
+    """Impedance at the shared feed point, complex ohm, one per frequency."""
+    f = np.atleast_1d(np.asarray(frequencies_hz, dtype=float))
+    mesh = mesh_for(antenna, _segmentation_frequency(antenna, f))
+    return port_impedances(mesh, f)[:, 0, 0]
+
+
+def currents_on(mesh: Mesh, frequency_hz: float, drive_v: float | np.ndarray = 1.0) -> SegmentCurrents:
+    """Segment currents with the ports driven by ``drive_v`` (V, one value or one per port)."""
+    V = np.zeros(mesh.n_unknowns, dtype=complex)
+    V[mesh.port_basis] = drive_v
+    c = np.linalg.solve(impedance_matrix(mesh, frequency_hz), V)
+    ends = (mesh.T.T @ c).reshape(-1, 2)                  # current at each segment end, along t
+    p_in = 0.5 * float(np.real(np.vdot(c[mesh.port_basis], V[mesh.port_basis])))
+    R = _loading(mesh, frequency_hz, loss_only=True)
+    p_loss = 0.5 * float(np.real(np.vdot(c, R @ c)))
+    return SegmentCurrents(
+        frequency_hz=float(frequency_hz), centres=(mesh.p0 + mesh.p1) / 2.0,
+        vectors=mesh.p1 - mesh.p0, currents=ends.mean(axis=1), input_power_w=p_in,
+        conductor_loss_w=p_loss)
+
+
+def segment_currents(antenna: DeployedAntenna, frequency_hz: float,
+                     drive_v: float = 1.0) -> SegmentCurrents:
+    """Currents on every segment of ``antenna`` driven by ``drive_v`` volts at the feed."""
+    mesh = mesh_for(antenna, _segmentation_frequency(antenna, np.array([frequency_hz])))
+    return currents_on(mesh, frequency_hz, drive_v)
+
+
+def describe(mesh: Mesh) -> str:
+    """One line naming the model, its size and the ground, for the sheet."""
+    g = mesh.structure.ground
+    ground = g.title + (" (Fresnel-weighted image, an approximation)" if g.kind == "real" else
+                        " (image theory)" if g.kind == "perfect" else "")
+    return (f"thin-wire method of moments, {mesh.n_segments} segments, "
+            f"{mesh.n_unknowns} unknowns, ground: {ground}")

@@ -1,0 +1,108 @@
+"""One entry point for the resonant leg length of every element, whichever model computes it.
+
+``closed_form``: each element as a straight dipole in free space by the induced-EMF method
+(insulation and conductor loss included as distributed loading), ignoring ground, droop and the
+other elements. ``mom``: the thin-wire method of moments on the deployed geometry over the
+site's ground, all elements solved jointly (buildsheet.em.resonance).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import lru_cache
+from typing import Literal
+
+import numpy as np
+
+from buildsheet.em import closed_form
+from buildsheet.em.ground import Ground
+from buildsheet.model import AntennaDesign
+
+ModelName = Literal["closed_form", "mom"]
+
+
+@dataclass(frozen=True)
+class ElementPrediction:
+    """Resonance of one element predicted by one model (SI units)."""
+
+    key: str
+    model: ModelName
+    leg_length_m: float  # resonant leg length, feed point to end insulator
+    z_feed: complex  # feed impedance at the design frequency, ohm
+    slope_m_per_hz: float  # d(leg length)/d(resonant frequency), m/Hz, negative
+    frequencies_hz: tuple[float, ...]  # SWR curve abscissa across the band
+    swr: tuple[float, ...]  # SWR on 50 ohm at those frequencies
+    bandwidth_2to1_hz: tuple[float, float] | None  # SWR <= 2 edges around the design frequency
+    swr_at_design: float
+
+
+@dataclass(frozen=True)
+class DesignPrediction:
+    """Predicted resonances of all elements of one design, with the model's own notes."""
+
+    model: ModelName
+    elements: tuple[ElementPrediction, ...]
+    model_note: str
+    ground_title: str
+    spread: tuple[float, ...] = ()  # per element, fractional spread across ground models
+    band_legs_m: tuple[tuple[float, float], ...] = ()  # per element, (min, max) leg length
+    notes: tuple[str, ...] = ()
+
+    def element(self, key: str) -> ElementPrediction:
+        return next(e for e in self.elements if e.key == key)
+
+
+def bandwidth_2to1(freqs: np.ndarray, swr: np.ndarray, design_hz: float) -> tuple[float, float] | None:
+    """Edges (Hz) of the SWR <= 2 region containing the design frequency, by linear
+    interpolation; an edge that runs past the sweep is reported at the sweep end. None if the
+    SWR at the design frequency exceeds 2."""
+    i0 = int(np.argmin(np.abs(freqs - design_hz)))
+    if swr[i0] > 2.0:
+        return None
+    lo_i, hi_i = i0, i0
+    while lo_i > 0 and swr[lo_i - 1] <= 2.0:
+        lo_i -= 1
+    while hi_i < len(freqs) - 1 and swr[hi_i + 1] <= 2.0:
+        hi_i += 1
+
+    def cross(i: int, j: int) -> float:
+        return float(freqs[i] + (2.0 - swr[i]) * (freqs[j] - freqs[i]) / (swr[j] - swr[i]))
+
+    lo = cross(lo_i - 1, lo_i) if lo_i > 0 else float(freqs[0])
+    hi = cross(hi_i, hi_i + 1) if hi_i < len(freqs) - 1 else float(freqs[-1])
+    return lo, hi
+
+
+def sweep_frequencies(low_hz: float, high_hz: float, design_hz: float, n: int = 41) -> np.ndarray:
+    """Sweep covering the band and the design frequency with 10 % margin each side, Hz."""
+    lo, hi = min(low_hz, design_hz), max(high_hz, design_hz)
+    pad = max(0.1 * (hi - lo), 0.01 * design_hz)
+    return np.linspace(lo - pad, hi + pad, n)
+
+
+@lru_cache(maxsize=256)
+def _closed_form(design: AntennaDesign) -> DesignPrediction:
+    wire = design.wire
+    out = []
+    for e in design.elements:
+        f = e.frequency_hz
+        total = closed_form.resonant_length(f, wire.radius_m, wire)
+        slope = closed_form.resonance_slope(f, wire.radius_m, wire) / 2.0
+        freqs = sweep_frequencies(e.low_hz, e.high_hz, f)
+        z = np.array([closed_form.self_impedance(total, wire.radius_m, fx, wire) for fx in freqs])
+        s = closed_form.swr(z)
+        z0 = closed_form.self_impedance(total, wire.radius_m, f, wire)
+        out.append(ElementPrediction(e.key, "closed_form", total / 2.0, z0, slope,
+                                     tuple(freqs.tolist()), tuple(s.tolist()),
+                                     bandwidth_2to1(freqs, s, f), float(closed_form.swr(z0))))
+    return DesignPrediction("closed_form", tuple(out),
+                            "induced-EMF closed form: straight dipole in free space", "free space")
+
+
+def predict(design: AntennaDesign, ground: Ground, model: ModelName = "closed_form") -> DesignPrediction:
+    """Predicted resonant leg lengths of every element of ``design`` by ``model``."""
+    if model == "closed_form":
+        return _closed_form(design)
+    from buildsheet.em import mom_adapter
+
+    return mom_adapter.predict_mom(design, ground)

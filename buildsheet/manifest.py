@@ -1,0 +1,258 @@
+"""Packet manifests: what each packet printed, and what changed since the last one.
+
+A manifest is plain JSON::
+
+    {"format": "buildsheet-manifest/1", "spec_hash": "...", "revision": 3,
+     "built_at": "2024-05-01T12:00:00+00:00",
+     "elements": {"K03-40m": {"hash": "...", "predicted_leg_m": 10.02,
+                              "design_frequency_hz": 7.1e6, "cut_leg_m": 10.32,
+                              "files": ["sheets/K03-40m.pdf"]}},
+     "files": {"sheets/K03-40m.pdf": "<sha256>"}}
+
+``diff_manifests`` is pure; ``read_manifest`` / ``write_manifest`` do the file work (atomic
+writes: a temporary file in the same folder, then ``os.replace``). Lengths in metres, Hz.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import os
+import tempfile
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from buildsheet.errors import BuildError
+
+MANIFEST_FORMAT = "buildsheet-manifest/1"
+#: Default re-check tolerance: fractional move of an element's predicted resonance (0.3 %).
+RECHECK_TOLERANCE = 0.003
+
+
+@dataclass(frozen=True)
+class ManifestElement:
+    """What a packet printed for one element: a hash of all of it and the key numbers."""
+
+    hash: str
+    predicted_leg_m: float
+    design_frequency_hz: float
+    cut_leg_m: float | None = None
+    files: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class Manifest:
+    """One packet: spec hash, revision number, build time (ISO 8601), elements, file hashes."""
+
+    spec_hash: str
+    revision: int
+    built_at: str
+    elements: Mapping[str, ManifestElement]
+    files: Mapping[str, str] = field(default_factory=dict)
+    format: str = MANIFEST_FORMAT
+
+
+@dataclass(frozen=True)
+class Recheck:
+    """An element whose predicted resonance moved by more than the tolerance.
+
+    ``fraction``: (f_new - f_old) / f_old for the wire already cut, where f_new = f_design_new *
+    L_new / L_old by the proportional rule f*L = const (REFERENCES 11, common practice).
+    ``shift_hz``: f_new - f_old (negative: the existing wire now dips lower).
+    """
+
+    element_id: str
+    old_predicted_leg_m: float
+    new_predicted_leg_m: float
+    fraction: float
+    shift_hz: float
+
+
+@dataclass(frozen=True)
+class ManifestDiff:
+    """Element IDs sorted in each class; ``recheck`` lists the analyzer re-checks."""
+
+    new: tuple[str, ...]
+    changed: tuple[str, ...]
+    unchanged: tuple[str, ...]
+    archived: tuple[str, ...]
+    recheck: tuple[Recheck, ...]
+
+    @property
+    def to_print(self) -> tuple[str, ...]:
+        """Elements whose sheets and labels must be (re)printed: new and changed."""
+        return tuple(sorted(self.new + self.changed))
+
+
+# --------------------------------------------------------------------------- pure
+
+
+def content_hash(payload: Any) -> str:
+    """SHA-256 (hex) of a JSON-able payload in canonical form (sorted keys, no spaces).
+
+    Floats are written with repr, so any change of a printed number changes the hash.
+    """
+    text = json.dumps(payload, sort_keys=True, separators=(",", ":"), ensure_ascii=False,
+                      allow_nan=False)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def resonance_shift(old: ManifestElement, new: ManifestElement) -> tuple[float, float]:
+    """(fraction, shift_hz) by which the already-cut wire's predicted resonance moves.
+
+    The wire was cut for ``old``: it resonates at f_old = old.design_frequency_hz by the old
+    model. The new model puts a leg of L_new at f_design_new, so the same wire (L_old) now
+    resonates at f_design_new * L_new / L_old (f*L constant, proportional rule, common practice).
+    """
+    f_old = old.design_frequency_hz
+    f_new = new.design_frequency_hz * new.predicted_leg_m / old.predicted_leg_m
+    return (f_new - f_old) / f_old, f_new - f_old
+
+
+def diff_manifests(old: Manifest | None, new: Manifest,
+                   tolerance: float = RECHECK_TOLERANCE) -> ManifestDiff:
+    """Classify the new manifest's elements against the old one (``None``: all new).
+
+    new: not in old; archived: in old only; changed / unchanged: by the element hash. Every
+    element in both whose predicted resonance moves by more than ``tolerance`` (fraction) is a
+    re-check, whether or not its hash changed.
+    """
+    if not (math.isfinite(tolerance) and tolerance >= 0):
+        raise ValueError(f"tolerance must be a fraction >= 0, got {tolerance}")
+    old_elements: Mapping[str, ManifestElement] = old.elements if old else {}
+    new_ids, changed, unchanged, rechecks = [], [], [], []
+    for eid in sorted(new.elements):
+        entry = new.elements[eid]
+        before = old_elements.get(eid)
+        if before is None:
+            new_ids.append(eid)
+            continue
+        (unchanged if before.hash == entry.hash else changed).append(eid)
+        fraction, shift = resonance_shift(before, entry)
+        if abs(fraction) > tolerance:
+            rechecks.append(Recheck(eid, before.predicted_leg_m, entry.predicted_leg_m,
+                                    fraction, shift))
+    archived = sorted(set(old_elements) - set(new.elements))
+    return ManifestDiff(tuple(new_ids), tuple(changed), tuple(unchanged), tuple(archived),
+                        tuple(rechecks))
+
+
+def format_diff(diff: ManifestDiff) -> str:
+    """A plain-text table of the diff for the terminal (one line per element)."""
+    lines = [f"{'element':<16} status"]
+    shifts = {r.element_id: r for r in diff.recheck}
+    for label, ids in (("new", diff.new), ("changed", diff.changed),
+                       ("unchanged", diff.unchanged), ("archived", diff.archived)):
+        for eid in ids:
+            text = f"{eid:<16} {label}"
+            if eid in shifts:
+                r = shifts[eid]
+                text += (f"; re-check on the analyzer: predicted resonance "
+                         f"{r.shift_hz / 1e3:+.1f} kHz ({r.fraction * 100:+.2f} %)")
+            lines.append(text)
+    return "\n".join(lines)
+
+
+def manifest_to_dict(m: Manifest) -> dict[str, Any]:
+    """The JSON form of a manifest (elements and files in sorted order)."""
+    return {
+        "format": m.format, "spec_hash": m.spec_hash, "revision": m.revision,
+        "built_at": m.built_at,
+        "elements": {eid: {"hash": e.hash, "predicted_leg_m": e.predicted_leg_m,
+                           "design_frequency_hz": e.design_frequency_hz,
+                           "cut_leg_m": e.cut_leg_m, "files": list(e.files)}
+                     for eid, e in sorted(m.elements.items())},
+        "files": dict(sorted(m.files.items())),
+    }
+
+
+def _number(value: Any, where: str, positive: bool = True) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        raise ValueError(f"{where} must be a number, got {value!r}")
+    if positive and value <= 0:
+        raise ValueError(f"{where} must be positive, got {value!r}")
+    return float(value)
+
+
+def manifest_from_dict(data: Any) -> Manifest:
+    """Parse the JSON form; ValueError or TypeError naming the first bad field."""
+    if not isinstance(data, Mapping):
+        raise TypeError("a manifest is a JSON object")
+    if data.get("format") != MANIFEST_FORMAT:
+        raise ValueError(f"format must be {MANIFEST_FORMAT!r}, got {data.get('format')!r}")
+    for key, kind in (("spec_hash", str), ("revision", int), ("built_at", str),
+                      ("elements", Mapping), ("files", Mapping)):
+        if not isinstance(data.get(key), kind) or isinstance(data.get(key), bool):
+            raise TypeError(f"{key} is missing or has the wrong type")
+    elements: dict[str, ManifestElement] = {}
+    for eid, e in data["elements"].items():
+        where = f"elements.{eid}"
+        if not isinstance(e, Mapping) or not isinstance(e.get("hash"), str):
+            raise TypeError(f"{where}.hash must be text")
+        cut = e.get("cut_leg_m")
+        files = e.get("files", [])
+        if not isinstance(files, list) or not all(isinstance(f, str) for f in files):
+            raise ValueError(f"{where}.files must be a list of file names")
+        elements[eid] = ManifestElement(
+            e["hash"], _number(e.get("predicted_leg_m"), f"{where}.predicted_leg_m"),
+            _number(e.get("design_frequency_hz"), f"{where}.design_frequency_hz"),
+            None if cut is None else _number(cut, f"{where}.cut_leg_m"), tuple(files))
+    files_map = {str(k): str(v) for k, v in data["files"].items()}
+    return Manifest(data["spec_hash"], data["revision"], data["built_at"], elements, files_map)
+
+
+# --------------------------------------------------------------------------- files
+
+
+def file_sha256(path: str | Path) -> str:
+    """SHA-256 (hex) of a file's bytes."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(1 << 16), b""):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def write_json_atomic(path: str | Path, data: Any) -> None:
+    """Write JSON to ``path`` via a temporary file in the same folder, fsync, ``os.replace``."""
+    path = Path(path)
+    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            json.dump(data, fh, indent=1, ensure_ascii=False, allow_nan=False)
+            fh.write("\n")
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+
+
+def write_manifest(path: str | Path, manifest: Manifest) -> None:
+    """Write a manifest atomically (BuildError if the folder is not writable)."""
+    try:
+        write_json_atomic(path, manifest_to_dict(manifest))
+    except OSError as exc:
+        raise BuildError(f"{path}: cannot write the manifest ({exc.strerror or exc})") from exc
+
+
+def read_manifest(path: str | Path, missing_ok: bool = True) -> Manifest | None:
+    """Read a manifest; ``None`` when absent and ``missing_ok``; BuildError when unreadable."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        if missing_ok:
+            return None
+        raise BuildError(f"{path}: no manifest there") from None
+    except OSError as exc:
+        raise BuildError(f"{path}: cannot read the manifest ({exc.strerror or exc})") from exc
+    try:
+        return manifest_from_dict(json.loads(text))
+    except (ValueError, TypeError) as exc:
+        raise BuildError(f"{path}: not a valid manifest ({exc}); delete or restore it") from exc

@@ -1,0 +1,86 @@
+"""Atomic writes: single files and whole output folders (build aside, then swap)."""
+
+from __future__ import annotations
+
+import os
+import shutil
+import tempfile
+from pathlib import Path
+
+from buildsheet.errors import BuildError, Problem
+
+
+def _umask() -> int:
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
+def write_atomic(path: Path, data: bytes) -> None:
+    """Write ``data`` to ``path`` through a temporary file in the same folder and os.replace."""
+    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    try:
+        os.fchmod(fd, 0o666 & ~_umask())
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+
+
+def _backup_name(out_dir: Path) -> Path:
+    return out_dir.parent / f".{out_dir.name}.previous"
+
+
+def recover(out_dir: Path) -> None:
+    """Undo an interrupted swap: restore the previous packet if the new one never landed."""
+    backup = _backup_name(out_dir)
+    if backup.is_dir():
+        if out_dir.exists():
+            shutil.rmtree(backup, ignore_errors=True)
+        else:
+            os.replace(backup, out_dir)
+
+
+def prepare_staging(out_dir: Path) -> Path:
+    """Create an empty staging folder beside ``out_dir`` (same file system), return it.
+
+    Raises BuildError naming the folder when it cannot be created or written.
+    """
+    try:
+        out_dir.parent.mkdir(parents=True, exist_ok=True)
+        recover(out_dir)
+        if out_dir.exists() and not out_dir.is_dir():
+            raise BuildError([Problem(str(out_dir), "exists and is not a folder; choose another -o")])
+        staging = Path(tempfile.mkdtemp(dir=out_dir.parent, prefix=f".{out_dir.name}.building-"))
+        staging.chmod(0o777 & ~_umask())
+        return staging
+    except OSError as exc:
+        raise BuildError([Problem(str(out_dir), f"cannot write the output folder: "
+                                  f"{exc.strerror or exc}")]) from None
+
+
+def swap_in(staging: Path, out_dir: Path, *, keep: tuple[str, ...] = ()) -> None:
+    """Replace ``out_dir`` by ``staging``. Files named in ``keep`` that exist in the old folder but
+    not in staging are carried over (used when only changed files were written)."""
+    backup = _backup_name(out_dir)
+    if out_dir.is_dir():
+        for name in keep:
+            old, new = out_dir / name, staging / name
+            if old.exists() and not new.exists():
+                new.parent.mkdir(parents=True, exist_ok=True)
+                if old.is_dir():
+                    shutil.copytree(old, new)
+                else:
+                    shutil.copy2(old, new)
+        shutil.rmtree(backup, ignore_errors=True)
+        os.replace(out_dir, backup)
+    os.replace(staging, out_dir)
+    shutil.rmtree(backup, ignore_errors=True)
+
+
+def discard(staging: Path) -> None:
+    shutil.rmtree(staging, ignore_errors=True)

@@ -1,0 +1,109 @@
+"""Assemble the Packet: one plain data model of everything the renderers print.
+
+``build_packet`` computes (the physics once per design, shared by every kit of it); the writers
+in buildsheet.render turn the Packet into files. Nothing here touches the file system.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from dataclasses import dataclass
+
+from buildsheet.cuts import DesignCuts, ElementCut, design_cuts
+from buildsheet.em.predict import ModelName, predict
+from buildsheet.errors import BuildError, Problem
+from buildsheet.model import AntennaDesign, Design, Kit
+from buildsheet.units import format_both, format_frequency
+
+SAFETY_CAUTIONS: tuple[str, ...] = (
+    "Overhead power lines: look up before raising anything. If the mast or antenna fell, no part "
+    "may come within 3 m (10 ft) of a power line; utilities advise 1.5-2 times the mast-plus-"
+    "antenna height. Never raise a mast near lines.",
+    "Mast handling: raise and lower push-up masts with helpers, tape or pin the joints, guy before "
+    "extending, and keep clear of the fall zone. Do not work in high wind.",
+    "Guy lines, tie-off cords and coax are trip hazards: flag them and route them away from paths.",
+    "RF exposure: element ends carry high RF voltage; on a low antenna keep people away from the "
+    "ends and legs while transmitting. See the exposure screen; local rules govern.",
+    "Lightning and static: do not operate in thunderstorms; disconnect and ground the feed line "
+    "when not in use; a bleed resistor (about 1 megohm) across the feed drains static charge.",
+    "These notes are general guidance. Local codes, site rules and licensed practice take "
+    "precedence.",
+)
+
+
+@dataclass(frozen=True)
+class ElementEntry:
+    """One element of one kit, with its stable IDs."""
+
+    element_id: str  # "K03-40m"
+    kit: Kit
+    cut: ElementCut
+
+    @property
+    def leg_ids(self) -> tuple[str, str]:
+        return f"{self.element_id}-A", f"{self.element_id}-B"
+
+
+@dataclass(frozen=True)
+class Packet:
+    """Everything to print for one build day."""
+
+    design: Design
+    built_at: str  # ISO 8601 UTC timestamp of the build
+    revision: int
+    model: ModelName
+    cuts: tuple[DesignCuts, ...]  # per antenna design, in spec order
+    entries: tuple[ElementEntry, ...]  # per kit element, sorted by kit then element order
+    warnings: tuple[str, ...]
+
+    def cuts_for(self, design_key: str) -> DesignCuts:
+        return next(c for c in self.cuts if c.design.key == design_key)
+
+    def kit_entries(self, kit_id: str) -> tuple[ElementEntry, ...]:
+        return tuple(e for e in self.entries if e.kit.kit_id == kit_id)
+
+    def kits_of(self, design_key: str) -> tuple[Kit, ...]:
+        return tuple(k for k in self.design.kits if k.design_key == design_key)
+
+
+def element_id(kit: Kit, element_key: str) -> str:
+    """Stable element ID: kit ID plus the element key, e.g. "K03-40m"."""
+    return f"{kit.kit_id}-{element_key}"
+
+
+def solve_design(design: AntennaDesign, spec: Design, model: ModelName) -> DesignCuts:
+    """Predict and cut one design (cached by the model layer on the design's geometry)."""
+    closed = predict(design, spec.site.ground, "closed_form")
+    prediction = closed if model == "closed_form" else predict(design, spec.site.ground, model)
+    try:
+        return design_cuts(design, prediction, closed)
+    except ValueError as exc:
+        raise BuildError([Problem(spec.source, str(exc))]) from None
+
+
+def build_packet(spec: Design, *, built_at: str, revision: int = 1,
+                 model: ModelName = "mom") -> Packet:
+    """Compute everything to print for ``spec``. Raises BuildError for an unbuildable design."""
+    cuts = tuple(solve_design(d, spec, model) for d in spec.designs)
+    by_key = {c.design.key: c for c in cuts}
+    entries = tuple(
+        ElementEntry(element_id(kit, cut.element.key), kit, cut)
+        for kit in spec.kits for cut in by_key[kit.design_key].elements
+    )
+    warnings = list(spec.warnings) + [w for c in cuts for w in c.warnings]
+    return Packet(spec, built_at, revision, model, cuts, entries, tuple(warnings))
+
+
+def entry_fingerprint(packet: Packet, entry: ElementEntry) -> str:
+    """Hash of everything printed for one element (sheet row and labels), hex sha256[:16]."""
+    cut = entry.cut
+    record = {
+        "id": entry.element_id, "kit": entry.kit.kit_id, "builder": entry.kit.builder,
+        "design": entry.kit.design_key, "band": cut.element.band_label,
+        "frequency": format_frequency(cut.element.frequency_hz),
+        "cut": format_both(cut.cut_leg_m, packet.design.event.units),
+        "predicted": round(cut.predicted_leg_m, 4), "trim": round(cut.trim_m, 4),
+        "bearing": cut.element.bearing_deg, "url": packet.design.event.record_url,
+    }
+    return hashlib.sha256(json.dumps(record, sort_keys=True).encode()).hexdigest()[:16]

@@ -1,0 +1,302 @@
+"""Build-day pages as reportlab platypus flowables: bill of materials, spool cut plan, cutting
+station lists (one page per spool) and measurement log forms.
+
+Pure builders: data in, a list of flowables out; the packet assembler adds them to its
+document. Nothing physical is computed here. Lengths are shown through a formatter callable
+``fmt(m) -> str`` (pass ``buildsheet.units.format_length`` bound to a unit system); the small
+defaults below are used when none is given. Black on white, text at least 8 pt.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable, Iterable, Sequence
+from xml.sax.saxutils import escape
+
+from reportlab.lib import colors
+from reportlab.lib.enums import TA_LEFT
+from reportlab.lib.styles import ParagraphStyle
+from reportlab.lib.units import mm
+from reportlab.platypus import (
+    Flowable,
+    KeepTogether,
+    PageBreak,
+    Paragraph,
+    Spacer,
+    Table,
+    TableStyle,
+)
+
+from ..constants import INCH
+from ..stock import BomLine, SpoolPlan, SpoolUse
+
+LengthFormat = Callable[[float], str]
+
+#: Usable width assumed for tables, points (fits A4 and US Letter with 25 mm margins).
+DEFAULT_WIDTH: float = 158 * mm
+
+SAFETY_LINES: tuple[str, ...] = (
+    "Look up before raising anything: no part of a mast or antenna may come within about 3 m "
+    "(10 ft) of a power line if it falls; keep well clear of overhead lines.",
+    "Raise masts with helpers; guy and stake as the mast maker directs; flag guy lines, tie-off "
+    "cords and feed lines (trip hazards); keep wire ends above reach or rope them off.",
+    "Stakes lean 45-60 degrees away from the load; double-stake in soft ground.",
+    "These are common-practice reminders only: local codes, site rules, the mast maker's "
+    "instructions and licensed practice take precedence.",
+)
+
+_BODY = ParagraphStyle("bd-body", fontName="Helvetica", fontSize=9, leading=11,
+                       textColor=colors.black, alignment=TA_LEFT)
+_SMALL = ParagraphStyle("bd-small", parent=_BODY, fontSize=8, leading=9.6)
+_CELL = ParagraphStyle("bd-cell", parent=_BODY, fontSize=8.5, leading=10)
+_H1 = ParagraphStyle("bd-h1", parent=_BODY, fontName="Helvetica-Bold", fontSize=15,
+                     leading=18, spaceAfter=4)
+_H2 = ParagraphStyle("bd-h2", parent=_BODY, fontName="Helvetica-Bold", fontSize=11,
+                     leading=14, spaceBefore=6, spaceAfter=3)
+_BIG = ParagraphStyle("bd-big", parent=_BODY, fontSize=11, leading=13)
+_BIG_BOLD = ParagraphStyle("bd-bigb", parent=_BIG, fontName="Helvetica-Bold")
+
+
+# --------------------------------------------------------------------------- formatting
+
+
+def default_metric(m: float) -> str:
+    """Metric length: "20.36 m", or "235 mm" below 1 m (input in m)."""
+    if abs(m) < 1.0:
+        return f"{m * 1000:.0f} mm"
+    return f"{m:.2f} m"
+
+
+def default_feet_inches(m: float) -> str:
+    """Feet and inches to the nearest 1/8 in, e.g. "66 ft 9 1/8 in" (input in m)."""
+    eighths = round(abs(m) / INCH * 8)
+    feet, rest = divmod(eighths, 96)
+    inches, frac = divmod(rest, 8)
+    sign = "-" if m < 0 and eighths else ""
+    num, den = frac, 8
+    while num and num % 2 == 0:
+        num, den = num // 2, den // 2
+    inch_text = f"{inches} {num}/{den}" if num else f"{inches}"
+    if feet == 0:
+        return f"{sign}{inch_text} in"
+    return f"{sign}{feet} ft {inch_text} in"
+
+
+def _p(text: str, style: ParagraphStyle = _CELL) -> Paragraph:
+    """Paragraph of plain (escaped) text."""
+    return Paragraph(escape(text), style)
+
+
+def _count(q: float) -> str:
+    return f"{q:.0f}" if float(q).is_integer() else f"{q:g}"
+
+
+def _grid(data: list[list[object]], widths: Sequence[float], *, header_rows: int = 1,
+          font_size: float = 8.5, row_height: float | None = None,
+          right_cols: Sequence[int] = ()) -> Table:
+    """Table with black rules, bold header repeated on each page."""
+    t = Table(data, colWidths=list(widths), repeatRows=header_rows,
+              rowHeights=None if row_height is None else [None] * header_rows
+              + [row_height] * (len(data) - header_rows))
+    style = [
+        ("FONT", (0, 0), (-1, -1), "Helvetica", font_size),
+        ("FONT", (0, 0), (-1, header_rows - 1), "Helvetica-Bold", font_size),
+        ("TEXTCOLOR", (0, 0), (-1, -1), colors.black),
+        ("GRID", (0, 0), (-1, -1), 0.5, colors.black),
+        ("LINEBELOW", (0, header_rows - 1), (-1, header_rows - 1), 1.2, colors.black),
+        ("VALIGN", (0, 0), (-1, -1), "MIDDLE"),
+        ("TOPPADDING", (0, 0), (-1, -1), 2.5),
+        ("BOTTOMPADDING", (0, 0), (-1, -1), 2.5),
+    ]
+    for c in right_cols:
+        style.append(("ALIGN", (c, header_rows), (c, -1), "RIGHT"))
+    t.setStyle(TableStyle(style))
+    return t
+
+
+class TickBox(Flowable):
+    """An empty square to tick by hand (side in points)."""
+
+    def __init__(self, side: float = 4 * mm):
+        super().__init__()
+        self.side = side
+        self.width = self.height = side
+
+    def wrap(self, availWidth: float, availHeight: float) -> tuple[float, float]:
+        return self.side, self.side
+
+    def draw(self) -> None:
+        self.canv.setStrokeColor(colors.black)
+        self.canv.setLineWidth(0.8)
+        self.canv.rect(0, 0, self.side, self.side, stroke=1, fill=0)
+
+
+def safety_flowables() -> list[Flowable]:
+    """The usual cautions for masts, guy lines and stakes (common practice)."""
+    out: list[Flowable] = [_p("Safety", _H2)]
+    out += [_p(f"- {line}", _SMALL) for line in SAFETY_LINES]
+    return out
+
+
+# --------------------------------------------------------------------------- bill of materials
+
+
+def bom_flowables(lines: Iterable[BomLine], *, title: str = "Bill of materials",
+                  fmt: LengthFormat = default_metric, width: float = DEFAULT_WIDTH,
+                  safety: bool = True) -> list[Flowable]:
+    """BOM table (category, item, quantity, note); lengths through ``fmt``, counts as pcs."""
+    rows: list[list[object]] = [["Category", "Item", "Quantity", "Note"]]
+    for line in lines:
+        qty = fmt(line.quantity) if line.unit == "m" else f"{_count(line.quantity)} {line.unit}"
+        rows.append([_p(line.category), _p(line.item), qty, _p(line.note, _SMALL)])
+    w = [0.13 * width, 0.35 * width, 0.15 * width, 0.37 * width]
+    out: list[Flowable] = [_p(title, _H1), _grid(rows, w, right_cols=(2,))]
+    if safety:
+        out += [Spacer(1, 4 * mm)] + safety_flowables()
+    return out
+
+
+# --------------------------------------------------------------------------- spool plan
+
+
+def spool_plan_flowables(plan: SpoolPlan, *, title: str = "Spool cut plan",
+                         fmt: LengthFormat = default_metric,
+                         width: float = DEFAULT_WIDTH) -> list[Flowable]:
+    """Day summary per material, the spools to open, unassigned cuts and what to buy."""
+    out: list[Flowable] = [
+        _p(title, _H1),
+        _p(f"Every cut includes a cutting tolerance of {fmt(plan.tolerance_m)} on top of its "
+           f"length. Marks run from the free end of each spool. Total remainder on opened "
+           f"spools: {fmt(plan.total_waste_m)}.", _BODY),
+        _p("By material", _H2),
+    ]
+    rows: list[list[object]] = [["Material", "On hand", "Opened", "Lower bound", "Needed",
+                                 "Remainder", "Plan"]]
+    for m in plan.materials:
+        how = {"exact": "exact search", "heuristic": "heuristic", "none": "-"}[m.method]
+        if m.proven_optimal and m.method == "heuristic":
+            how = "heuristic, meets bound"
+        rows.append([_p(m.material), str(m.spools_on_hand), str(m.spools_used),
+                     str(m.lower_bound), fmt(m.needed_m), fmt(m.waste_m), _p(how, _SMALL)])
+    out.append(_grid(rows, [w * width for w in (0.2, 0.1, 0.1, 0.12, 0.16, 0.16, 0.16)],
+                     right_cols=(1, 2, 3, 4, 5)))
+    out.append(_p("Spools to open", _H2))
+    rows = [["Spool", "Description", "Length", "Cuts", "Used", "Remainder"]]
+    for s in plan.spools:
+        rows.append([_p(s.spool_id), _p(s.title), fmt(s.length_m), str(len(s.cuts)),
+                     fmt(s.used_m), fmt(s.remainder_m)])
+    out.append(_grid(rows, [w * width for w in (0.17, 0.35, 0.12, 0.08, 0.14, 0.14)],
+                     right_cols=(2, 3, 4, 5)))
+    if plan.unassigned:
+        out.append(_p("Not enough on hand: cuts without a spool", _H2))
+        rows = [["Cut", "Material", "Length", "Label"]]
+        for c in plan.unassigned:
+            rows.append([_p(c.cut_id), _p(c.material), fmt(c.length_m), _p(c.label)])
+        out.append(_grid(rows, [w * width for w in (0.25, 0.2, 0.15, 0.4)], right_cols=(2,)))
+        out.append(_p("To buy", _H2))
+        rows = [["Material", "Short (with tolerance)", "Whole spools", "Note"]]
+        for b in plan.to_buy:
+            spools = ("-" if b.spools is None or b.spool_length_m is None
+                      else f"{b.spools} x {fmt(b.spool_length_m)}")
+            rows.append([_p(b.material), fmt(b.short_m), spools, _p(b.note, _SMALL)])
+        out.append(_grid(rows, [w * width for w in (0.22, 0.2, 0.22, 0.36)]))
+    return out
+
+
+# --------------------------------------------------------------------------- station lists
+
+
+def station_list_flowables(spool: SpoolUse, *, metric: LengthFormat = default_metric,
+                           imperial: LengthFormat = default_feet_inches,
+                           width: float = DEFAULT_WIDTH, station: str = "") -> list[Flowable]:
+    """One page for the cutting table: the spool's cuts in order, a tick box each, the cut ID
+    (element ID and leg), the length and the running mark in metric and feet-inches."""
+    tol = (spool.cuts[0].mark_m - spool.cuts[0].start_m - spool.cuts[0].cut.length_m
+           if spool.cuts else 0.0)
+    head = f"Cutting station{(' ' + station) if station else ''}: spool {spool.spool_id}"
+    out: list[Flowable] = [
+        _p(head, _H1),
+        _p(f"{spool.title}, {metric(spool.length_m)} ({imperial(spool.length_m)}) of "
+           f"{spool.material}", _BIG),
+        Spacer(1, 2 * mm),
+        _p("Measure from the free end of the spool. At each mark: check the wire, cut, tag the "
+           "piece with its ID, tick the box. Each piece includes "
+           f"{metric(tol)} cutting tolerance.", _BODY),
+        Spacer(1, 3 * mm),
+    ]
+    rows: list[list[object]] = [["Done", "#", "Cut ID", "Label", "Length", "Mark at (m)",
+                                 "Mark at (ft-in)"]]
+    for n, pc in enumerate(spool.cuts, start=1):
+        rows.append([TickBox(), str(n), _p(pc.cut.cut_id, _BIG_BOLD), _p(pc.cut.label),
+                     metric(pc.cut.length_m), metric(pc.mark_m), imperial(pc.mark_m)])
+    table = _grid(rows, [w * width for w in (0.07, 0.05, 0.2, 0.22, 0.12, 0.15, 0.19)],
+                  font_size=10, row_height=9 * mm, right_cols=(4, 5, 6))
+    table.setStyle(TableStyle([("ALIGN", (0, 1), (0, -1), "CENTER"),
+                               ("FONT", (5, 1), (5, -1), "Helvetica-Bold", 10)]))
+    out.append(table)
+    out.append(Spacer(1, 4 * mm))
+    out.append(_p(f"Remainder on the spool after the last mark: {metric(spool.remainder_m)} "
+                  f"({imperial(spool.remainder_m)}). Write it on the spool.", _BIG))
+    out.append(Spacer(1, 6 * mm))
+    out.append(_grid([["Cut by", "Checked by", "Date"], ["", "", ""]],
+                     [width / 3] * 3, font_size=9, row_height=10 * mm))
+    return out
+
+
+def station_lists_flowables(plan: SpoolPlan, **kwargs: object) -> list[Flowable]:
+    """Station lists for every opened spool, one page each (page breaks between)."""
+    out: list[Flowable] = []
+    for k, spool in enumerate(plan.spools):
+        if k:
+            out.append(PageBreak())
+        out += station_list_flowables(spool, **kwargs)  # type: ignore[arg-type]
+    return out
+
+
+# --------------------------------------------------------------------------- log form
+
+
+@dataclass(frozen=True)
+class LogRow:
+    """One element on a measurement log form; ``design_frequency_hz`` in Hz."""
+
+    element_id: str
+    band: str
+    design_frequency_hz: float
+
+
+def default_mhz(hz: float) -> str:
+    """Frequency in MHz to 1 kHz, e.g. "7.150 MHz" (input in Hz)."""
+    return f"{hz / 1e6:.3f} MHz"
+
+
+def log_form_flowables(kit_id: str, builder: str, rows: Sequence[LogRow], *, passes: int = 1,
+                       fmt_freq: Callable[[float], str] = default_mhz,
+                       width: float = DEFAULT_WIDTH, safety: bool = True) -> list[Flowable]:
+    """Measurement log form for one kit: a row per element (``passes`` rows each, for
+    re-measuring), with blank boxes for dip frequency, SWR, trim made and initials."""
+    out: list[Flowable] = [
+        _p(f"Measurement log: kit {kit_id}", _H1),
+        _grid([["Builder", builder or "", "Date", "", "Site", ""]],
+              [w * width for w in (0.12, 0.3, 0.1, 0.16, 0.1, 0.22)], header_rows=1,
+              font_size=9, row_height=9 * mm),
+        Spacer(1, 3 * mm),
+        _p("Measure in the deployed shape and height. Tune the longest element first, then the "
+           "next, then check once more. Trim both legs of an element by the same amount, part "
+           "of the computed amount per step, staying on the long (low-frequency) side.", _BODY),
+        Spacer(1, 3 * mm),
+    ]
+    data: list[list[object]] = [["Element", "Band", "Design freq.", "Dip freq. (MHz)",
+                                 "SWR at dip", "Trim made (each leg)", "Initials"]]
+    for r in rows:
+        for k in range(max(1, passes)):
+            first = k == 0
+            data.append([_p(r.element_id if first else "", _BIG_BOLD), r.band if first else "",
+                         fmt_freq(r.design_frequency_hz) if first else "", "", "", "", ""])
+    out.append(_grid(data, [w * width for w in (0.17, 0.08, 0.15, 0.16, 0.11, 0.21, 0.12)],
+                     font_size=9, row_height=11 * mm))
+    out.append(Spacer(1, 3 * mm))
+    out.append(_grid([["Notes"], [""]], [width], font_size=9, row_height=25 * mm))
+    if safety:
+        out.append(KeepTogether(safety_flowables()))
+    return out

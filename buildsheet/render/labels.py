@@ -1,0 +1,248 @@
+"""Render winder labels to PDF (reportlab + segno): black on white, no hairlines, text >= 7 pt.
+
+The QR symbol is drawn as filled vector rectangles (one per horizontal run of dark modules)
+from segno's matrix, so it stays sharp at any printer resolution. Geometry comes from
+``buildsheet.labels`` in mm and is converted to PDF points here.
+"""
+
+from __future__ import annotations
+
+import io
+import os
+import tempfile
+from collections.abc import Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import BinaryIO
+
+from reportlab.lib.units import mm
+from reportlab.pdfbase.pdfmetrics import getFont, stringWidth
+from reportlab.pdfgen.canvas import Canvas
+
+from buildsheet.errors import BuildError, Problem, SpecError
+from buildsheet.labels import (
+    LEADING,
+    MIN_BAND_PT,
+    MIN_TEXT_PT,
+    QUIET_ZONE_MODULES,
+    LabelContent,
+    LabelLayout,
+    LabelStock,
+    check_ec,
+    check_fit,
+    check_start_cell,
+    layout_label,
+    make_symbol,
+    pages_needed,
+)
+
+REGULAR = "Helvetica"
+BOLD = "Helvetica-Bold"
+
+
+@dataclass(frozen=True)
+class _Line:
+    """One line of label text as requested: font, preferred and minimum size (pt)."""
+
+    text: str
+    font: str
+    size: float
+    min_size: float = MIN_TEXT_PT
+    wrap: bool = False  # may break at spaces when too wide at min_size
+
+
+@dataclass(frozen=True)
+class SetLine:
+    """One line of text as set: font, size (pt) and text."""
+
+    text: str
+    font: str
+    size: float
+
+
+def label_lines(label: LabelContent) -> list[_Line]:
+    """The text lines of a label, most important first, with preferred sizes (pt)."""
+    lines = [
+        _Line(label.band_name, BOLD, 24.0, MIN_BAND_PT),
+        _Line(f"LEG {label.leg}", BOLD, 12.0),
+        _Line(label.frequency_text, REGULAR, 10.0),
+        _Line(f"CUT {label.cut_length_text}", BOLD, 11.0, wrap=True),
+        _Line(label.leg_id, BOLD, 9.0),
+        _Line(f"KIT {label.kit_id}", REGULAR, 8.0),
+    ]
+    lines += [_Line(text, REGULAR, 7.0, wrap=True) for text in label.extra]
+    return lines
+
+
+def _wrap(text: str, font: str, size: float, width: float) -> list[str] | None:
+    """Greedy word wrap of each " / " segment; None if a single word is too wide."""
+    out: list[str] = []
+    for segment in text.split(" / "):
+        lines: list[str] = []
+        for word in segment.split(" "):
+            if stringWidth(word, font, size) > width:
+                return None
+            if lines and stringWidth(lines[-1] + " " + word, font, size) <= width:
+                lines[-1] = lines[-1] + " " + word
+            else:
+                lines.append(word)
+        out += lines
+    return out
+
+
+def _fit_line(line: _Line, scale: float, width: float) -> list[SetLine] | None:
+    """Set one line at ``scale`` x its preferred size, shrinking (and for wrap lines breaking
+    at " / " first, then at spaces at the minimum size) until it fits ``width`` pt."""
+    size = max(line.min_size, line.size * scale)
+    while True:
+        if stringWidth(line.text, line.font, size) <= width:
+            return [SetLine(line.text, line.font, size)]
+        segments = line.text.split(" / ")
+        if line.wrap and len(segments) > 1 and all(
+            stringWidth(seg, line.font, size) <= width for seg in segments
+        ):
+            return [SetLine(seg, line.font, size) for seg in segments]
+        if size <= line.min_size:
+            break
+        size = max(line.min_size, size - 0.5)
+    parts = _wrap(line.text, line.font, size, width) if line.wrap else None
+    return None if parts is None else [SetLine(p, line.font, size) for p in parts]
+
+
+def set_text(lines: Sequence[_Line], width: float, height: float) -> list[SetLine] | None:
+    """Fit lines into width x height pt, shrinking sizes toward their minimums; None if never."""
+    for step in range(0, 21):
+        out: list[SetLine] = []
+        for line in lines:
+            fitted = _fit_line(line, 1.0 - step * 0.05, width)
+            if fitted is None:
+                return None
+            out += fitted
+        if sum(s.size * LEADING for s in out) <= height:
+            return out
+    return None
+
+
+def _draw_symbol(canvas: Canvas, payload: str, ec: str, x: float, top: float, module: float) -> None:
+    """Draw the QR symbol's dark modules as filled runs; (x, top) is the symbol's top-left, pt."""
+    matrix = make_symbol(payload, ec).matrix
+    path = canvas.beginPath()
+    for r, row in enumerate(matrix):
+        c = 0
+        n = len(row)
+        while c < n:
+            if row[c] & 1:
+                start = c
+                while c < n and row[c] & 1:
+                    c += 1
+                path.rect(x + start * module, top - (r + 1) * module, (c - start) * module, module)
+            else:
+                c += 1
+    canvas.drawPath(path, stroke=0, fill=1)
+
+
+def _draw_label(canvas: Canvas, label: LabelContent, layout: LabelLayout, set_lines: list[SetLine],
+                left: float, top: float, ec: str) -> None:
+    """Draw one label whose top-left corner is at (left, top) in PDF points."""
+    qz = layout.quiet_zone * mm
+    _draw_symbol(canvas, label.payload, ec, left + layout.qr.x * mm + qz,
+                 top - layout.qr.y * mm - qz, layout.module * mm)
+    block = sum(s.size * LEADING for s in set_lines)
+    box_top = top - layout.text.y * mm
+    y = box_top - (layout.text.height * mm - block) / 2  # centred vertically
+    x = left + layout.text.x * mm
+    for s in set_lines:
+        ascent = getFont(s.font).face.ascent / 1000.0 * s.size
+        gap = (LEADING - 1.0) * s.size / 2
+        canvas.setFont(s.font, s.size)
+        canvas.drawString(x, y - gap - ascent, s.text)
+        y -= s.size * LEADING
+
+
+def _plan(labels: Sequence[LabelContent], stock: LabelStock, ec: str,
+          ) -> list[tuple[LabelLayout, list[SetLine]]]:
+    """Layout and set text for every label, or raise SpecError naming each that cannot fit."""
+    plans: list[tuple[LabelLayout, list[SetLine]]] = []
+    problems: list[Problem] = []
+    for i, label in enumerate(labels):
+        layout = layout_label(stock.label_width, stock.label_height,
+                              make_symbol(label.payload, ec).symbol_size(border=0)[0])
+        set_lines = set_text(label_lines(label), layout.text.width * mm, layout.text.height * mm)
+        if set_lines is None:
+            problems.append(Problem(
+                f"labels[{i}] {label.leg_id}",
+                f"the text does not fit a {layout.text.width:.1f} x {layout.text.height:.1f} mm "
+                f"text area of stock {stock.name!r} at {MIN_TEXT_PT:g} pt or more (band "
+                f"{MIN_BAND_PT:g} pt); use a larger label or shorter extra lines",
+            ))
+        else:
+            plans.append((layout, set_lines))
+    if problems:
+        raise SpecError(problems)
+    return plans
+
+
+def render_labels(
+    labels: Sequence[LabelContent],
+    stock: LabelStock,
+    out: str | os.PathLike[str] | BinaryIO,
+    *,
+    start_cell: int = 0,
+    title: str = "",
+    ec: str = "q",
+) -> int:
+    """Write the labels PDF (labels in the order given) and return the number of pages.
+
+    ``start_cell`` skips that many cells of the first page (a partly used sheet). ``title``
+    becomes the PDF document title. A path is written atomically; a stream gets the bytes.
+    """
+    if not labels:
+        raise BuildError([Problem("labels", "no labels to render")])
+    level = check_ec(ec)
+    check_start_cell(stock, start_cell)
+    check_fit(stock, [label.payload for label in labels], ec=level)
+    plans = _plan(labels, stock, level)
+
+    buf = io.BytesIO()
+    page_size = (stock.page_width * mm, stock.page_height * mm)
+    canvas = Canvas(buf, pagesize=page_size, invariant=1, pageCompression=1)
+    canvas.setTitle(title or "Winder labels")
+    canvas.setCreator("buildsheet")
+    canvas.setSubject(f"winder labels on stock {stock.name}")
+    canvas.setFillGray(0)
+    cell = start_cell
+    for label, (layout, set_lines) in zip(labels, plans, strict=True):
+        if cell == stock.cells_per_page:
+            canvas.showPage()
+            canvas.setFillGray(0)
+            cell = 0
+        left_mm, top_mm = stock.cell_origin(cell)
+        _draw_label(canvas, label, layout, set_lines, left_mm * mm,
+                    (stock.page_height - top_mm) * mm, level)
+        cell += 1
+    canvas.showPage()
+    canvas.save()
+    _write(buf.getvalue(), out)
+    return pages_needed(stock, len(labels), start_cell)
+
+
+def _write(data: bytes, out: str | os.PathLike[str] | BinaryIO) -> None:
+    """Write bytes to a binary stream, or atomically to a path (temp file, then os.replace)."""
+    if hasattr(out, "write"):
+        out.write(data)  # type: ignore[union-attr]
+        return
+    path = Path(out)  # type: ignore[arg-type]
+    try:
+        fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    except OSError as exc:
+        raise BuildError([Problem(str(path), f"cannot write labels: {exc.strerror}")]) from None
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+
+
+__all__ = ["render_labels", "label_lines", "set_text", "SetLine", "QUIET_ZONE_MODULES"]

@@ -1,0 +1,281 @@
+"""The sheets PDF: cover, build sheets (per kit or per design), cautions. reportlab platypus.
+
+Renderers compute nothing physical: every number comes from the Packet.
+"""
+
+from __future__ import annotations
+
+import io
+from collections.abc import Callable
+from pathlib import Path
+from typing import BinaryIO
+
+from reportlab.lib import colors
+from reportlab.lib.enums import TA_LEFT
+from reportlab.lib.pagesizes import A4, LETTER
+from reportlab.lib.styles import ParagraphStyle, getSampleStyleSheet
+from reportlab.lib.units import mm
+from reportlab.platypus import (
+    BaseDocTemplate, CondPageBreak, Flowable, Frame, KeepTogether, PageBreak, PageTemplate,
+    Paragraph, Spacer, Table, TableStyle,
+)
+from reportlab.platypus.tableofcontents import TableOfContents
+
+from buildsheet.cuts import DesignCuts, ElementCut
+from buildsheet.model import Kit
+from buildsheet.packet import SAFETY_CAUTIONS, Packet
+from buildsheet.render import drawings
+from buildsheet.units import format_both, format_frequency, format_length
+
+_BASE = getSampleStyleSheet()
+STYLES = {
+    "title": ParagraphStyle("title", parent=_BASE["Title"], fontSize=18, leading=22, alignment=TA_LEFT),
+    "h1": ParagraphStyle("h1", parent=_BASE["Heading1"], fontSize=15, leading=18, spaceAfter=4),
+    "h2": ParagraphStyle("h2", parent=_BASE["Heading2"], fontSize=11.5, leading=14, spaceBefore=6,
+                         spaceAfter=3),
+    "body": ParagraphStyle("body", parent=_BASE["BodyText"], fontSize=9, leading=11.5),
+    "small": ParagraphStyle("small", parent=_BASE["BodyText"], fontSize=8, leading=10),
+    "cell": ParagraphStyle("cell", parent=_BASE["BodyText"], fontSize=8, leading=9.5),
+    "caution": ParagraphStyle("caution", parent=_BASE["BodyText"], fontSize=8.5, leading=10.5,
+                              leftIndent=8, bulletIndent=0),
+}
+GRID = TableStyle([
+    ("FONT", (0, 0), (-1, -1), "Helvetica", 8),
+    ("FONT", (0, 0), (-1, 0), "Helvetica-Bold", 8),
+    ("LINEBELOW", (0, 0), (-1, 0), 0.8, colors.black),
+    ("LINEBELOW", (0, 1), (-1, -1), 0.3, colors.grey),
+    ("VALIGN", (0, 0), (-1, -1), "TOP"),
+    ("LEFTPADDING", (0, 0), (-1, -1), 3),
+    ("RIGHTPADDING", (0, 0), (-1, -1), 3),
+])
+
+
+class SheetDoc(BaseDocTemplate):
+    """Doc template that turns h1/h2 paragraphs into PDF bookmarks and contents entries."""
+
+    def __init__(self, out: BinaryIO, *, pagesize: tuple[float, float], footer: str, title: str):
+        super().__init__(out, pagesize=pagesize, leftMargin=14 * mm, rightMargin=14 * mm,
+                         topMargin=13 * mm, bottomMargin=16 * mm, title=title,
+                         author="buildsheet", invariant=1)
+        frame = Frame(self.leftMargin, self.bottomMargin, self.width, self.height, id="body")
+        self.addPageTemplates([PageTemplate("page", [frame], onPage=self._footer)])
+        self._footer_text = footer
+        self._mark = 0
+
+    def beforeDocument(self) -> None:  # noqa: N802 - reportlab API; runs once per pass
+        self._mark = 0
+
+    def _footer(self, canvas, doc) -> None:  # noqa: ANN001 - reportlab callback signature
+        canvas.saveState()
+        canvas.setFont("Helvetica", 7.5)
+        canvas.drawString(self.leftMargin, 8 * mm, self._footer_text)
+        canvas.drawRightString(self.pagesize[0] - self.rightMargin, 8 * mm, f"page {doc.page}")
+        canvas.restoreState()
+
+    def afterFlowable(self, flowable: Flowable) -> None:  # noqa: N802 - reportlab API
+        if isinstance(flowable, Paragraph) and flowable.style.name in ("title", "h1", "h2"):
+            level = 1 if flowable.style.name == "h2" else 0
+            text = flowable.getPlainText()
+            key = f"m{self._mark}"
+            self._mark += 1
+            self.canv.bookmarkPage(key)
+            self.canv.addOutlineEntry(text, key, level=level, closed=level > 0)
+            self.notify("TOCEntry", (level, text, self.page, key))
+
+
+def _p(text: str, style: str = "cell") -> Paragraph:
+    return Paragraph(text, STYLES[style])
+
+
+def element_table(cuts: DesignCuts, units: str) -> Table:
+    """The cut table: per element the model lengths, allowances and the cut length per leg."""
+    header = ["Band", "Design freq.", "468/f leg", "Closed-form leg", "Model leg", "Trim",
+              "Termination", "Feed", "CUT EACH LEG"]
+    rows = [[_p(f"<b>{h}</b>") for h in header]]
+    for c in cuts.elements:
+        rows.append([
+            _p(f"<b>{c.element.band_label}</b>"),
+            _p(format_frequency(c.element.frequency_hz)),
+            _p(format_both(c.rule468_leg_m, units)),
+            _p(format_both(c.closed_form_leg_m, units)),
+            _p(format_both(c.predicted_leg_m, units)),
+            _p(f"{format_both(c.trim_m, units)}<br/>({c.trim_fraction:.1%})"),
+            _p(format_both(c.termination_m, units)),
+            _p(format_both(c.feed_m, units)),
+            _p(f"<b>{format_both(c.cut_leg_m, units)}</b>"),
+        ])
+    t = Table(rows, colWidths=[34, 50, 62, 62, 62, 58, 52, 46, 74], repeatRows=1)
+    t.setStyle(GRID)
+    return t
+
+
+def tuning_lines(cuts: DesignCuts, units: str) -> list[Flowable]:
+    out = []
+    for c in cuts.elements:
+        out.append(_p(
+            f"<b>{c.element.band_label} tuning:</b> to raise resonance by 100 kHz cut "
+            f"<b>{format_both(c.tuning_m_per_100khz, units)}</b> from EACH leg (lower: add back "
+            "the same). Trim both legs equally, in steps of part of the computed amount, and "
+            "stay on the long side.", "body"))
+    return out
+
+
+def feed_lines(cuts: DesignCuts) -> list[Flowable]:
+    """Feed impedance, SWR and 2:1 bandwidth per element, with plain advice above 2:1."""
+    out = []
+    for c in cuts.elements:
+        p = c.prediction
+        bw = (f"2:1 bandwidth {p.bandwidth_2to1_hz[0] / 1e6:.3f}-{p.bandwidth_2to1_hz[1] / 1e6:.3f} MHz"
+              if p.bandwidth_2to1_hz else "SWR stays above 2:1")
+        text = (f"<b>{c.element.band_label}:</b> feed impedance at {format_frequency(c.element.frequency_hz)} "
+                f"{p.z_feed.real:.1f} {'+' if p.z_feed.imag >= 0 else '-'} j{abs(p.z_feed.imag):.1f} ohm, "
+                f"SWR {p.swr_at_design:.2f}:1 on 50 ohm; {bw}.")
+        if c.spread_fraction is not None:
+            text += (f" Model spread across free space, perfect and site ground: "
+                     f"{c.spread_fraction:.1%} of the leg.")
+        if p.swr_at_design > 2.0:
+            text += (" <b>SWR above 2:1 at resonance</b>: a low antenna's feed resistance falls "
+                     "well below 50 ohm. A higher apex, a wider included angle, or a matching "
+                     "unit at the feed helps.")
+        out.append(_p(text, "body"))
+    return out
+
+
+def geometry_table(cuts: DesignCuts, units: str) -> Table:
+    header = ["Leg", "Bearing", "Reach", "Slope", "End height", "Cord line", "Cord to cut",
+              "Stake from mast"]
+    rows = [[_p(f"<b>{h}</b>") for h in header]]
+    for c in cuts.elements:
+        for leg in c.legs:
+            rows.append([
+                _p(f"{c.element.band_label} {leg.leg_id}"), _p(f"{leg.bearing_deg:.0f} deg"),
+                _p(format_both(leg.reach_m, units)), _p(f"{leg.slope_deg:.0f} deg"),
+                _p(format_both(leg.end_height_m, units)), _p(format_both(leg.cord_line_m, units)),
+                _p(f"<b>{format_both(leg.cord_cut_m, units)}</b>"),
+                _p(format_both(leg.stake_distance_m, units)),
+            ])
+    t = Table(rows, colWidths=[44, 44, 72, 34, 66, 72, 78, 78], repeatRows=1)
+    t.setStyle(GRID)
+    return t
+
+
+def cautions_box() -> Table:
+    paras = [_p("<b>Safety cautions</b>", "body")] + [
+        Paragraph(text, STYLES["caution"], bulletText="\u2022") for text in SAFETY_CAUTIONS]
+    t = Table([[paras]], colWidths=[500])
+    t.setStyle(TableStyle([("BOX", (0, 0), (-1, -1), 1.2, colors.black),
+                           ("LEFTPADDING", (0, 0), (-1, -1), 6),
+                           ("TOPPADDING", (0, 0), (-1, -1), 4)]))
+    return t
+
+
+Extra = Callable[[Packet, DesignCuts], list[Flowable]]
+
+
+def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...],
+                extras: tuple[Extra, ...] = ()) -> list[Flowable]:
+    """Flowables of one build sheet for ``kits`` (one kit, or a roster for per-design layout)."""
+    ev = packet.design.event
+    units = ev.units
+    d = cuts.design
+    if len(kits) == 1:
+        k = kits[0]
+        heading = f"Kit {k.kit_id}: {d.title}" + (f" ({k.builder})" if k.builder else "")
+    else:
+        heading = f"Design {d.key}: {d.title} ({len(kits)} kits)"
+    story: list[Flowable] = [_p(heading, "h1")]
+    story.append(_p(
+        f"{ev.name} - {ev.date}. {d.kind} ({len(d.elements)} element"
+        f"{'s' if len(d.elements) > 1 else ''}) on one 1:1 balun, {d.mount.replace('_', ' ')}, "
+        f"apex {format_both(d.apex_height_m, units)}. Wire: {d.wire.title}. "
+        f"Ground: {packet.design.site.ground.title}.", "body"))
+    if len(kits) > 1:
+        roster = ", ".join(f"{k.kit_id}{' ' + k.builder if k.builder else ''}" for k in kits)
+        story.append(_p(f"<b>Kit roster:</b> {roster}", "body"))
+    ids = []
+    for k in kits[:1] if len(kits) == 1 else ():
+        ids = [f"{k.kit_id}-{c.element.key}" for c in cuts.elements]
+    if ids:
+        story.append(_p("<b>Element IDs:</b> " + ", ".join(f"{i} (legs {i}-A, {i}-B)" for i in ids),
+                        "body"))
+    story += [_p("Cut list", "h2"), element_table(cuts, units), Spacer(1, 3)]
+    story.append(_p(
+        f"Cut = model leg + trim allowance + termination at the end insulator + feed allowance "
+        f"(pigtail to the balun terminal). Model: {cuts.prediction.model_note}; ground "
+        f"{cuts.prediction.ground_title}. The 468/f rule and the straight-dipole closed form are "
+        "shown for comparison.", "small"))
+    story += tuning_lines(cuts, units)
+    story += [_p("Feed point", "h2")] + feed_lines(cuts)
+    for extra in extras:
+        story += extra(packet, cuts)
+    story += [CondPageBreak(120 * mm), _p("Deployment", "h2"),
+              drawings.side_view(cuts, 500, 165, units), Spacer(1, 4)]
+    site = packet.design.site
+    dims = (site.width_m, site.depth_m) if site.width_m and site.depth_m else None
+    story += [KeepTogether([geometry_table(cuts, units), Spacer(1, 4),
+                            drawings.plan_view(cuts, 270, units, dims)])]
+    for w in cuts.warnings:
+        story.append(_p(f"<b>Note:</b> {w}", "small"))
+    story += [Spacer(1, 6), KeepTogether([cautions_box()]), PageBreak()]
+    return story
+
+
+def cover(packet: Packet) -> list[Flowable]:
+    ev = packet.design.event
+    units = ev.units
+    story: list[Flowable] = [_p(ev.name, "title"),
+                             _p(f"{ev.club} - {ev.date} - ITU region {ev.region}", "body"),
+                             Spacer(1, 6)]
+    rows = [[_p("<b>Design</b>"), _p("<b>Kits</b>"), _p("<b>Elements</b>"), _p("<b>Cut per leg</b>")]]
+    for c in packet.cuts:
+        kits = packet.kits_of(c.design.key)
+        rows.append([_p(c.design.title), _p(str(len(kits))),
+                     _p(", ".join(e.element.band_label for e in c.elements)),
+                     _p("<br/>".join(f"{e.element.band_label}: {format_both(e.cut_leg_m, units)}"
+                                     for e in c.elements))])
+    t = Table(rows, colWidths=[180, 40, 90, 190])
+    t.setStyle(GRID)
+    story += [t, Spacer(1, 8)]
+    if packet.warnings:
+        story.append(_p("Warnings", "h2"))
+        story += [_p(w, "small") for w in packet.warnings]
+    toc = TableOfContents()
+    toc.levelStyles = [ParagraphStyle("toc0", fontName="Helvetica", fontSize=9, leading=11),
+                       ParagraphStyle("toc1", fontName="Helvetica", fontSize=8, leading=10,
+                                      leftIndent=12)]
+    story += [_p("Contents", "h2"), toc, PageBreak()]
+    return story
+
+
+def sheet_story(packet: Packet, extras: tuple[Extra, ...] = (),
+                front: list[Flowable] | None = None, back: list[Flowable] | None = None) -> list[Flowable]:
+    """The whole sheets document as flowables: cover, optional front matter, build sheets."""
+    story = cover(packet) + list(front or [])
+    for c in packet.cuts:
+        kits = packet.kits_of(c.design.key)
+        if packet.design.event.layout == "per_design":
+            story += build_sheet(packet, c, kits, extras)
+        else:
+            for k in kits:
+                story += build_sheet(packet, c, (k,), extras)
+    return story + list(back or [])
+
+
+def footer_text(packet: Packet) -> str:
+    d = packet.design
+    return (f"{d.event.name} | spec {d.source} sha256 {d.spec_hash[:12]} | revision "
+            f"{packet.revision} | built {packet.built_at} | buildsheet")
+
+
+def render_sheets(packet: Packet, out: str | Path | BinaryIO, story: list[Flowable] | None = None) -> None:
+    """Write the sheets PDF to a path or a binary stream."""
+    pagesize = LETTER if packet.design.event.paper == "letter" else A4
+    buf = io.BytesIO()
+    doc = SheetDoc(buf, pagesize=pagesize, footer=footer_text(packet),
+                   title=f"{packet.design.event.name} build sheets")
+    doc.multiBuild(story if story is not None else sheet_story(packet))
+    data = buf.getvalue()
+    if isinstance(out, (str, Path)):
+        Path(out).write_bytes(data)
+    else:
+        out.write(data)

@@ -1,0 +1,273 @@
+"""Record pages: a static, self-contained HTML site of kits and elements (jinja2 templates).
+
+One index page and one page per element (file name from the element ID, see :func:`page_name`).
+Pages carry inline CSS only: no scripts, fonts, images or other external assets, so they open
+from file://, from a phone, or on paper. The context builders are pure (record data in, typed
+page contexts out); :func:`write_site` is the only function that touches files.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import tempfile
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass
+from importlib.resources import files
+from pathlib import Path
+
+import jinja2
+
+from buildsheet.errors import BuildError
+from buildsheet.records import ElementHistory
+from buildsheet.units import format_frequency, format_length
+
+INDEX_NAME = "index.html"
+#: The caution line on every element page; it defers to local rules.
+CAUTION = ("Caution: element ends carry high RF voltage; keep people away from low ends while "
+           "transmitting. Keep masts and wires well clear of power lines. Local rules and site "
+           "safety officers take precedence over these notes.")
+
+
+@dataclass(frozen=True)
+class LengthText:
+    """A length (metres) with its metric and feet-inches texts."""
+
+    metres: float
+    metric: str
+    imperial: str
+
+
+@dataclass(frozen=True)
+class MeasurementView:
+    time: str
+    dip: str
+    offset: str  # dip minus design frequency, kHz with sign
+    swr: str
+    note: str
+
+
+@dataclass(frozen=True)
+class TrimView:
+    time: str
+    leg: str
+    action: str  # "removed" or "added back"
+    amount: LengthText
+    note: str
+
+
+@dataclass(frozen=True)
+class PrintView:
+    revision: int
+    kind: str
+    file: str
+    hash: str  # first 12 hex digits
+    time: str
+
+
+@dataclass(frozen=True)
+class PartnerLink:
+    element_id: str
+    href: str
+
+
+@dataclass(frozen=True)
+class ElementPage:
+    """Context of templates/element.html."""
+
+    element_id: str
+    kit: str
+    design: str
+    band: str
+    status: str
+    design_frequency: str
+    band_edges: str
+    spec_revision: int
+    predicted: LengthText
+    cut: LengthText
+    current_a: LengthText
+    current_b: LengthText
+    legs: tuple[str, str]
+    measurements: tuple[MeasurementView, ...]
+    trims: tuple[TrimView, ...]
+    prints: tuple[PrintView, ...]
+    partners: tuple[PartnerLink, ...]
+    sheet_file: str
+    sheet_href: str
+    caution: str
+    built_at: str
+    index_href: str
+
+
+@dataclass(frozen=True)
+class IndexRow:
+    element_id: str
+    href: str
+    design: str
+    band: str
+    design_frequency: str
+    cut: str
+    current: str
+    last_dip: str
+    status: str
+
+
+@dataclass(frozen=True)
+class KitSection:
+    kit: str
+    rows: tuple[IndexRow, ...]
+
+
+@dataclass(frozen=True)
+class IndexPage:
+    """Context of templates/index.html."""
+
+    title: str
+    kits: tuple[KitSection, ...]
+    element_count: int
+    archived_count: int
+    built_at: str
+
+
+# --------------------------------------------------------------------------- pure
+
+
+def page_name(element_id: str) -> str:
+    """File name of an element's page: the ID with anything but letters, digits, '-', '.', '_'
+    replaced by '_', plus ".html" ("K03-40m" -> "K03-40m.html")."""
+    safe = re.sub(r"[^A-Za-z0-9._-]", "_", element_id).lstrip(".") or "_"
+    return f"{safe}.html"
+
+
+def length_text(metres: float) -> LengthText:
+    """Metric and feet-inches texts of a length in metres."""
+    return LengthText(metres, format_length(metres, "metric"), format_length(metres, "imperial"))
+
+
+def _precise(metres: float) -> LengthText:
+    """Cut and current lengths: metric to the millimetre (a tape reads that)."""
+    return LengthText(metres, f"{metres:.3f} m", format_length(metres, "imperial"))
+
+
+def _time(iso: str) -> str:
+    """"2024-05-01T12:03:09+00:00" -> "2024-05-01 12:03 +00:00" (readable, still exact)."""
+    m = re.fullmatch(r"(\d{4}-\d\d-\d\d)T(\d\d:\d\d)(?::\d\d(?:\.\d+)?)?(Z|[+-]\d\d:\d\d)?", iso)
+    if not m:
+        return iso
+    zone = m.group(3) or ""
+    return f"{m.group(1)} {m.group(2)} {'UTC' if zone in ('Z', '+00:00') else zone}".strip()
+
+
+def element_page(h: ElementHistory, built_at: str, sheet_file: str = "",
+                 sheet_href: str = "") -> ElementPage:
+    """The typed context of one element page."""
+    e = h.element
+    f0 = e.design_frequency_hz
+    ms = tuple(MeasurementView(_time(m.time), format_frequency(m.dip_hz),
+                               f"{(m.dip_hz - f0) / 1e3:+.1f} kHz",
+                               "" if m.swr is None else f"{m.swr:.2f}", m.note)
+               for m in h.measurements)
+    ts = tuple(TrimView(_time(t.time), "A and B" if t.leg == "both" else t.leg,
+                        "removed" if t.delta_m > 0 else "added back",
+                        length_text(abs(t.delta_m)), t.note) for t in h.trims)
+    ps = tuple(PrintView(p.revision, p.kind, p.file, p.hash[:12], _time(p.time))
+               for p in h.prints)
+    if not sheet_file:
+        sheets = [p.file for p in h.prints if p.kind == "sheet" and p.file]
+        sheet_file = sheets[-1] if sheets else ""
+    return ElementPage(
+        element_id=e.id, kit=e.kit, design=e.design, band=e.key, status=e.status,
+        design_frequency=format_frequency(f0),
+        band_edges=f"{format_frequency(e.band_low_hz)} to {format_frequency(e.band_high_hz)}",
+        spec_revision=e.spec_revision, predicted=_precise(e.predicted_leg_m),
+        cut=_precise(e.cut_leg_m), current_a=_precise(h.current_leg_m("A")),
+        current_b=_precise(h.current_leg_m("B")), legs=(f"{e.id}-A", f"{e.id}-B"),
+        measurements=ms, trims=ts, prints=ps,
+        partners=tuple(PartnerLink(p, page_name(p)) for p in e.partners),
+        sheet_file=sheet_file, sheet_href=sheet_href, caution=CAUTION, built_at=built_at,
+        index_href=INDEX_NAME)
+
+
+def index_page(histories: Sequence[ElementHistory], built_at: str,
+               title: str = "Element records") -> IndexPage:
+    """The typed context of the index: kits in order, elements by ID within each kit."""
+    kits: dict[str, list[IndexRow]] = {}
+    for h in sorted(histories, key=lambda h: (h.element.kit, h.element.id)):
+        e = h.element
+        last = h.measurements[-1] if h.measurements else None
+        current = min(h.current_leg_m("A"), h.current_leg_m("B"))
+        kits.setdefault(e.kit, []).append(IndexRow(
+            e.id, page_name(e.id), e.design, e.key, format_frequency(e.design_frequency_hz),
+            f"{e.cut_leg_m:.3f} m", f"{current:.3f} m",
+            format_frequency(last.dip_hz) if last else "", e.status))
+    archived = sum(1 for h in histories if h.element.status == "archived")
+    return IndexPage(title, tuple(KitSection(k, tuple(v)) for k, v in kits.items()),
+                     len(histories), archived, built_at)
+
+
+def environment() -> jinja2.Environment:
+    """The one jinja2 environment: templates shipped as ``buildsheet.templates``, autoescape on,
+    undefined names are errors."""
+    folder = files("buildsheet.templates")
+    return jinja2.Environment(
+        loader=jinja2.FileSystemLoader(str(folder)),
+        autoescape=True, undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
+        keep_trailing_newline=True)
+
+
+def render_site(histories: Sequence[ElementHistory], built_at: str,
+                sheet_files: Mapping[str, str] | None = None,
+                sheet_hrefs: Mapping[str, str] | None = None,
+                title: str = "Element records",
+                env: jinja2.Environment | None = None) -> dict[str, str]:
+    """All pages as {file name: HTML text}. ``sheet_files`` / ``sheet_hrefs`` map element IDs to
+    the build sheet's name and a relative link to it (optional)."""
+    env = env or environment()
+    sheet_files = sheet_files or {}
+    sheet_hrefs = sheet_hrefs or {}
+    element_t = env.get_template("element.html")
+    pages = {INDEX_NAME: env.get_template("index.html").render(
+        page=index_page(histories, built_at, title))}
+    for h in histories:
+        eid = h.element.id
+        name = page_name(eid)
+        if name in pages:
+            raise BuildError(f"element IDs {eid!r} and another give the same page name {name}")
+        pages[name] = element_t.render(page=element_page(
+            h, built_at, sheet_files.get(eid, ""), sheet_hrefs.get(eid, "")))
+    return pages
+
+
+# --------------------------------------------------------------------------- files
+
+
+def _write_atomic(path: Path, text: str) -> None:
+    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
+            fh.write(text)
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+
+
+def write_site(out_dir: str | Path, histories: Iterable[ElementHistory], built_at: str,
+               sheet_files: Mapping[str, str] | None = None,
+               sheet_hrefs: Mapping[str, str] | None = None,
+               title: str = "Element records") -> list[Path]:
+    """Render every page, then write them into ``out_dir`` (created if needed), each file
+    atomically. Returns the written paths, index first."""
+    pages = render_site(list(histories), built_at, sheet_files, sheet_hrefs, title)
+    folder = Path(out_dir)
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        written = []
+        for name, text in pages.items():
+            _write_atomic(folder / name, text)
+            written.append(folder / name)
+    except OSError as exc:
+        raise BuildError(f"{folder}: cannot write the record pages ({exc.strerror or exc})") \
+            from exc
+    return written

@@ -1,0 +1,414 @@
+"""Read a TOML spec into a validated Design. Every problem names file, key path, value and
+what is allowed; all problems are reported together (SpecError), then nothing is built."""
+
+from __future__ import annotations
+
+import difflib
+import hashlib
+import math
+import re
+import tomllib
+from collections.abc import Callable, Mapping
+from pathlib import Path
+from typing import Any
+
+from buildsheet import bands
+from buildsheet.em.ground import FREE_SPACE, GROUND_CLASSES, PERFECT_GROUND, real_ground
+from buildsheet.errors import Problem, SpecError
+from buildsheet.model import (
+    Allowances, AntennaDesign, Design, ElementSpec, Event, ExposureSettings, Kit, LabelSettings,
+    Site, SpoolSpec,
+)
+from buildsheet.units import FREQUENCY_HELP, LENGTH_HELP, parse_frequency, parse_length
+from buildsheet.wire import BUILTIN_WIRES, MATERIALS, WireType, awg_diameter
+
+_TOP_KEYS = ("event", "site", "wires", "designs", "kits", "labels", "exposure", "stock")
+_EVENT_KEYS = ("name", "club", "date", "region", "units", "paper", "record_url", "layout")
+_SITE_KEYS = ("ground", "width", "depth")
+_WIRE_KEYS = ("title", "gauge", "diameter", "material", "stranding", "insulation",
+              "permittivity", "cladding_fraction")
+_DESIGN_KEYS = ("title", "kind", "mount", "apex_height", "end_height", "wire", "elements",
+                "trim_allowance", "min_trim", "termination", "feed_allowance", "cord_knot",
+                "cord_hitch", "coax", "coax_length", "tie_off_angle")
+_ELEMENT_KEYS = ("band", "frequency", "bearing", "end_height")
+_KIT_KEYS = ("design", "count", "builders", "first")
+_LABEL_KEYS = ("stock", "start_cell")
+_EXPOSURE_KEYS = ("power", "mode", "transmit_fraction", "regime")
+_STOCK_KEYS = ("material", "length", "count")
+_GROUNDS = ("free_space", "perfect", *GROUND_CLASSES)
+_MODES = ("ssb", "cw", "fm", "data", "am")
+_COAX = ("rg58", "rg8x", "rg213", "lowloss10")
+
+DEFAULTS = {
+    "trim_allowance": "3 %",  # common practice: cut 3-5 % long
+    "min_trim": "1 %",
+    "termination": "23 cm",  # common practice: about 9 in of wire round the end insulator
+    "feed_allowance": "10 cm",
+    "cord_knot": "30 cm",
+    "cord_hitch": "50 cm",
+}
+
+
+class _Reader:
+    """Collects problems while reading one spec file."""
+
+    def __init__(self, source: str):
+        self.source = source
+        self.problems: list[Problem] = []
+        self.warnings: list[str] = []
+
+    def bad(self, path: str, message: str) -> None:
+        self.problems.append(Problem(f"{self.source}: {path}", message))
+
+    def keys(self, table: Any, path: str, allowed: tuple[str, ...]) -> Mapping[str, Any]:
+        if not isinstance(table, Mapping):
+            self.bad(path, f"expected a table, got {type(table).__name__} {table!r}")
+            return {}
+        for key in table:
+            if key not in allowed:
+                hint = difflib.get_close_matches(key, allowed, n=1)
+                tip = f"; did you mean '{hint[0]}'?" if hint else ""
+                self.bad(f"{path}.{key}" if path else key,
+                         f"unknown key '{key}'{tip} Allowed: {', '.join(allowed)}")
+        return table
+
+    def required(self, table: Mapping[str, Any], key: str, path: str) -> Any:
+        if key not in table:
+            self.bad(f"{path}.{key}", "missing; this field is required")
+            return None
+        return table[key]
+
+    def convert(self, value: Any, path: str, parse: Callable[[Any], Any], *,
+                positive: bool = False, allow_zero: bool = False) -> Any:
+        if value is None:
+            return None
+        try:
+            result = parse(value)
+        except (ValueError, TypeError) as exc:
+            self.bad(path, str(exc))
+            return None
+        if positive and not (result > 0 or (allow_zero and result == 0)):
+            need = "zero or more" if allow_zero else "greater than zero"
+            self.bad(path, f"{value!r} is not allowed: the value must be {need}")
+            return None
+        return result
+
+    def length(self, value: Any, path: str, *, allow_zero: bool = False) -> float | None:
+        return self.convert(value, path, parse_length, positive=True, allow_zero=allow_zero)
+
+    def choice(self, value: Any, path: str, allowed: tuple[Any, ...]) -> Any:
+        if value not in allowed:
+            hint = difflib.get_close_matches(str(value), [str(a) for a in allowed], n=1)
+            tip = f" (did you mean '{hint[0]}'?)" if hint else ""
+            self.bad(path, f"{value!r} is not allowed{tip}; choose one of: "
+                     f"{', '.join(str(a) for a in allowed)}")
+            return None
+        return value
+
+
+def _percent_or_length(text: Any) -> tuple[float | None, float | None]:
+    """"3 %" -> (0.03, None); "30 cm" -> (None, 0.30)."""
+    if isinstance(text, str) and text.strip().endswith("%"):
+        value = float(text.strip()[:-1]) / 100.0
+        if not (0 <= value < 0.5):
+            raise ValueError(f"{text!r}: a percentage allowance must be between 0 % and 50 %")
+        return value, None
+    return None, parse_length(text)
+
+
+def _number(kind: type, low: float, high: float) -> Callable[[Any], Any]:
+    def parse(value: Any) -> Any:
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or (
+                kind is int and not isinstance(value, int)):
+            raise ValueError(f"expected a {kind.__name__} from {low} to {high}, got {value!r}")
+        if not (low <= value <= high) or not math.isfinite(value):
+            raise ValueError(f"{value!r} is out of range; allowed {low} to {high}")
+        return value
+    return parse
+
+
+def _power(text: Any) -> float:
+    m = re.fullmatch(r"\s*(\d+(?:\.\d*)?)\s*(W|kW)\s*", str(text)) if isinstance(text, str) else None
+    if not m:
+        raise ValueError(f"expected a power like \"100 W\", got {text!r}")
+    return float(m.group(1)) * (1000.0 if m.group(2) == "kW" else 1.0)
+
+
+def _read_wire(r: _Reader, key: str, table: Any) -> WireType | None:
+    path = f"wires.{key}"
+    t = r.keys(table, path, _WIRE_KEYS)
+    if "gauge" in t and "diameter" in t:
+        r.bad(path, "give either 'gauge' (AWG) or 'diameter', not both")
+    if "gauge" in t:
+        gauge = r.convert(t["gauge"], f"{path}.gauge", _number(int, -3, 40))
+        diameter = awg_diameter(gauge) if gauge is not None else None
+    elif "diameter" in t:
+        diameter = r.length(t["diameter"], f"{path}.diameter")
+    else:
+        r.bad(path, "missing conductor size: give 'gauge' (AWG number) or 'diameter'")
+        diameter = None
+    material = r.choice(t.get("material", "copper"), f"{path}.material", MATERIALS)
+    insulation = r.length(t.get("insulation", "0 mm"), f"{path}.insulation", allow_zero=True)
+    eps = r.convert(t.get("permittivity", 1.0 if not insulation else 3.5),
+                    f"{path}.permittivity", _number(float, 1.0, 20.0))
+    cladding = r.convert(t.get("cladding_fraction", 0.1 if material == "copper_clad_steel" else 0.0),
+                         f"{path}.cladding_fraction", _number(float, 0.0, 1.0))
+    if None in (diameter, material, insulation, eps, cladding):
+        return None
+    return WireType(key, str(t.get("title", key)), diameter, material, str(t.get("stranding", "")),
+                    insulation, float(eps), float(cladding))
+
+
+def _read_element(r: _Reader, path: str, table: Any, region: int,
+                  default_end: float | None) -> ElementSpec | None:
+    t = r.keys(table, path, _ELEMENT_KEYS)
+    band = None
+    if "band" in t:
+        names = bands.band_names(region)
+        name = r.choice(t["band"], f"{path}.band", names)
+        band = bands.get_band(name, region) if name else None
+        if name is None:
+            return None
+    frequency = r.convert(t.get("frequency"), f"{path}.frequency", parse_frequency, positive=True)
+    if "band" not in t and frequency is None:
+        if "frequency" not in t:
+            r.bad(path, "an element needs 'band' (e.g. \"40m\") or 'frequency' (e.g. \"7.15 MHz\")")
+        return None
+    if frequency is not None and not (1.0e6 <= frequency <= 30.0e6):
+        r.bad(f"{path}.frequency", f"{t['frequency']!r} is outside HF; allowed 1-30 MHz")
+        return None
+    if band is None and frequency is not None:
+        band = bands.band_containing(frequency, region)
+    if frequency is None:
+        assert band is not None
+        frequency = band.design_hz
+    if band is None:
+        r.warnings.append(f"{r.source}: {path}.frequency: {t['frequency']} is outside every "
+                          f"amateur band of ITU region {region}; check before transmitting")
+    elif not band.contains(frequency):
+        r.warnings.append(f"{r.source}: {path}.frequency: {t['frequency']} is outside the "
+                          f"{band.name} band ({band.low_hz / 1e3:g}-{band.high_hz / 1e3:g} kHz, "
+                          f"ITU region {region})")
+    key = band.name if band and "band" in t else f"{round(frequency / 1e3):d}k"
+    bearing = r.convert(t.get("bearing", 0), f"{path}.bearing", _number(float, 0.0, 360.0))
+    end = r.length(t["end_height"], f"{path}.end_height") if "end_height" in t else default_end
+    if bearing is None or end is None:
+        return None
+    return ElementSpec(key, band, frequency, float(bearing) % 360.0, end)
+
+
+def _read_design(r: _Reader, key: str, table: Any, wires: dict[str, WireType],
+                 region: int) -> AntennaDesign | None:
+    path = f"designs.{key}"
+    t = r.keys(table, path, _DESIGN_KEYS)
+    kind = r.choice(t.get("kind", "dipole"), f"{path}.kind", ("dipole", "fan"))
+    mount = r.choice(t.get("mount", "inverted_v"), f"{path}.mount", ("inverted_v", "flat"))
+    apex = r.length(r.required(t, "apex_height", path), f"{path}.apex_height")
+    end = apex if mount == "flat" else r.length(r.required(t, "end_height", path),
+                                                f"{path}.end_height")
+    if mount == "flat" and "end_height" in t:
+        r.bad(f"{path}.end_height", "a flat dipole has its ends at the apex height; "
+              "remove 'end_height' or use mount = \"inverted_v\"")
+    wire_key = r.required(t, "wire", path)
+    wire = None
+    if wire_key is not None:
+        wire = r.choice(wire_key, f"{path}.wire", tuple(wires)) and wires.get(wire_key)
+    elements_raw = r.required(t, "elements", path)
+    elements: list[ElementSpec] = []
+    if elements_raw is not None and not isinstance(elements_raw, list):
+        r.bad(f"{path}.elements", "expected a list of element tables ([[designs.NAME.elements]])")
+    elif elements_raw is not None:
+        if not elements_raw:
+            r.bad(f"{path}.elements", "a design needs at least one element")
+        for i, raw in enumerate(elements_raw):
+            e = _read_element(r, f"{path}.elements[{i}]", raw, region, end)
+            if e is not None:
+                elements.append(e)
+    if kind == "dipole" and len(elements) > 1:
+        r.bad(f"{path}.kind", f"'dipole' has one element but {len(elements)} are listed; "
+              "use kind = \"fan\" for several dipoles on one feed point")
+    keys = [e.key for e in elements]
+    for dup in sorted({k for k in keys if keys.count(k) > 1}):
+        r.bad(f"{path}.elements", f"two elements share the key '{dup}'; each band once per design")
+    if apex is not None:
+        for i, e in enumerate(elements):
+            if e.end_height_m > apex:
+                r.bad(f"{path}.elements[{i}].end_height" if e.end_height_m != end else
+                      f"{path}.end_height",
+                      f"end height {e.end_height_m:g} m is above the apex height {apex:g} m; "
+                      "the ends of an inverted V must be at or below the apex")
+    trim_text = t.get("trim_allowance", DEFAULTS["trim_allowance"])
+    trim = r.convert(trim_text, f"{path}.trim_allowance", _percent_or_length)
+    min_trim = r.convert(t.get("min_trim", DEFAULTS["min_trim"]), f"{path}.min_trim",
+                         _percent_or_length)
+    if min_trim is not None and min_trim[0] is None:
+        r.bad(f"{path}.min_trim", f"{t.get('min_trim')!r}: give the minimum trim as a "
+              "percentage, e.g. \"1 %\"")
+    lengths = {name: r.length(t.get(name, DEFAULTS[name]), f"{path}.{name}", allow_zero=True)
+               for name in ("termination", "feed_allowance", "cord_knot", "cord_hitch")}
+    coax = r.choice(t.get("coax", "rg58"), f"{path}.coax", _COAX)
+    coax_length = r.length(t.get("coax_length", "15 m"), f"{path}.coax_length")
+    angle = r.convert(t.get("tie_off_angle", 45.0), f"{path}.tie_off_angle",
+                      _number(float, 10.0, 80.0))
+    values = (kind, mount, apex, end, wire, trim, min_trim, coax, coax_length, angle,
+              *lengths.values())
+    if any(v is None for v in values) or len(elements) != len(elements_raw or []):
+        return None
+    assert trim is not None and min_trim is not None and min_trim[0] is not None
+    allowances = Allowances(trim[0], trim[1], min_trim[0], lengths["termination"],
+                            lengths["feed_allowance"], lengths["cord_knot"], lengths["cord_hitch"],
+                            "trim_allowance" in t)
+    return AntennaDesign(key, str(t.get("title", key)), kind, mount, apex, wire, tuple(elements),
+                         allowances, coax, coax_length, float(angle))
+
+
+def _read_kits(r: _Reader, raw: Any, designs: Mapping[str, AntennaDesign | None]) -> list[Kit]:
+    if not isinstance(raw, list) or not raw:
+        r.bad("kits", "expected one or more [[kits]] tables, each with 'design' and 'count'")
+        return []
+    entries = []
+    for i, table in enumerate(raw):
+        path = f"kits[{i}]"
+        t = r.keys(table, path, _KIT_KEYS)
+        design = r.choice(r.required(t, "design", path), f"{path}.design", tuple(designs))
+        count = r.convert(t.get("count", 1), f"{path}.count", _number(int, 1, 999))
+        builders = t.get("builders", [])
+        if not isinstance(builders, list) or not all(isinstance(b, str) for b in builders):
+            r.bad(f"{path}.builders", "expected a list of names (strings)")
+            builders = []
+        elif count is not None and len(builders) > count:
+            r.bad(f"{path}.builders", f"{len(builders)} names for {count} kits; "
+                  "list at most one builder per kit")
+        first = r.convert(t.get("first"), f"{path}.first", _number(int, 1, 999))
+        entries.append((design, count, builders, first, path))
+    total = sum(c for _, c, _, _, _ in entries if c)
+    width = max(2, len(str(total + max((f or 0) for *_, f, _ in entries))))
+    kits, used, number = [], set(), 1
+    for design, count, builders, first, path in entries:
+        if design is None or count is None:
+            continue
+        number = first if first is not None else number
+        for j in range(count):
+            kit_id = f"K{number:0{width}d}"
+            if kit_id in used:
+                r.bad(f"{path}.first", f"kit number {number} is used twice; choose another 'first'")
+            used.add(kit_id)
+            kits.append(Kit(kit_id, design, builders[j] if j < len(builders) else ""))
+            number += 1
+    return kits
+
+
+def read_spec_text(text: str, source: str = "spec.toml") -> Design:
+    """Validate spec ``text`` (TOML) and return the Design. Raises SpecError listing problems."""
+    r = _Reader(source)
+    try:
+        raw = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise SpecError([Problem(source, f"not valid TOML: {exc}")]) from None
+    r.keys(raw, "", _TOP_KEYS)
+    ev = r.keys(raw.get("event", {}), "event", _EVENT_KEYS)
+    if "event" not in raw:
+        r.bad("event", "missing; the [event] table (name, date, region, units, paper) is required")
+    region = r.choice(ev.get("region", 2), "event.region", bands.REGIONS) or 2
+    units = r.choice(ev.get("units", "metric"), "event.units", ("metric", "imperial"))
+    paper = r.choice(ev.get("paper", "a4"), "event.paper", ("a4", "letter"))
+    layout = r.choice(ev.get("layout", "per_kit"), "event.layout", ("per_kit", "per_design"))
+    url = ev.get("record_url")
+    if url is not None:
+        unknown = set(re.findall(r"{([^}]*)}", str(url))) - {"kit", "element", "leg"}
+        if unknown or not str(url).startswith(("http://", "https://")):
+            r.bad("event.record_url", f"{url!r}: must start with http:// or https:// and may use "
+                  "only the placeholders {kit}, {element}, {leg}")
+    event = Event(str(ev.get("name", "Build day")), str(ev.get("club", "")),
+                  str(ev.get("date", "")), region, units or "metric", paper or "a4",
+                  url, layout or "per_kit")
+
+    st = r.keys(raw.get("site", {}), "site", _SITE_KEYS)
+    ground_key = r.choice(st.get("ground", "medium_dry"), "site.ground", _GROUNDS)
+    ground = {"free_space": FREE_SPACE, "perfect": PERFECT_GROUND}.get(
+        ground_key or "", real_ground(ground_key) if ground_key in GROUND_CLASSES else FREE_SPACE)
+    site = Site(ground, r.length(st["width"], "site.width") if "width" in st else None,
+                r.length(st["depth"], "site.depth") if "depth" in st else None)
+
+    wires = dict(BUILTIN_WIRES)
+    wire_tables = raw.get("wires", {})
+    if isinstance(wire_tables, Mapping):
+        for key, table in wire_tables.items():
+            w = _read_wire(r, key, table)
+            if w is not None:
+                wires[key] = w
+    else:
+        r.bad("wires", "expected tables [wires.NAME]")
+
+    design_tables = raw.get("designs")
+    designs: dict[str, AntennaDesign | None] = {}
+    if not isinstance(design_tables, Mapping) or not design_tables:
+        r.bad("designs", "missing; define at least one [designs.NAME] table")
+    else:
+        for key, table in design_tables.items():
+            if not re.fullmatch(r"[A-Za-z0-9_-]{1,24}", key):
+                r.bad(f"designs.{key}", "design names use letters, digits, '-' or '_' (max 24)")
+            designs[key] = _read_design(r, key, table, wires, region)
+    kits = _read_kits(r, raw.get("kits"), designs)
+
+    lb = r.keys(raw.get("labels", {}), "labels", _LABEL_KEYS)
+    stock = _label_stock(r, lb.get("stock", "sheet-letter" if paper == "letter" else "sheet-a4"))
+    start = r.convert(lb.get("start_cell", 0), "labels.start_cell", _number(int, 0, 999))
+
+    ex = r.keys(raw.get("exposure", {}), "exposure", _EXPOSURE_KEYS)
+    exposure = ExposureSettings(
+        r.convert(ex.get("power", "100 W"), "exposure.power", _power, positive=True) or 100.0,
+        r.choice(ex.get("mode", "ssb"), "exposure.mode", _MODES) or "ssb",
+        r.convert(ex.get("transmit_fraction", 0.5), "exposure.transmit_fraction",
+                  _number(float, 0.0, 1.0)) or 0.5,
+        r.choice(ex.get("regime", "fcc"), "exposure.regime", ("fcc", "icnirp2020", "both")) or "fcc",
+    )
+    spools = []
+    stock_raw = raw.get("stock", [])
+    if not isinstance(stock_raw, list):
+        r.bad("stock", "expected [[stock]] tables with material, length, count")
+        stock_raw = []
+    for i, table in enumerate(stock_raw):
+        path = f"stock[{i}]"
+        t = r.keys(table, path, _STOCK_KEYS)
+        material = r.required(t, "material", path)
+        if material is not None and material not in wires and material != "cord":
+            r.choice(material, f"{path}.material", (*wires, "cord"))
+            material = None
+        length = r.length(r.required(t, "length", path), f"{path}.length")
+        count = r.convert(t.get("count", 1), f"{path}.count", _number(int, 1, 999))
+        if material is not None and length is not None and count is not None:
+            spools.append(SpoolSpec(material, length, count))
+
+    if r.problems:
+        raise SpecError(r.problems)
+    return Design(source, hashlib.sha256(text.encode()).hexdigest(), event, site, wires,
+                  tuple(d for d in designs.values() if d is not None), tuple(kits),
+                  LabelSettings(stock, start or 0), exposure, tuple(spools), tuple(r.warnings))
+
+
+def _label_stock(r: _Reader, value: Any) -> object:
+    from buildsheet import labels
+
+    if isinstance(value, str):
+        stock = r.choice(value, "labels.stock", tuple(labels.STOCKS))
+        return labels.STOCKS.get(stock) if stock else None
+    try:
+        return labels.stock_from_mapping(value, f"{r.source}: labels.stock")
+    except SpecError as exc:
+        r.problems.extend(exc.problems)
+        return None
+
+
+def load_spec(path: str | Path) -> Design:
+    """Read and validate the spec file at ``path``. Raises SpecError."""
+    p = Path(path)
+    try:
+        data = p.read_bytes()
+    except OSError as exc:
+        raise SpecError([Problem(str(p), f"cannot read the spec: {exc.strerror}")]) from None
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError:
+        raise SpecError([Problem(str(p), "the spec must be UTF-8 text")]) from None
+    return read_spec_text(text, p.name)

@@ -1,0 +1,657 @@
+"""Build-day logistics: spool cut plan (one-dimensional cutting stock) and bills of materials.
+
+Pure core: lengths in metres, no file or clock access. Two parts:
+
+* ``plan_spools``: assign every cut of the day to a spool or hank on hand. Objective, in order:
+  (1) cut as much of the needed length as the stock allows, (2) open the fewest spools,
+  (3) open the least total length (= least waste, since waste is the remainder of the spools
+  opened). Method: first-fit and best-fit decreasing (Johnson, "Near-optimal bin packing
+  algorithms", MIT thesis 1973; Coffman, Garey and Johnson, "Approximation algorithms for bin
+  packing: a survey", 1996) followed by a load-shifting improvement step (empty the least-loaded
+  spool by moves and swaps), and an exact branch-and-bound over set partitions when a material
+  has at most ``EXACT_MAX_CUTS`` cuts (in the spirit of Martello and Toth, "Knapsack Problems",
+  1990, ch. 8).
+* ``kit_bom`` / ``day_bom``: bill of materials per kit and for the day; CSV round trip.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+import re
+from collections import defaultdict
+from dataclasses import dataclass
+from typing import Iterable, Sequence
+
+from .errors import BuildError, Problem, SpecError
+
+#: Default cutting tolerance added to every cut, m (common practice: squaring the end and
+#: measuring error; builders cut long anyway).
+DEFAULT_TOLERANCE_M: float = 0.01
+#: Materials with at most this many cuts get an exact search.
+EXACT_MAX_CUTS: int = 10
+#: Node budget of the exact search (keeps the worst case well under a second).
+EXACT_NODE_BUDGET: int = 400_000
+#: Internal length quantum, m (micrometre integers avoid float ties in feasibility tests).
+_QUANTUM_M: float = 1e-6
+
+
+# --------------------------------------------------------------------------- data
+
+
+@dataclass(frozen=True)
+class Cut:
+    """One piece to cut: ``length_m`` is the finished length, m (the tolerance is added)."""
+
+    cut_id: str
+    material: str
+    length_m: float
+    label: str
+
+
+@dataclass(frozen=True)
+class StockItem:
+    """Spools or hanks on hand: ``count`` of them, each ``length_m`` long (m)."""
+
+    material: str
+    length_m: float
+    count: int
+    title: str
+
+
+@dataclass(frozen=True)
+class PlacedCut:
+    """A cut on a spool: it runs from ``start_m`` to ``mark_m`` measured from the spool start.
+
+    ``mark_m`` is the running "mark at" position, m; the piece is ``length_m + tolerance``.
+    """
+
+    cut: Cut
+    start_m: float
+    mark_m: float
+
+
+@dataclass(frozen=True)
+class SpoolUse:
+    """One opened spool: its cuts in cutting order and what is left on it (m)."""
+
+    spool_id: str
+    material: str
+    title: str
+    length_m: float
+    cuts: tuple[PlacedCut, ...]
+    used_m: float
+    remainder_m: float
+
+
+@dataclass(frozen=True)
+class ToBuy:
+    """What to buy for one material: ``short_m`` of wire (the unassigned cuts with tolerance).
+
+    ``spools`` whole spools of ``spool_length_m`` (the longest stocked size) hold the missing
+    cuts; both are None when no stocked size is long enough (``note`` says why).
+    """
+
+    material: str
+    short_m: float
+    spool_length_m: float | None
+    spools: int | None
+    note: str
+
+
+@dataclass(frozen=True)
+class MaterialPlan:
+    """Day totals for one material (m). ``lower_bound`` = fewest spools that could hold the
+    needed length, ceil(needed / spool length) for one spool size."""
+
+    material: str
+    spools_on_hand: int
+    spools_used: int
+    lower_bound: int
+    needed_m: float
+    opened_m: float
+    waste_m: float
+    method: str  # "exact" (search completed), "heuristic", or "none" (nothing to pack)
+    proven_optimal: bool  # exact search completed, or the plan meets the lower bound
+    unassigned: tuple[Cut, ...]
+    to_buy: ToBuy | None
+
+
+@dataclass(frozen=True)
+class SpoolPlan:
+    """The day's cut plan. Every cut carries ``tolerance_m`` (m) on top of its length."""
+
+    tolerance_m: float
+    spools: tuple[SpoolUse, ...]
+    materials: tuple[MaterialPlan, ...]
+
+    @property
+    def unassigned(self) -> tuple[Cut, ...]:
+        """Cuts the stock on hand cannot supply."""
+        return tuple(c for m in self.materials for c in m.unassigned)
+
+    @property
+    def to_buy(self) -> tuple[ToBuy, ...]:
+        """One line per short material."""
+        return tuple(m.to_buy for m in self.materials if m.to_buy is not None)
+
+    @property
+    def total_waste_m(self) -> float:
+        """Sum of the remainders of all opened spools, m."""
+        return math.fsum(m.waste_m for m in self.materials)
+
+
+# --------------------------------------------------------------------------- helpers
+
+
+def natural_key(text: str) -> tuple[tuple[int, int | str], ...]:
+    """Sort key that orders "K2" before "K10"."""
+    return tuple((0, int(p)) if p.isdigit() else (1, p) for p in re.split(r"(\d+)", text) if p)
+
+
+def _q(length_m: float) -> int:
+    """Length in integer micrometres."""
+    return int(round(length_m / _QUANTUM_M))
+
+
+def _match(loads: Sequence[int], caps: Sequence[int]) -> list[int] | None:
+    """Give each load a distinct spool, least total capacity: largest load first takes the
+    smallest spool that holds it (greedy is optimal for nested threshold constraints).
+    Returns spool indices per load, or None if impossible."""
+    free = sorted(range(len(caps)), key=lambda j: (caps[j], j))
+    out = [-1] * len(loads)
+    for i in sorted(range(len(loads)), key=lambda i: (-loads[i], i)):
+        pick = next((k for k, j in enumerate(free) if caps[j] >= loads[i]), None)
+        if pick is None:
+            return None
+        out[i] = free.pop(pick)
+    return out
+
+
+def lower_bound(needed_m: float, spool_lengths_m: Sequence[float]) -> int:
+    """Fewest spools whose lengths could add up to ``needed_m`` (m), ignoring how cuts split.
+
+    For one spool size L this is ceil(needed / L); with several sizes the longest are counted
+    first, and if the stock is short, more spools of the longest size are assumed.
+    """
+    need = _q(needed_m)
+    if need <= 0:
+        return 0
+    caps = sorted((_q(x) for x in spool_lengths_m), reverse=True)
+    if not caps:
+        return 0
+    total = 0
+    for k, c in enumerate(caps, start=1):
+        total += c
+        if total >= need:
+            return k
+    return len(caps) + -(-(need - total) // caps[0])
+
+
+# --------------------------------------------------------------------------- packing core
+
+
+@dataclass
+class _Packing:
+    bins: list[list[int]]  # item indices per bin
+    spool: list[int]  # spool index per bin
+    unassigned: list[int]
+
+
+def _key(p: _Packing, needs: Sequence[int], caps: Sequence[int]) -> tuple[int, int, int]:
+    """Objective: unassigned length, spools opened, length opened (smaller is better)."""
+    return (sum(needs[i] for i in p.unassigned), len(p.bins), sum(caps[s] for s in p.spool))
+
+
+def _greedy(needs: Sequence[int], caps: Sequence[int], fit: str, open_rule: str) -> _Packing:
+    """First-fit or best-fit decreasing over opened spools; open a new spool when nothing fits
+    (the longest unopened one, or the shortest that holds the cut)."""
+    order = sorted(range(len(needs)), key=lambda i: (-needs[i], i))
+    unopened = sorted(range(len(caps)), key=lambda j: (-caps[j], j))
+    bins: list[list[int]] = []
+    spool: list[int] = []
+    free: list[int] = []
+    unassigned: list[int] = []
+    for i in order:
+        n = needs[i]
+        choice = -1
+        if fit == "first":
+            choice = next((b for b, f in enumerate(free) if f >= n), -1)
+        else:
+            best = None
+            for b, f in enumerate(free):
+                if f >= n and (best is None or f < best):
+                    best, choice = f, b
+        if choice < 0:
+            fitting = [j for j in unopened if caps[j] >= n]
+            if not fitting:
+                unassigned.append(i)
+                continue
+            j = fitting[0] if open_rule == "longest" else fitting[-1]
+            unopened.remove(j)
+            bins.append([])
+            spool.append(j)
+            free.append(caps[j])
+            choice = len(bins) - 1
+        bins[choice].append(i)
+        free[choice] -= n
+    return _Packing(bins, spool, unassigned)
+
+
+def _improve(p: _Packing, needs: Sequence[int], caps: Sequence[int]) -> _Packing:
+    """Load shifting: try to empty the least-loaded spool by moving its cuts into the free
+    space of the others (best fit); where a cut does not fit, swap it for a shorter cut from
+    another spool that has room for the difference, which strictly lowers the target's load."""
+    bins = [list(b) for b in p.bins]
+    spool = list(p.spool)
+    while len(bins) > 1:
+        loads = [sum(needs[i] for i in b) for b in bins]
+        t = min(range(len(bins)), key=lambda b: (loads[b], -b))
+        free = [caps[spool[b]] - loads[b] for b in range(len(bins))]
+        emptied = False
+        for _ in range(4 * len(needs) + 8):
+            # Try to move every cut out of the target (tentatively).
+            trial_free = list(free)
+            moves: list[tuple[int, int]] = []
+            for i in sorted(bins[t], key=lambda i: (-needs[i], i)):
+                best = None
+                for b in range(len(bins)):
+                    if b != t and trial_free[b] >= needs[i] and (
+                            best is None or trial_free[b] < trial_free[best]):
+                        best = b
+                if best is None:
+                    break
+                trial_free[best] -= needs[i]
+                moves.append((i, best))
+            if len(moves) == len(bins[t]):
+                for i, b in moves:
+                    bins[b].append(i)
+                del bins[t]
+                del spool[t]
+                emptied = True
+                break
+            # Swap: cut x out of the target for a shorter y from b with room for x - y.
+            swap = None
+            gain = 0
+            for x in bins[t]:
+                for b in range(len(bins)):
+                    if b == t:
+                        continue
+                    for y in bins[b]:
+                        d = needs[x] - needs[y]
+                        if 0 < d <= free[b] and d > gain:
+                            swap, gain = (x, b, y), d
+            if swap is None:
+                break
+            x, b, y = swap
+            bins[t].remove(x)
+            bins[t].append(y)
+            bins[b].remove(y)
+            bins[b].append(x)
+            free[t] += gain
+            free[b] -= gain
+        if not emptied:
+            break
+    return _Packing(bins, spool, list(p.unassigned))
+
+
+def _downsize(p: _Packing, needs: Sequence[int], caps: Sequence[int]) -> _Packing:
+    """Re-choose which spool carries each group of cuts: least total length opened."""
+    loads = [sum(needs[i] for i in b) for b in p.bins]
+    m = _match(loads, caps)
+    if m is None:  # cannot happen for a feasible packing; keep it as it is
+        return p
+    return _Packing([list(b) for b in p.bins], m, list(p.unassigned))
+
+
+class _Stop(Exception):
+    """Ends the exact search (budget spent or a provably optimal plan found)."""
+
+
+def _exact(needs: Sequence[int], caps: Sequence[int], incumbent: _Packing,
+           budget: int = EXACT_NODE_BUDGET) -> tuple[_Packing, bool]:
+    """Branch and bound over set partitions of the cuts (each cut, longest first, joins an
+    earlier group, opens a new one, or, if stock is short, stays unassigned); groups are
+    matched to spools by ``_match``. Objective as ``_key``. Returns (plan, proven optimal)."""
+    n = len(needs)
+    order = sorted(range(n), key=lambda i: (-needs[i], i))
+    w = [needs[i] for i in order]
+    suffix = [0] * (n + 1)
+    for k in range(n - 1, -1, -1):
+        suffix[k] = suffix[k + 1] + w[k]
+    maxcap = max(caps)
+    uniform = len(set(caps)) == 1
+    best_key = list(_key(incumbent, needs, caps))
+    best_groups: list[tuple[list[int], list[int]]] = []
+    floor = lower_bound(suffix[0] * _QUANTUM_M, [c * _QUANTUM_M for c in caps])
+    loads: list[int] = []
+    member = [0] * n  # group per position in ``order``; -1 = unassigned
+    nodes = 0
+
+    def rec(k: int, lost: int) -> None:
+        nonlocal nodes
+        nodes += 1
+        if nodes > budget:
+            raise _Stop
+        if lost > best_key[0]:
+            return
+        nb = len(loads)
+        if lost == best_key[0]:  # the rest must all be placed: bound the spool count
+            extra = max(0, suffix[k] - sum(maxcap - x for x in loads))
+            if nb + -(-extra // maxcap) > best_key[1]:
+                return
+        if k == n:
+            m = _match(loads, caps)
+            if m is None:
+                return
+            key = [lost, nb, sum(caps[j] for j in m)]
+            if key < best_key:
+                best_key[:] = key
+                best_groups[:] = [(list(member), m)]
+                if lost == 0 and uniform and nb <= floor:
+                    raise _Stop
+            return
+        tried: set[int] = set()
+        for g in range(nb):
+            if loads[g] + w[k] <= maxcap and loads[g] not in tried:
+                tried.add(loads[g])
+                loads[g] += w[k]
+                member[k] = g
+                rec(k + 1, lost)
+                loads[g] -= w[k]
+        if nb < len(caps) and w[k] <= maxcap:
+            loads.append(w[k])
+            member[k] = nb
+            rec(k + 1, lost)
+            loads.pop()
+        member[k] = -1
+        rec(k + 1, lost + w[k])
+
+    proven = True
+    try:
+        rec(0, 0)
+    except _Stop:
+        proven = nodes <= budget
+    if not best_groups:
+        return incumbent, proven
+    groups, m = best_groups[0]
+    bins: list[list[int]] = [[] for _ in m]
+    unassigned = []
+    for k, g in enumerate(groups):
+        if g < 0:
+            unassigned.append(order[k])
+        else:
+            bins[g].append(order[k])
+    return _Packing(bins, list(m), sorted(unassigned)), proven
+
+
+def _pack(needs: Sequence[int], caps: Sequence[int]) -> tuple[_Packing, str, bool]:
+    """Best of the greedy variants after improvement; exact search for few cuts.
+    Returns (packing, method, proven optimal)."""
+    if not needs:
+        return _Packing([], [], []), "none", True
+    if not caps:
+        return _Packing([], [], list(range(len(needs)))), "none", True
+    candidates = []
+    for fit in ("first", "best"):
+        for rule in ("longest", "shortest"):
+            p = _downsize(_improve(_greedy(needs, caps, fit, rule), needs, caps), needs, caps)
+            candidates.append(p)
+    best = min(candidates, key=lambda p: _key(p, needs, caps))
+    method = "heuristic"
+    lb = lower_bound(sum(needs) * _QUANTUM_M, [c * _QUANTUM_M for c in caps])
+    if not best.unassigned and len(set(caps)) == 1 and len(best.bins) <= lb:
+        return best, method, True  # meets the lower bound
+    proven = False
+    if len(needs) <= EXACT_MAX_CUTS:
+        best, proven = _exact(needs, caps, best)
+        method = "exact" if proven else "heuristic"
+    return best, method, proven
+
+
+# --------------------------------------------------------------------------- public planner
+
+
+def _check(cuts: Sequence[Cut], stock: Sequence[StockItem], tolerance_m: float) -> None:
+    problems: list[Problem] = []
+    if not (tolerance_m >= 0.0 and math.isfinite(tolerance_m)):
+        problems.append(Problem("spool plan", f"cutting tolerance {tolerance_m!r} m: must be >= 0"))
+    seen: set[str] = set()
+    for c in cuts:
+        if c.cut_id in seen:
+            problems.append(Problem(f"cut {c.cut_id}", "duplicate cut ID"))
+        seen.add(c.cut_id)
+        if not (c.length_m > 0.0 and math.isfinite(c.length_m)):
+            problems.append(Problem(f"cut {c.cut_id}", f"length {c.length_m!r} m: must be > 0"))
+    for s in stock:
+        if not (s.length_m > 0.0 and math.isfinite(s.length_m)):
+            problems.append(Problem(f"stock {s.title}", f"length {s.length_m!r} m: must be > 0"))
+        if s.count < 0:
+            problems.append(Problem(f"stock {s.title}", f"count {s.count}: must be >= 0"))
+    if problems:
+        raise BuildError(problems)
+
+
+def plan_spools(cuts: Iterable[Cut], stock: Iterable[StockItem], *,
+                tolerance_m: float = DEFAULT_TOLERANCE_M) -> SpoolPlan:
+    """Assign cuts to spools on hand, per material (lengths in m).
+
+    Each cut occupies ``length_m + tolerance_m`` on its spool. Spools of one material may have
+    different lengths (e.g. a part-used spool): the planner first minimises the number opened,
+    then the total length opened, so a shorter spool is preferred whenever it holds the same
+    cuts. Spools are numbered per material in the order the stock lists them
+    ("<material>#1", ...). Cuts on a spool are listed in natural ID order with running marks.
+    """
+    cuts = tuple(cuts)
+    stock = tuple(stock)
+    _check(cuts, stock, tolerance_m)
+    by_mat: dict[str, list[Cut]] = defaultdict(list)
+    for c in cuts:
+        by_mat[c.material].append(c)
+    spools_by_mat: dict[str, list[tuple[str, str, float]]] = defaultdict(list)
+    for s in stock:
+        for _ in range(s.count):
+            k = len(spools_by_mat[s.material]) + 1
+            spools_by_mat[s.material].append((f"{s.material}#{k}", s.title, s.length_m))
+    uses: list[SpoolUse] = []
+    mats: list[MaterialPlan] = []
+    for mat in sorted(set(by_mat) | set(spools_by_mat)):
+        mcuts = sorted(by_mat.get(mat, []), key=lambda c: natural_key(c.cut_id))
+        mspools = spools_by_mat.get(mat, [])
+        needs = [_q(c.length_m + tolerance_m) for c in mcuts]
+        caps = [_q(s[2]) for s in mspools]
+        packing, method, proven = _pack(needs, caps)
+        opened: list[SpoolUse] = []
+        for b, j in sorted(zip(packing.bins, packing.spool), key=lambda bj: bj[1]):
+            sid, title, length = mspools[j]
+            pos = 0.0
+            placed = []
+            for i in sorted(b, key=lambda i: natural_key(mcuts[i].cut_id)):
+                start = pos
+                pos = start + mcuts[i].length_m + tolerance_m
+                placed.append(PlacedCut(mcuts[i], start, pos))
+            opened.append(SpoolUse(sid, mat, title, length, tuple(placed), pos, length - pos))
+        uses.extend(opened)
+        unassigned = tuple(mcuts[i] for i in sorted(packing.unassigned))
+        needed = math.fsum(c.length_m + tolerance_m for c in mcuts)
+        mats.append(MaterialPlan(
+            material=mat, spools_on_hand=len(mspools), spools_used=len(opened),
+            lower_bound=lower_bound(needed, [s[2] for s in mspools]),
+            needed_m=needed, opened_m=math.fsum(u.length_m for u in opened),
+            waste_m=math.fsum(u.remainder_m for u in opened), method=method,
+            proven_optimal=proven,
+            unassigned=unassigned,
+            to_buy=_to_buy(mat, unassigned, tolerance_m, [s[2] for s in mspools])))
+    return SpoolPlan(tolerance_m, tuple(uses), tuple(mats))
+
+
+def _to_buy(material: str, unassigned: Sequence[Cut], tolerance_m: float,
+            lengths: Sequence[float]) -> ToBuy | None:
+    """Wire to buy for the cuts the stock cannot supply, in whole spools of the longest size."""
+    if not unassigned:
+        return None
+    pieces = [c.length_m + tolerance_m for c in unassigned]
+    short = math.fsum(pieces)
+    if not lengths:
+        return ToBuy(material, short, None, None, "none on hand: choose a spool size")
+    size = max(lengths)
+    if max(pieces) > size + _QUANTUM_M:
+        return ToBuy(material, short, None, None,
+                     f"a cut of {max(pieces):.2f} m is longer than any spool on hand")
+    needs = [_q(x) for x in pieces]
+    p = _greedy(needs, [_q(size)] * len(needs), "best", "longest")
+    return ToBuy(material, short, size, len(p.bins), "")
+
+
+# --------------------------------------------------------------------------- bill of materials
+
+
+@dataclass(frozen=True)
+class BomLine:
+    """One line of a bill of materials; ``unit`` is "m" (lengths) or "pcs"."""
+
+    category: str
+    item: str
+    quantity: float
+    unit: str
+    note: str
+
+
+@dataclass(frozen=True)
+class WireNeed:
+    """Leg cut lengths (finished, m) for one wire type, described generically by ``title``."""
+
+    title: str
+    leg_lengths_m: tuple[float, ...]
+
+
+@dataclass(frozen=True)
+class KitNeeds:
+    """Plain quantities for one kit, filled from the design. Lengths in m."""
+
+    kit_id: str
+    wires: tuple[WireNeed, ...]
+    tie_off_cords_m: tuple[float, ...]
+    elements: int
+    legs: int
+    end_insulators: int
+    stakes: int
+    winders: int
+    coax_length_m: float
+    coax_type: str = "RG-58"
+    coax_connectors: int = 2
+    crimp_ring_terminals: int = 0  # usually one per leg
+    quick_disconnects: int = 0  # usually one per leg
+    quick_disconnect_item: str = "snap swivel"
+    hang_loop_cord_m: float = 1.0
+    balun_loop_cord_m: float = 0.0
+    spare_cord_fraction: float = 0.10
+    baluns: int = 1
+    cord_title: str = "braided polyester cord, 3-5 mm"
+    cutting_tolerance_m: float = DEFAULT_TOLERANCE_M
+
+
+_STAKE_NOTE = ("drive leaning 45-60 degrees away from the load; double-stake in soft ground; "
+               "follow site rules and local practice")
+
+
+def kit_bom(needs: KitNeeds) -> tuple[BomLine, ...]:
+    """Bill of materials for one kit; lines with zero quantity are left out."""
+    tol = needs.cutting_tolerance_m
+    tol_mm = f"{tol * 1000:.0f} mm"
+    lines: list[BomLine] = []
+    for w in needs.wires:
+        total = math.fsum(x + tol for x in w.leg_lengths_m)
+        lines.append(BomLine("wire", w.title, round(total, 6), "m",
+                             f"antenna legs; each cut includes {tol_mm} cutting tolerance"))
+    cord = needs.cord_title
+    tie = math.fsum(needs.tie_off_cords_m)
+    cord_total = tie + needs.hang_loop_cord_m + needs.balun_loop_cord_m
+    spare = cord_total * needs.spare_cord_fraction
+    lines += [
+        BomLine("cord", f"{cord}, tie-offs", round(tie, 6), "m",
+                "insulator to stake; bowline at the insulator, taut-line hitch at the stake"),
+        BomLine("cord", f"{cord}, hang loop", round(needs.hang_loop_cord_m, 6), "m", "at the feed"),
+        BomLine("cord", f"{cord}, balun loops", round(needs.balun_loop_cord_m, 6), "m",
+                "strain relief at the balun"),
+        BomLine("cord", f"{cord}, spare", round(spare, 6), "m",
+                f"{needs.spare_cord_fraction * 100:.0f} % of the cord above"),
+        BomLine("hardware", "end insulator, plastic or ceramic", needs.end_insulators, "pcs",
+                "one per leg end"),
+        BomLine("hardware", needs.quick_disconnect_item, needs.quick_disconnects, "pcs",
+                "quick disconnect, one per leg"),
+        BomLine("hardware", "ground stake, steel", needs.stakes, "pcs", _STAKE_NOTE),
+        BomLine("hardware", "wire winder", needs.winders, "pcs", "one per element"),
+        BomLine("connectors", "crimp ring terminal to suit the wire and balun studs",
+                needs.crimp_ring_terminals, "pcs", "one per leg"),
+        BomLine("feed", "1:1 current balun, leg terminals and coax socket", needs.baluns, "pcs",
+                "at the feed point"),
+        BomLine("feed", f"{needs.coax_type} coaxial cable", round(needs.coax_length_m, 6), "m",
+                "feed line"),
+        BomLine("connectors", f"coax plug for {needs.coax_type}", needs.coax_connectors, "pcs",
+                "type to suit the radio and the balun"),
+    ]
+    return tuple(line for line in lines if line.quantity > 0)
+
+
+def day_bom(kit_boms: Iterable[Sequence[BomLine]]) -> tuple[BomLine, ...]:
+    """Totals over kits: lines with the same category, item and unit are summed. A note is
+    kept when every kit has the same one, else replaced by "summed over kits"."""
+    order: list[tuple[str, str, str]] = []
+    qty: dict[tuple[str, str, str], list[float]] = {}
+    notes: dict[tuple[str, str, str], set[str]] = {}
+    for bom in kit_boms:
+        for line in bom:
+            k = (line.category, line.item, line.unit)
+            if k not in qty:
+                order.append(k)
+                qty[k], notes[k] = [], set()
+            qty[k].append(line.quantity)
+            notes[k].add(line.note)
+    return tuple(
+        BomLine(c, i, math.fsum(qty[(c, i, u)]), u,
+                next(iter(notes[(c, i, u)])) if len(notes[(c, i, u)]) == 1 else "summed over kits")
+        for c, i, u in order)
+
+
+_CSV_HEADER = ["category", "item", "quantity", "unit", "note"]
+
+
+def _fmt_qty(q: float) -> str:
+    """Shortest text that reads back to the same float (integers without a decimal point)."""
+    return str(int(q)) if float(q).is_integer() and abs(q) < 1e15 else repr(float(q))
+
+
+def bom_to_csv(lines: Iterable[BomLine]) -> str:
+    """CSV text (RFC 4180 quoting, header row); quantities written to round-trip exactly."""
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\r\n")
+    w.writerow(_CSV_HEADER)
+    for line in lines:
+        w.writerow([line.category, line.item, _fmt_qty(line.quantity), line.unit, line.note])
+    return buf.getvalue()
+
+
+def bom_from_csv(text: str, *, source: str = "bom.csv") -> tuple[BomLine, ...]:
+    """Read CSV written by ``bom_to_csv``; problems raise SpecError with the line number."""
+    rows = list(csv.reader(io.StringIO(text, newline="")))
+    if not rows or rows[0] != _CSV_HEADER:
+        raise SpecError([Problem(f"{source}:1", f"header must be {','.join(_CSV_HEADER)}")])
+    out: list[BomLine] = []
+    problems: list[Problem] = []
+    for n, row in enumerate(rows[1:], start=2):
+        if not row:
+            continue
+        if len(row) != len(_CSV_HEADER):
+            problems.append(Problem(f"{source}:{n}", f"{len(row)} fields, expected 5"))
+            continue
+        try:
+            q = float(row[2])
+        except ValueError:
+            problems.append(Problem(f"{source}:{n}", f"quantity {row[2]!r} is not a number"))
+            continue
+        out.append(BomLine(row[0], row[1], q, row[3], row[4]))
+    if problems:
+        raise SpecError(problems)
+    return tuple(out)

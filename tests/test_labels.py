@@ -1,0 +1,403 @@
+"""Winder labels: stock validation, QR payloads, fit check, and the rendered PDF.
+
+External references: QR codes are decoded with zxing-cpp, PDF text and content operators are
+read with pypdf, pages are rasterised with pypdfium2; QR geometry from ISO/IEC 18004.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import re
+import urllib.parse
+
+import numpy as np
+import pypdfium2 as pdfium
+import pytest
+import segno
+import zxingcpp
+from pypdf import PdfReader
+from pypdf.generic import ContentStream
+
+from buildsheet.errors import BuildError, SpecError
+from buildsheet.labels import (
+    MM_PER_PT,
+    STOCKS,
+    LabelContent,
+    LabelStock,
+    check_fit,
+    layout_label,
+    make_symbol,
+    offline_record,
+    record_url,
+    resolve_stock,
+    stock_from_mapping,
+)
+from buildsheet.render.labels import render_labels
+
+URL_TEMPLATE = "https://club.example.org/records/{kit}/{element}/{leg}.html"
+BANDS = (
+    ("75m", "3.800 MHz", "19.12 m / 62 ft 8 3/4 in"),
+    ("40m", "7.150 MHz", "10.43 m / 34 ft 2 5/8 in"),
+)
+
+
+def make_labels(kits: int = 4, start: int = 1) -> list[LabelContent]:
+    """Labels for ``kits`` kits of a 75 m + 40 m fan; odd kits get offline records, even URLs."""
+    out = []
+    for k in range(start, start + kits):
+        kit = f"K{k:02d}"
+        for band, freq, cut in BANDS:
+            element = f"{kit}-{band}"
+            for leg in "AB":
+                leg_id = f"{element}-{leg}"
+                if k % 2:
+                    payload = offline_record(leg_id, band, freq, cut, kit, 3)
+                else:
+                    payload = record_url(URL_TEMPLATE, kit, element, leg_id)
+                out.append(LabelContent(kit, element, leg_id, leg, band, freq, cut, payload,
+                                        ("Ridge County ARES",)))
+    return out
+
+
+def render_bytes(labels, stock, **kw) -> bytes:
+    buf = io.BytesIO()
+    render_labels(labels, stock, buf, **kw)
+    return buf.getvalue()
+
+
+def layouts(labels, stock):
+    return [
+        layout_label(stock.label_width, stock.label_height,
+                     make_symbol(lb.payload).symbol_size(border=0)[0])
+        for lb in labels
+    ]
+
+
+def raster_scale(labels, stock) -> float:
+    """pdfium scale (px per pt) giving at least 5 px per QR module."""
+    smallest = min(lay.module for lay in layouts(labels, stock))
+    return 5.0 * MM_PER_PT / smallest
+
+
+def pages_as_gray(pdf: bytes, scale: float) -> list[np.ndarray]:
+    doc = pdfium.PdfDocument(pdf)
+    try:
+        return [np.asarray(page.render(scale=scale).to_pil().convert("L")) for page in doc]
+    finally:
+        doc.close()
+
+
+def cell_pixels(img: np.ndarray, stock: LabelStock, cell: int, scale: float) -> np.ndarray:
+    px = scale / MM_PER_PT  # px per mm
+    left, top = stock.cell_origin(cell)
+    x0, y0 = round(left * px), round(top * px)
+    return img[y0:y0 + round(stock.label_height * px), x0:x0 + round(stock.label_width * px)]
+
+
+def decode(pixels: np.ndarray) -> list:
+    from PIL import Image
+
+    return zxingcpp.read_barcodes(Image.fromarray(pixels))
+
+
+# --- payload builders ----------------------------------------------------------------------
+
+
+def test_record_url_fills_placeholders_and_percent_encodes():
+    url = record_url(URL_TEMPLATE, "K03", "K03-40m", "K03-40m-A")
+    assert url == "https://club.example.org/records/K03/K03-40m/K03-40m-A.html"
+    # A space and a slash in an ID must not break the path: RFC 3986 sec. 2.1 percent-encoding.
+    url = record_url("https://x.example/{leg}", "K 1", "K 1/40m", "K 1/40m-A")
+    assert urllib.parse.urlsplit(url).path == "/K%201%2F40m-A"
+    assert urllib.parse.unquote(urllib.parse.urlsplit(url).path[1:]) == "K 1/40m-A"
+
+
+@pytest.mark.parametrize("template", [
+    "https://x.example/{kitt}/{leg}", "https://x.example/{0}", "https://x.example/{leg!r}",
+    "https://x.example/{leg:>5}", "https://x.example/{leg",
+])
+def test_record_url_rejects_unknown_placeholders(template):
+    with pytest.raises(SpecError) as info:
+        record_url(template, "K03", "K03-40m", "K03-40m-A", where="event.record_url")
+    msg = str(info.value)
+    assert msg.startswith("event.record_url:")
+    assert "{kit}, {element}, {leg}" in msg
+
+
+def test_offline_record_is_compact_and_complete():
+    rec = offline_record("K03-40m-A", "40m", "7.150 MHz", "10.43 m / 34 ft 2 5/8 in", "K03", 12)
+    assert len(rec) < 120  # brief: short enough for a small symbol
+    for part in ("K03-40m-A", "40m", "7.150 MHz", "10.43 m / 34 ft 2 5/8 in", "K03", "12"):
+        assert part in rec
+    # Capacity tables of ISO/IEC 18004 Table 7 (via segno): fits version 7 (45 modules) at Q.
+    assert segno.make_qr(rec, error="q", boost_error=False).version <= 7
+
+
+# --- stock ---------------------------------------------------------------------------------
+
+
+def test_builtin_stocks_fit_their_pages_and_validate_as_custom():
+    for name, stock in STOCKS.items():
+        assert resolve_stock(name, "labels.stock") is stock
+        d = {"name": name, "page_width_mm": stock.page_width, "page_height_mm": stock.page_height,
+             "rows": stock.rows, "columns": stock.columns, "label_width_mm": stock.label_width,
+             "label_height_mm": stock.label_height, "left_margin_mm": stock.left_margin,
+             "top_margin_mm": stock.top_margin, "h_pitch_mm": stock.h_pitch,
+             "v_pitch_mm": stock.v_pitch}
+        assert stock_from_mapping(d, "labels.stock") == stock
+        last_left, last_top = stock.cell_origin(stock.cells_per_page - 1)
+        assert last_left + stock.label_width <= stock.page_width
+        assert last_top + stock.label_height <= stock.page_height
+    # Paper sizes from memory: A4 210 x 297 mm (ISO 216), Letter 8.5 x 11 in = 215.9 x 279.4 mm.
+    assert (STOCKS["sheet-a4"].page_width, STOCKS["sheet-a4"].page_height) == (210, 297)
+    assert STOCKS["sheet-letter"].page_width == pytest.approx(8.5 * 25.4)
+    assert STOCKS["sheet-letter"].page_height == pytest.approx(11 * 25.4)
+
+
+def test_custom_stock_defaults_and_named_page():
+    stock = stock_from_mapping({"page": "Letter", "rows": 2, "columns": 2,
+                                "label_width_mm": 100, "label_height_mm": 60}, "s")
+    assert stock.page_width == pytest.approx(215.9)
+    assert (stock.h_pitch, stock.v_pitch, stock.left_margin) == (100, 60, 0)
+
+
+def test_custom_stock_reports_every_problem_at_once():
+    d = {"page_width_mm": 210, "page_height_mm": -5, "rows": 0, "columns": 2.5,
+         "label_width_mm": "70", "label_height_mm": 37, "top_margn_mm": 4}
+    with pytest.raises(SpecError) as info:
+        stock_from_mapping(d, "labels.stock")
+    wheres = {p.where for p in info.value.problems}
+    assert {"labels.stock.page_height_mm", "labels.stock.rows", "labels.stock.columns",
+            "labels.stock.label_width_mm", "labels.stock.top_margn_mm"} <= wheres
+    text = str(info.value)
+    assert "-5" in text and "'70'" in text and "did you mean 'top_margin_mm'" in text
+
+
+def test_custom_stock_must_fit_the_page_and_not_overlap():
+    d = {"page": "A4", "rows": 8, "columns": 3, "label_width_mm": 70, "label_height_mm": 37,
+         "left_margin_mm": 5, "top_margin_mm": 5, "v_pitch_mm": 30}
+    with pytest.raises(SpecError) as info:
+        stock_from_mapping(d, "labels.stock")
+    problems = {p.where: p.message for p in info.value.problems}
+    # 5 + 2*70 + 70 = 215 > 210 (arithmetic): columns overflow the page width.
+    assert "215" in problems["labels.stock.columns"]
+    assert "overlap" in problems["labels.stock.v_pitch_mm"]
+
+
+def test_unknown_builtin_stock_suggests():
+    with pytest.raises(SpecError, match="did you mean 'sheet-a4'"):
+        resolve_stock("sheet-A4", "labels.stock")
+
+
+# --- fit check -----------------------------------------------------------------------------
+
+
+def test_fit_error_on_small_stock_says_what_would_fit():
+    payload = offline_record("K03-40m-A", "40m", "7.150 MHz", "10.43 m / 34 ft 2 5/8 in",
+                             "K03", 3)
+    small = stock_from_mapping({"page_width_mm": 40, "page_height_mm": 20, "rows": 1,
+                                "columns": 1, "label_width_mm": 40, "label_height_mm": 20},
+                               "labels.stock")
+    with pytest.raises(SpecError) as info:
+        check_fit(small, [payload, "short"])
+    msg = str(info.value)
+    # Version from an independent encoder (segno follows ISO/IEC 18004 Table 7 capacities).
+    version = segno.make_qr(payload, error="q", boost_error=False).version
+    span = 17 + 4 * version + 8  # ISO/IEC 18004 clause 6.3.1 size + 2 x 4-module quiet zone
+    assert f"version {version}" in msg and f"{span * 0.5:.1f} mm square" in msg
+    sizes = re.findall(r"(\d+\.\d) x (\d+\.\d) mm \(QR (beside|above)", msg)
+    assert len(sizes) == 2
+    for w, h, _ in sizes:  # each suggested label really fits
+        ok = stock_from_mapping({"page_width_mm": float(w), "page_height_mm": float(h),
+                                 "rows": 1, "columns": 1, "label_width_mm": float(w),
+                                 "label_height_mm": float(h)}, "s")
+        check_fit(ok, [payload])
+        # ... and 2 mm less in either direction does not.
+        for dw, dh in ((2, 0), (0, 2)):
+            tight = LabelStock("t", 300, 300, 1, 1, float(w) - dw, float(h) - dh, 0, 0,
+                               float(w) - dw, float(h) - dh)
+            with pytest.raises(SpecError):
+                check_fit(tight, [payload])
+
+
+def test_fit_check_rejects_low_error_correction_and_huge_payloads():
+    with pytest.raises(SpecError, match="Q or better"):
+        check_fit(STOCKS["roll"], ["x"], ec="m")
+    with pytest.raises(SpecError, match="too long for any QR symbol"):
+        check_fit(STOCKS["roll"], ["x" * 3000])  # byte capacity at 40-Q is 1663 (ISO/IEC 18004)
+
+
+def test_render_refuses_too_small_stock_and_leaves_no_file(tmp_path):
+    tiny = LabelStock("tiny", 30, 20, 1, 1, 30, 20, 0, 0, 30, 20)
+    target = tmp_path / "labels.pdf"
+    with pytest.raises(SpecError, match="would fit"):
+        render_labels(make_labels(1), tiny, target)
+    assert list(tmp_path.iterdir()) == []
+
+
+# --- rendered PDF --------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("name", sorted(STOCKS))
+def test_every_qr_decodes_to_its_label(name):
+    stock = STOCKS[name]
+    labels = make_labels(4)  # 16 labels: 2 pages on the letter sheet, 16 on the roll
+    pdf = render_bytes(labels, stock)
+    scale = raster_scale(labels, stock)
+    pages = pages_as_gray(pdf, scale)
+    assert len(pages) == math.ceil(len(labels) / stock.cells_per_page)
+    for i, label in enumerate(labels):
+        page, cell = divmod(i, stock.cells_per_page)
+        found = decode(cell_pixels(pages[page], stock, cell, scale))
+        assert [r.text for r in found] == [label.payload]  # zxing-cpp decode
+        assert found[0].ec_level in ("Q", "H")  # decoder reports level Q or better
+    # Whole pages too: every payload found once, none extra.
+    decoded = sorted(r.text for img in pages for r in decode(img))
+    assert decoded == sorted(lb.payload for lb in labels)
+
+
+def test_url_payloads_match_generated_record_addresses():
+    labels = make_labels(2)
+    pdf = render_bytes(labels, STOCKS["sheet-a4"])
+    scale = raster_scale(labels, STOCKS["sheet-a4"])
+    (img,) = pages_as_gray(pdf, scale)
+    urls = {r.text for r in decode(img) if r.text.startswith("https://")}
+    assert urls == {f"https://club.example.org/records/K02/K02-{b}/K02-{b}-{leg}.html"
+                    for b in ("75m", "40m") for leg in "AB"}
+
+
+def test_text_extracts_with_every_id():
+    labels = make_labels(4)
+    stock = STOCKS["sheet-letter"]
+    reader = PdfReader(io.BytesIO(render_bytes(labels, stock, title="Ridge County build day")))
+    assert reader.metadata.title == "Ridge County build day"
+    texts = [page.extract_text() for page in reader.pages]  # pypdf text extraction
+    for i, label in enumerate(labels):
+        text = texts[i // stock.cells_per_page]
+        for part in (label.leg_id, label.band_name, label.frequency_text, f"LEG {label.leg}",
+                     f"KIT {label.kit_id}", "Ridge County ARES"):
+            assert part in text
+        metric, imperial = label.cut_length_text.split(" / ")
+        assert metric in text and imperial in text
+
+
+def test_start_cell_skips_cells_of_a_partly_used_sheet():
+    stock = STOCKS["sheet-a4"]
+    labels = make_labels(1)  # 4 labels
+    buf = io.BytesIO()
+    assert render_labels(labels, stock, buf, start_cell=22) == 2
+    scale = raster_scale(labels, stock)
+    pages = pages_as_gray(buf.getvalue(), scale)
+    assert len(pages) == 2
+    for cell in range(22):
+        assert cell_pixels(pages[0], stock, cell, scale).min() > 250  # untouched cells blank
+    order = [(0, 22), (0, 23), (1, 0), (1, 1)]
+    for label, (page, cell) in zip(labels, order, strict=True):
+        assert [r.text for r in decode(cell_pixels(pages[page], stock, cell, scale))] == [
+            label.payload]
+    assert cell_pixels(pages[1], stock, 2, scale).min() > 250
+    for bad in (-1, 24):
+        with pytest.raises(SpecError, match="start cell"):
+            render_labels(labels, stock, io.BytesIO(), start_cell=bad)
+
+
+@pytest.mark.parametrize("name", sorted(STOCKS))
+def test_module_size_and_quiet_zone(name):
+    stock = STOCKS[name]
+    labels = make_labels(2)
+    for lay in layouts(labels, stock):  # from the layout
+        assert lay.module >= 0.5
+        assert lay.qr.width == pytest.approx((lay.modules + 8) * lay.module)
+        assert lay.quiet_zone == pytest.approx(4 * lay.module)  # ISO/IEC 18004 cl. 9.1: 4X
+        assert lay.qr.x >= 0 and lay.qr.x + lay.qr.width <= stock.label_width
+        assert lay.qr.y >= 0 and lay.qr.y + lay.qr.height <= stock.label_height
+        assert (lay.text.x + lay.text.width <= lay.qr.x
+                or lay.text.y >= lay.qr.y + lay.qr.height)  # text clear of the quiet zone
+    # ... and measured on the raster: the dark symbol's extent and a white quiet zone.
+    scale = raster_scale(labels, stock)
+    px = scale / MM_PER_PT
+    pages = pages_as_gray(render_bytes(labels, stock), scale)
+    for i, (label, lay) in enumerate(zip(labels, layouts(labels, stock), strict=True)):
+        page, cell = divmod(i, stock.cells_per_page)
+        pixels = cell_pixels(pages[page], stock, cell, scale)
+        (result,) = decode(pixels)
+        modules = 17 + 4 * int(result.extra["Version"])  # ISO/IEC 18004 cl. 6.3.1
+        x0, y0 = round(lay.qr.x * px), round(lay.qr.y * px)
+        box = pixels[y0:y0 + round(lay.qr.width * px), x0:x0 + round(lay.qr.width * px)]
+        ys, xs = np.nonzero(box < 128)
+        width_mm = (xs.max() - xs.min() + 1) / px
+        height_mm = (ys.max() - ys.min() + 1) / px
+        assert width_mm / modules >= 0.5 - 1 / px  # module >= 0.5 mm within a pixel
+        assert width_mm == pytest.approx(height_mm, abs=2 / px)
+        quiet_left, quiet_top = xs.min() / px, ys.min() / px
+        quiet_right = (box.shape[1] - 1 - xs.max()) / px
+        quiet_bottom = (box.shape[0] - 1 - ys.max()) / px
+        for q in (quiet_left, quiet_top, quiet_right, quiet_bottom):
+            assert q >= 4 * width_mm / modules - 2 / px  # 4 modules of white, 2 px tolerance
+
+
+def _operations(pdf: bytes):
+    reader = PdfReader(io.BytesIO(pdf))
+    for page in reader.pages:
+        yield from ContentStream(page.get_contents(), reader).operations
+
+
+def test_weatherproof_drawing_rules_in_the_content_stream():
+    labels = make_labels(2)
+    sizes, band_sizes = [], []
+    font_size = None
+    for operands, op in _operations(render_bytes(labels, STOCKS["sheet-a4"])):
+        if op in (b"S", b"s", b"B", b"B*", b"b", b"b*"):  # stroking (PDF 32000-1 8.5.3)
+            raise AssertionError(f"stroke operator {op!r} found; labels must use fills only")
+        if op == b"w":
+            assert float(operands[0]) >= 0.5  # no hairlines
+        if op in (b"g", b"G"):
+            assert float(operands[0]) in (0.0, 1.0)
+        if op in (b"rg", b"RG", b"k", b"K"):
+            values = {float(v) for v in operands}
+            assert values in ({0.0}, {1.0}) or (op in (b"k", b"K") and values == {0.0, 1.0}
+                                                and float(operands[3]) == 1.0)
+        if op == b"Tf":
+            font_size = float(operands[1])
+            sizes.append(font_size)
+        if op == b"Tj" and str(operands[0]) in ("75m", "40m"):
+            band_sizes.append(font_size)
+        if op == b"Tm":
+            assert [float(v) for v in operands[:4]] == [1, 0, 0, 1]  # no scaling of text
+    assert min(sizes) >= 7.0  # minimum text 7 pt
+    assert len(band_sizes) == len(labels) and min(band_sizes) >= 14.0  # band in large type
+
+
+def test_output_is_reproducible_and_written_atomically(tmp_path):
+    labels = make_labels(3)
+    first = render_bytes(labels, STOCKS["sheet-a4"], title="t")
+    assert first == render_bytes(labels, STOCKS["sheet-a4"], title="t")
+    target = tmp_path / "labels.pdf"
+    target.write_bytes(b"old")
+    assert render_labels(labels, STOCKS["sheet-a4"], target, title="t") == 1
+    assert target.read_bytes() == first
+    assert [p.name for p in tmp_path.iterdir()] == ["labels.pdf"]  # no temp file left
+
+
+def test_unwritable_folder_is_a_build_error(tmp_path):
+    with pytest.raises(BuildError, match="cannot write"):
+        render_labels(make_labels(1), STOCKS["roll"], tmp_path / "missing" / "labels.pdf")
+
+
+def test_text_that_cannot_fit_is_reported_per_label():
+    label = make_labels(1)[0]
+    long = LabelContent(label.kit_id, label.element_id, label.leg_id, label.leg,
+                        label.band_name, label.frequency_text, label.cut_length_text,
+                        label.payload, ("x" * 80,))
+    with pytest.raises(SpecError, match=r"labels\[0\] K01-75m-A"):
+        render_labels([long], STOCKS["roll"], io.BytesIO())
+
+
+def test_error_correction_h_renders_and_decodes_as_h():
+    labels = make_labels(1)
+    pdf = render_bytes(labels, STOCKS["roll"], ec="h")
+    scale = raster_scale(labels, STOCKS["roll"]) * 1.3  # H symbols are larger
+    for img in pages_as_gray(pdf, scale):
+        (result,) = decode(img)
+        assert result.ec_level == "H"  # zxing-cpp reports the level it decoded
