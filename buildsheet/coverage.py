@@ -339,7 +339,7 @@ class NvisFigures:
 def nvis_figures(sc: SegmentCurrents, ground: Ground, az_step_deg: float = 5.0) -> NvisFigures:
     """Zenith gain, high-angle power shares, main lobe and ground-loss share for one band."""
     budget = power_budget(sc, ground)
-    elev = np.arange(0.0, 90.0 + 0.25, 0.5)
+    elev = np.arange(0.0, 90.0 + 0.5, 1.0)
     az = np.arange(0.0, 360.0, az_step_deg)
     e2, a2 = np.meshgrid(elev, az, indexing="ij")
     g = gain_dbi(sc, ground, e2, a2)
@@ -445,12 +445,17 @@ def height_advice(
 class CompromiseHeight:
     """One apex height for several bands of one antenna.
 
-    Definition: the height on a common sweep that maximises the worst band's zenith gain
-    relative to that band's own best on the sweep (minimax shortfall). shortfall_db[b] is each
-    band's loss at the compromise, dB (>= 0); worst_shortfall_db their maximum.
+    Shortfall of a band at a height: its best zenith gain on the common sweep minus its zenith
+    gain there, dB. height_m (the compromise) is the LOWEST height at which every band's
+    shortfall is within ``tolerance_db``, the same rule as HeightAdvice.recommended_height_m
+    (the shortest mast that gives every band nearly its best); if no height qualifies it is the
+    minimax height. minimax_height_m maximises the worst band's gain relative to its own best.
+    shortfall_db: each band's shortfall at height_m; worst_shortfall_db: their maximum.
     """
 
     height_m: float
+    minimax_height_m: float
+    tolerance_db: float
     frequencies_hz: tuple[float, ...]
     shortfall_db: tuple[float, ...]
     worst_shortfall_db: float
@@ -465,8 +470,9 @@ def compromise_height(
     low_m: float | None = None,
     high_m: float | None = None,
     step_m: float = 0.25,
+    tolerance_db: float = 1.0,
 ) -> CompromiseHeight:
-    """Minimax compromise apex height for one antenna's bands (one source per band).
+    """Compromise apex height for one antenna's bands (one source per band; see the class).
 
     The default sweep runs from 0.05 wavelength of the highest band to 0.35 wavelength of the
     lowest, so that every band's own 0.05-0.35 wavelength range is covered.
@@ -478,9 +484,13 @@ def compromise_height(
     g = np.stack([zenith_sweep(src, ground, h) for src in sources])
     short = np.max(g, axis=1, keepdims=True) - g
     worst = np.max(short, axis=0)
-    i = int(np.argmin(worst))
+    i_mm = int(np.argmin(worst))
+    ok = np.flatnonzero(worst <= tolerance_db)
+    i = int(ok[0]) if ok.size else i_mm
     return CompromiseHeight(
         float(h[i]),
+        float(h[i_mm]),
+        tolerance_db,
         tuple(float(f) for f in frequencies_hz),
         tuple(float(x) for x in short[:, i]),
         float(worst[i]),

@@ -166,8 +166,11 @@ def record_url(
     """Fill a record URL template's {kit}, {element} and {leg}; values are percent-encoded."""
     allowed = ", ".join("{" + p + "}" for p in URL_PLACEHOLDERS)
     try:
-        parts = [(f, spec, conv) for _, f, spec, conv in string.Formatter().parse(template)
-                 if f is not None]
+        parts = [
+            (f, spec, conv)
+            for _, f, spec, conv in string.Formatter().parse(template)
+            if f is not None
+        ]
     except ValueError as exc:
         raise SpecError(
             [Problem(where, f"bad URL template {template!r} ({exc}); use {allowed}")]
@@ -206,8 +209,13 @@ def check_ec(ec: str, where: str = "labels.ec") -> str:
     level = ec.lower() if isinstance(ec, str) else ec
     if level not in EC_LEVELS:
         raise SpecError(
-            [Problem(where, f"error correction level {ec!r} is not allowed on weatherproof "
-                            f"labels; allowed: {', '.join(EC_LEVELS)} (Q or better)")]
+            [
+                Problem(
+                    where,
+                    f"error correction level {ec!r} is not allowed on weatherproof "
+                    f"labels; allowed: {', '.join(EC_LEVELS)} (Q or better)",
+                )
+            ]
         )
     return level
 
@@ -269,10 +277,14 @@ def layout_label(width: float, height: float, modules: int) -> LabelLayout:
 def _minimum_labels(modules: int) -> tuple[tuple[float, float], tuple[float, float]]:
     """Smallest label (width, height) mm for QR beside and above the text, at the minimums."""
     qr = (modules + 2 * QUIET_ZONE_MODULES) * MIN_MODULE_MM
-    beside = (2 * INSET_MM + GAP_MM + qr + MIN_TEXT_WIDTH_MM,
-              2 * INSET_MM + max(qr, MIN_TEXT_HEIGHT_MM))
-    above = (2 * INSET_MM + max(qr, MIN_TEXT_WIDTH_MM),
-             2 * INSET_MM + GAP_MM + qr + MIN_TEXT_HEIGHT_MM)
+    beside = (
+        2 * INSET_MM + GAP_MM + qr + MIN_TEXT_WIDTH_MM,
+        2 * INSET_MM + max(qr, MIN_TEXT_HEIGHT_MM),
+    )
+    above = (
+        2 * INSET_MM + max(qr, MIN_TEXT_WIDTH_MM),
+        2 * INSET_MM + GAP_MM + qr + MIN_TEXT_HEIGHT_MM,
+    )
     return beside, above
 
 
@@ -295,7 +307,9 @@ def _longest_prefix(payload: str, version: int, ec: str) -> int:
     while lo < hi:
         mid = (lo + hi + 1) // 2
         try:
-            segno.make_qr(payload[:mid] or " ", error=ec, version=version, boost_error=False)
+            segno.make_qr(
+                payload[:mid] or " ", error=ec, version=version, mask=0, boost_error=False
+            )
             lo = mid
         except segno.DataOverflowError:
             hi = mid - 1
@@ -314,16 +328,22 @@ def check_fit(
     Rules: level Q or better, 4-module quiet zone, module >= 0.5 mm, text >= 7 pt and the
     band name >= 14 pt. The symbol version comes from segno for the longest payload.
     """
-    level = check_ec(ec, where.rsplit(".", 1)[0] + ".ec" if "." in where else "ec")
+    level = check_ec(ec)
     problems: list[Problem] = []
     worst: tuple[int, str] | None = None
     for payload in payloads:
         try:
-            version = segno.make_qr(payload, error=level, boost_error=False).version
+            # A fixed mask skips the mask evaluation; the version does not depend on it.
+            version = segno.make_qr(payload, error=level, mask=0, boost_error=False).version
         except segno.DataOverflowError:
-            problems.append(Problem(where, f"QR payload of {len(payload)} characters is too "
-                                           f"long for any QR symbol at level {level.upper()}: "
-                                           f"{payload[:40]!r}..."))
+            problems.append(
+                Problem(
+                    where,
+                    f"QR payload of {len(payload)} characters is too "
+                    f"long for any QR symbol at level {level.upper()}: "
+                    f"{payload[:40]!r}...",
+                )
+            )
             continue
         if worst is None or version > worst[0]:
             worst = (version, payload)
@@ -339,26 +359,41 @@ def check_fit(
     span = modules + 2 * QUIET_ZONE_MODULES
     largest = _largest_version(stock)
     if largest:
-        room = (f"this label holds at most QR version {largest} "
-                f"({_longest_prefix(payload, largest, level)} characters of this payload)")
+        room = (
+            f"this label holds at most QR version {largest} "
+            f"({_longest_prefix(payload, largest, level)} characters of this payload)"
+        )
     else:
         room = "this label cannot hold even the smallest QR symbol with its text"
-    raise SpecError([Problem(where, (
-        f"label {stock.label_width:g} x {stock.label_height:g} mm of stock {stock.name!r} is too "
-        f"small: the longest QR payload ({len(payload)} characters) needs version {version} at "
-        f"level {level.upper()}, {modules} modules + {QUIET_ZONE_MODULES}-module quiet zones = "
-        f"{span} x {MIN_MODULE_MM:g} mm = {span * MIN_MODULE_MM:.1f} mm square, plus text of at "
-        f"least {MIN_TEXT_WIDTH_MM:g} x {MIN_TEXT_HEIGHT_MM:.1f} mm (band {MIN_BAND_PT:g} pt, "
-        f"lines {MIN_TEXT_PT:g} pt); a label of at least {bw:.1f} x {bh:.1f} mm (QR beside "
-        f"the text) or {aw:.1f} x {ah:.1f} mm (QR above) would fit; {room}"
-    ))])
+    raise SpecError(
+        [
+            Problem(
+                where,
+                (
+                    f"label {stock.label_width:g} x {stock.label_height:g} mm of stock {stock.name!r} is too "
+                    f"small: the longest QR payload ({len(payload)} characters) needs version {version} at "
+                    f"level {level.upper()}, {modules} modules + {QUIET_ZONE_MODULES}-module quiet zones = "
+                    f"{span} x {MIN_MODULE_MM:g} mm = {span * MIN_MODULE_MM:.1f} mm square, plus text of at "
+                    f"least {MIN_TEXT_WIDTH_MM:g} x {MIN_TEXT_HEIGHT_MM:.1f} mm (band {MIN_BAND_PT:g} pt, "
+                    f"lines {MIN_TEXT_PT:g} pt); a label of at least {bw:.1f} x {bh:.1f} mm (QR beside "
+                    f"the text) or {aw:.1f} x {ah:.1f} mm (QR above) would fit; {room}"
+                ),
+            )
+        ]
+    )
 
 
 # --- Stock from the spec -------------------------------------------------------------------
 
 _NUMBER_FIELDS: tuple[str, ...] = (
-    "page_width_mm", "page_height_mm", "label_width_mm", "label_height_mm",
-    "left_margin_mm", "top_margin_mm", "h_pitch_mm", "v_pitch_mm",
+    "page_width_mm",
+    "page_height_mm",
+    "label_width_mm",
+    "label_height_mm",
+    "left_margin_mm",
+    "top_margin_mm",
+    "h_pitch_mm",
+    "v_pitch_mm",
 )
 _ALLOWED_KEYS: tuple[str, ...] = ("name", "page", "rows", "columns", *_NUMBER_FIELDS)
 
@@ -394,8 +429,11 @@ def stock_from_mapping(d: Mapping[str, object], where: str) -> LabelStock:
     page = d.get("page")
     if page is not None:
         if not isinstance(page, str) or page.lower() not in PAGE_SIZES:
-            bad("page", f"page {page!r} is not known; allowed: A4, Letter "
-                        "(or give page_width_mm and page_height_mm)")
+            bad(
+                "page",
+                f"page {page!r} is not known; allowed: A4, Letter "
+                "(or give page_width_mm and page_height_mm)",
+            )
         elif "page_width_mm" in d or "page_height_mm" in d:
             bad("page", "give either page or page_width_mm/page_height_mm, not both")
         else:
@@ -435,29 +473,52 @@ def stock_from_mapping(d: Mapping[str, object], where: str) -> LabelStock:
 
     have = set(nums) | set(counts)
     if {"label_width_mm", "h_pitch_mm"} <= have and nums["h_pitch_mm"] < nums["label_width_mm"]:
-        bad("h_pitch_mm", f"h_pitch_mm {nums['h_pitch_mm']:g} is less than label_width_mm "
-                          f"{nums['label_width_mm']:g}; labels would overlap")
+        bad(
+            "h_pitch_mm",
+            f"h_pitch_mm {nums['h_pitch_mm']:g} is less than label_width_mm "
+            f"{nums['label_width_mm']:g}; labels would overlap",
+        )
     if {"label_height_mm", "v_pitch_mm"} <= have and nums["v_pitch_mm"] < nums["label_height_mm"]:
-        bad("v_pitch_mm", f"v_pitch_mm {nums['v_pitch_mm']:g} is less than label_height_mm "
-                          f"{nums['label_height_mm']:g}; labels would overlap")
+        bad(
+            "v_pitch_mm",
+            f"v_pitch_mm {nums['v_pitch_mm']:g} is less than label_height_mm "
+            f"{nums['label_height_mm']:g}; labels would overlap",
+        )
     if "label_width_mm" in nums and "h_pitch_mm" not in nums and "h_pitch_mm" not in d:
         nums["h_pitch_mm"] = nums["label_width_mm"]
     if "label_height_mm" in nums and "v_pitch_mm" not in nums and "v_pitch_mm" not in d:
         nums["v_pitch_mm"] = nums["label_height_mm"]
 
     for across, count, pitch, size, margin, pagedim, word in (
-        ("columns", "columns", "h_pitch_mm", "label_width_mm", "left_margin_mm",
-         "page_width_mm", "wide"),
-        ("rows", "rows", "v_pitch_mm", "label_height_mm", "top_margin_mm",
-         "page_height_mm", "high"),
+        (
+            "columns",
+            "columns",
+            "h_pitch_mm",
+            "label_width_mm",
+            "left_margin_mm",
+            "page_width_mm",
+            "wide",
+        ),
+        (
+            "rows",
+            "rows",
+            "v_pitch_mm",
+            "label_height_mm",
+            "top_margin_mm",
+            "page_height_mm",
+            "high",
+        ),
     ):
         if not {count, pitch, size, margin, pagedim} <= set(nums) | set(counts):
             continue
         extent = nums[margin] + (counts[count] - 1) * nums[pitch] + nums[size]
         if extent > nums[pagedim] + 1e-6:
-            bad(across, f"{counts[count]} {across} of labels reach {extent:g} mm but the page "
-                        f"is {nums[pagedim]:g} mm {word}; reduce {across}, {pitch}, {size} "
-                        f"or {margin}")
+            bad(
+                across,
+                f"{counts[count]} {across} of labels reach {extent:g} mm but the page "
+                f"is {nums[pagedim]:g} mm {word}; reduce {across}, {pitch}, {size} "
+                f"or {margin}",
+            )
     if problems:
         raise SpecError(problems)
     return LabelStock(
@@ -483,8 +544,15 @@ def resolve_stock(value: str | Mapping[str, object], where: str) -> LabelStock:
         return STOCKS[value]
     hint = difflib.get_close_matches(str(value), list(STOCKS), n=1)
     tip = f" (did you mean {hint[0]!r}?)" if hint else ""
-    raise SpecError([Problem(where, f"unknown label stock {value!r}{tip}; allowed: "
-                                    f"{', '.join(STOCKS)} or a table of geometry in mm")])
+    raise SpecError(
+        [
+            Problem(
+                where,
+                f"unknown label stock {value!r}{tip}; allowed: "
+                f"{', '.join(STOCKS)} or a table of geometry in mm",
+            )
+        ]
+    )
 
 
 def pages_needed(stock: LabelStock, count: int, start_cell: int = 0) -> int:
@@ -494,12 +562,21 @@ def pages_needed(stock: LabelStock, count: int, start_cell: int = 0) -> int:
 
 def check_start_cell(stock: LabelStock, start_cell: int, where: str = "start_cell") -> None:
     """Raise SpecError unless 0 <= start_cell < cells per page."""
-    if isinstance(start_cell, bool) or not isinstance(start_cell, int) or not (
-        0 <= start_cell < stock.cells_per_page
+    if (
+        isinstance(start_cell, bool)
+        or not isinstance(start_cell, int)
+        or not (0 <= start_cell < stock.cells_per_page)
     ):
-        raise SpecError([Problem(where, f"start cell {start_cell!r} is not on a "
-                                        f"{stock.name!r} page; allowed: 0 to "
-                                        f"{stock.cells_per_page - 1} (row by row from top-left)")])
+        raise SpecError(
+            [
+                Problem(
+                    where,
+                    f"start cell {start_cell!r} is not on a "
+                    f"{stock.name!r} page; allowed: 0 to "
+                    f"{stock.cells_per_page - 1} (row by row from top-left)",
+                )
+            ]
+        )
 
 
 def payloads_of(labels: Sequence[LabelContent]) -> list[str]:

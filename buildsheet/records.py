@@ -47,52 +47,35 @@ LEG_MISMATCH_M = 0.005
 
 # Schema migrations: (version, statements). Append only; never edit a released migration.
 # Issue 7 (calibrations per design) will add version 2 here.
-_NO_DELETE = "CREATE TRIGGER {t}_keep BEFORE DELETE ON {t} BEGIN " \
-    "SELECT RAISE(ABORT, 'records are never deleted; archive instead'); END"
+_NO_DELETE = ("CREATE TRIGGER {t}_keep BEFORE DELETE ON {t} BEGIN "
+              "SELECT RAISE(ABORT, 'records are never deleted; archive instead'); END")
+_CHILD_TABLES = ("measurements", "trims", "prints")
 MIGRATIONS: tuple[tuple[int, tuple[str, ...]], ...] = (
     (1, (
-        """CREATE TABLE elements (
-            id TEXT PRIMARY KEY,
-            kit TEXT NOT NULL,
-            design TEXT NOT NULL,
-            element_key TEXT NOT NULL,
-            design_frequency_hz REAL NOT NULL CHECK (design_frequency_hz > 0),
-            band_low_hz REAL NOT NULL CHECK (band_low_hz > 0),
-            band_high_hz REAL NOT NULL CHECK (band_high_hz >= band_low_hz),
-            predicted_leg_m REAL NOT NULL CHECK (predicted_leg_m > 0),
-            cut_leg_m REAL NOT NULL CHECK (cut_leg_m > 0),
-            slope_m_per_hz REAL NOT NULL,
-            partners TEXT NOT NULL DEFAULT '[]',
-            spec_revision INTEGER NOT NULL,
-            status TEXT NOT NULL CHECK (status IN ('active', 'archived')),
-            created TEXT NOT NULL,
-            updated TEXT NOT NULL)""",
-        """CREATE TABLE measurements (
-            id INTEGER PRIMARY KEY,
-            element_id TEXT NOT NULL REFERENCES elements(id),
-            time TEXT NOT NULL,
-            dip_hz REAL NOT NULL CHECK (dip_hz > 0),
-            swr REAL CHECK (swr IS NULL OR swr >= 1),
-            note TEXT NOT NULL DEFAULT '')""",
-        "CREATE INDEX measurements_element ON measurements (element_id, time)",
-        """CREATE TABLE trims (
-            id INTEGER PRIMARY KEY,
-            element_id TEXT NOT NULL REFERENCES elements(id),
-            leg TEXT NOT NULL CHECK (leg IN ('A', 'B', 'both')),
-            delta_m REAL NOT NULL,
-            time TEXT NOT NULL,
-            note TEXT NOT NULL DEFAULT '')""",
-        "CREATE INDEX trims_element ON trims (element_id, time)",
-        """CREATE TABLE prints (
-            id INTEGER PRIMARY KEY,
-            revision INTEGER NOT NULL,
-            element_id TEXT NOT NULL REFERENCES elements(id),
-            kind TEXT NOT NULL CHECK (kind IN ('sheet', 'label')),
-            hash TEXT NOT NULL,
-            file TEXT NOT NULL DEFAULT '',
-            time TEXT NOT NULL)""",
-        "CREATE INDEX prints_element ON prints (element_id, revision)",
-        *(_NO_DELETE.format(t=t) for t in ("elements", "measurements", "trims", "prints")),
+        ("CREATE TABLE elements (id TEXT PRIMARY KEY, kit TEXT NOT NULL, design TEXT NOT NULL, "
+        " element_key TEXT NOT NULL,"
+        " design_frequency_hz REAL NOT NULL CHECK (design_frequency_hz > 0),"
+        " band_low_hz REAL NOT NULL CHECK (band_low_hz > 0),"
+        " band_high_hz REAL NOT NULL CHECK (band_high_hz >= band_low_hz),"
+        " predicted_leg_m REAL NOT NULL CHECK (predicted_leg_m > 0),"
+        " cut_leg_m REAL NOT NULL CHECK (cut_leg_m > 0), slope_m_per_hz REAL NOT NULL,"
+        " partners TEXT NOT NULL DEFAULT '[]', spec_revision INTEGER NOT NULL,"
+        " status TEXT NOT NULL CHECK (status IN ('active', 'archived')),"
+        " created TEXT NOT NULL, updated TEXT NOT NULL)"),
+        ("CREATE TABLE measurements (id INTEGER PRIMARY KEY,"
+        " element_id TEXT NOT NULL REFERENCES elements(id), time TEXT NOT NULL,"
+        " dip_hz REAL NOT NULL CHECK (dip_hz > 0), swr REAL CHECK (swr IS NULL OR swr >= 1),"
+        " note TEXT NOT NULL DEFAULT '')"),
+        ("CREATE TABLE trims (id INTEGER PRIMARY KEY,"
+        " element_id TEXT NOT NULL REFERENCES elements(id),"
+        " leg TEXT NOT NULL CHECK (leg IN ('A', 'B', 'both')), delta_m REAL NOT NULL,"
+        " time TEXT NOT NULL, note TEXT NOT NULL DEFAULT '')"),
+        ("CREATE TABLE prints (id INTEGER PRIMARY KEY, revision INTEGER NOT NULL,"
+        " element_id TEXT NOT NULL REFERENCES elements(id),"
+        " kind TEXT NOT NULL CHECK (kind IN ('sheet', 'label')), hash TEXT NOT NULL,"
+        " file TEXT NOT NULL DEFAULT '', time TEXT NOT NULL)"),
+        *(f"CREATE INDEX {t}_element ON {t} (element_id)" for t in _CHILD_TABLES),
+        *(_NO_DELETE.format(t=t) for t in ("elements", *_CHILD_TABLES)),
     )),
 )
 SCHEMA_VERSION: int = MIGRATIONS[-1][0]

@@ -20,9 +20,9 @@ import csv
 import io
 import math
 import re
-from collections import defaultdict
+from collections import Counter, defaultdict
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
-from typing import Iterable, Sequence
 
 from .errors import BuildError, Problem, SpecError
 
@@ -33,12 +33,13 @@ DEFAULT_TOLERANCE_M: float = 0.01
 EXACT_MAX_CUTS: int = 10
 #: Node budget of the exact search (keeps the worst case well under a second).
 EXACT_NODE_BUDGET: int = 400_000
+#: Most swaps tried per spool the improvement step tries to empty.
+_SWAP_ROUNDS: int = 50
 #: Internal length quantum, m (micrometre integers avoid float ties in feasibility tests).
 _QUANTUM_M: float = 1e-6
 
 
-# --------------------------------------------------------------------------- data
-
+# --- data
 
 @dataclass(frozen=True)
 class Cut:
@@ -142,8 +143,7 @@ class SpoolPlan:
         return math.fsum(m.waste_m for m in self.materials)
 
 
-# --------------------------------------------------------------------------- helpers
-
+# --- helpers
 
 def natural_key(text: str) -> tuple[tuple[int, int | str], ...]:
     """Sort key that orders "K2" before "K10"."""
@@ -152,7 +152,7 @@ def natural_key(text: str) -> tuple[tuple[int, int | str], ...]:
 
 def _q(length_m: float) -> int:
     """Length in integer micrometres."""
-    return int(round(length_m / _QUANTUM_M))
+    return round(length_m / _QUANTUM_M)
 
 
 def _match(loads: Sequence[int], caps: Sequence[int]) -> list[int] | None:
@@ -189,8 +189,7 @@ def lower_bound(needed_m: float, spool_lengths_m: Sequence[float]) -> int:
     return len(caps) + -(-(need - total) // caps[0])
 
 
-# --------------------------------------------------------------------------- packing core
-
+# --- packing core
 
 @dataclass
 class _Packing:
@@ -215,14 +214,8 @@ def _greedy(needs: Sequence[int], caps: Sequence[int], fit: str, open_rule: str)
     unassigned: list[int] = []
     for i in order:
         n = needs[i]
-        choice = -1
-        if fit == "first":
-            choice = next((b for b, f in enumerate(free) if f >= n), -1)
-        else:
-            best = None
-            for b, f in enumerate(free):
-                if f >= n and (best is None or f < best):
-                    best, choice = f, b
+        fits = [b for b, f in enumerate(free) if f >= n]
+        choice = (fits[0] if fit == "first" else min(fits, key=lambda b: (free[b], b))) if fits else -1
         if choice < 0:
             fitting = [j for j in unopened if caps[j] >= n]
             if not fitting:
@@ -242,7 +235,8 @@ def _greedy(needs: Sequence[int], caps: Sequence[int], fit: str, open_rule: str)
 def _improve(p: _Packing, needs: Sequence[int], caps: Sequence[int]) -> _Packing:
     """Load shifting: try to empty the least-loaded spool by moving its cuts into the free
     space of the others (best fit); where a cut does not fit, swap it for a shorter cut from
-    another spool that has room for the difference, which strictly lowers the target's load."""
+    another spool that has room for the difference, which strictly lowers the target's load.
+    Finally re-match groups to spools so the shortest spools that hold them are opened."""
     bins = [list(b) for b in p.bins]
     spool = list(p.spool)
     while len(bins) > 1:
@@ -250,18 +244,15 @@ def _improve(p: _Packing, needs: Sequence[int], caps: Sequence[int]) -> _Packing
         t = min(range(len(bins)), key=lambda b: (loads[b], -b))
         free = [caps[spool[b]] - loads[b] for b in range(len(bins))]
         emptied = False
-        for _ in range(4 * len(needs) + 8):
+        for _ in range(_SWAP_ROUNDS):
             # Try to move every cut out of the target (tentatively).
             trial_free = list(free)
             moves: list[tuple[int, int]] = []
             for i in sorted(bins[t], key=lambda i: (-needs[i], i)):
-                best = None
-                for b in range(len(bins)):
-                    if b != t and trial_free[b] >= needs[i] and (
-                            best is None or trial_free[b] < trial_free[best]):
-                        best = b
-                if best is None:
+                room = [b for b in range(len(bins)) if b != t and trial_free[b] >= needs[i]]
+                if not room:
                     break
+                best = min(room, key=lambda b: (trial_free[b], b))
                 trial_free[best] -= needs[i]
                 moves.append((i, best))
             if len(moves) == len(bins[t]):
@@ -293,16 +284,9 @@ def _improve(p: _Packing, needs: Sequence[int], caps: Sequence[int]) -> _Packing
             free[b] -= gain
         if not emptied:
             break
-    return _Packing(bins, spool, list(p.unassigned))
-
-
-def _downsize(p: _Packing, needs: Sequence[int], caps: Sequence[int]) -> _Packing:
-    """Re-choose which spool carries each group of cuts: least total length opened."""
-    loads = [sum(needs[i] for i in b) for b in p.bins]
-    m = _match(loads, caps)
-    if m is None:  # cannot happen for a feasible packing; keep it as it is
-        return p
-    return _Packing([list(b) for b in p.bins], m, list(p.unassigned))
+    # Re-choose which spool carries each group of cuts: least total length opened.
+    m = _match([sum(needs[i] for i in b) for b in bins], caps)
+    return _Packing(bins, spool if m is None else m, list(p.unassigned))
 
 
 class _Stop(Exception):
@@ -396,7 +380,7 @@ def _pack(needs: Sequence[int], caps: Sequence[int]) -> tuple[_Packing, str, boo
     candidates = []
     for fit in ("first", "best"):
         for rule in ("longest", "shortest"):
-            p = _downsize(_improve(_greedy(needs, caps, fit, rule), needs, caps), needs, caps)
+            p = _improve(_greedy(needs, caps, fit, rule), needs, caps)
             candidates.append(p)
     best = min(candidates, key=lambda p: _key(p, needs, caps))
     method = "heuristic"
@@ -410,25 +394,21 @@ def _pack(needs: Sequence[int], caps: Sequence[int]) -> tuple[_Packing, str, boo
     return best, method, proven
 
 
-# --------------------------------------------------------------------------- public planner
-
+# --- public planner
 
 def _check(cuts: Sequence[Cut], stock: Sequence[StockItem], tolerance_m: float) -> None:
+    """Raise BuildError listing every bad cut, stock line or tolerance."""
     problems: list[Problem] = []
     if not (tolerance_m >= 0.0 and math.isfinite(tolerance_m)):
         problems.append(Problem("spool plan", f"cutting tolerance {tolerance_m!r} m: must be >= 0"))
-    seen: set[str] = set()
-    for c in cuts:
-        if c.cut_id in seen:
-            problems.append(Problem(f"cut {c.cut_id}", "duplicate cut ID"))
-        seen.add(c.cut_id)
-        if not (c.length_m > 0.0 and math.isfinite(c.length_m)):
-            problems.append(Problem(f"cut {c.cut_id}", f"length {c.length_m!r} m: must be > 0"))
-    for s in stock:
-        if not (s.length_m > 0.0 and math.isfinite(s.length_m)):
-            problems.append(Problem(f"stock {s.title}", f"length {s.length_m!r} m: must be > 0"))
-        if s.count < 0:
-            problems.append(Problem(f"stock {s.title}", f"count {s.count}: must be >= 0"))
+    problems += [Problem(f"cut {i}", "duplicate cut ID")
+                 for i, k in sorted(Counter(c.cut_id for c in cuts).items()) if k > 1]
+    problems += [Problem(f"cut {c.cut_id}", f"length {c.length_m!r} m: must be > 0")
+                 for c in cuts if not (c.length_m > 0.0 and math.isfinite(c.length_m))]
+    problems += [Problem(f"stock {s.title}", f"length {s.length_m!r} m: must be > 0")
+                 for s in stock if not (s.length_m > 0.0 and math.isfinite(s.length_m))]
+    problems += [Problem(f"stock {s.title}", f"count {s.count}: must be >= 0")
+                 for s in stock if s.count < 0]
     if problems:
         raise BuildError(problems)
 
@@ -504,8 +484,7 @@ def _to_buy(material: str, unassigned: Sequence[Cut], tolerance_m: float,
     return ToBuy(material, short, size, len(p.bins), "")
 
 
-# --------------------------------------------------------------------------- bill of materials
-
+# --- bill of materials
 
 @dataclass(frozen=True)
 class BomLine:

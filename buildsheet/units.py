@@ -51,6 +51,10 @@ def parse_length(text: str | int | float) -> float:
     if not isinstance(text, str):
         raise ValueError(f"a length needs a unit: write e.g. \"{text} m\" ({LENGTH_HELP})")
     s = text.strip()
+    if re.fullmatch(_NUMBER, s.lstrip("-")):
+        raise ValueError(f"a length needs a unit: write e.g. \"{s} m\" ({LENGTH_HELP})")
+    negative = s.startswith("-")
+    s = s[1:] if negative else s
     pos, total, terms = 0, 0.0, 0
     while pos < len(s):
         m = _TERM.match(s, pos)
@@ -66,7 +70,7 @@ def parse_length(text: str | int | float) -> float:
         raise ValueError(f"cannot read {text!r} as a length; expected {LENGTH_HELP}")
     if not math.isfinite(total):
         raise ValueError(f"length {text!r} is not finite")
-    return total
+    return -total if negative else total
 
 
 def parse_frequency(text: str | int | float) -> float:

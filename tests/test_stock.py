@@ -194,7 +194,7 @@ def brute_short(pieces: list[float], spools: list[float]) -> tuple[float, int, f
             else:
                 loads[s] += p
         if all(load <= cap + EPS for load, cap in zip(loads, spools)):
-            used = sorted(set(a for a in assign if a < len(spools)))
+            used = sorted({a for a in assign if a < len(spools)})
             key = (round(lost, 6), len(used), round(sum(spools[s] for s in used), 6))
             best = key if best is None or key < best else best
     assert best is not None
@@ -326,7 +326,7 @@ def test_kit_bom_quantities():
     wire = bom[("wire", "14 AWG copper, PVC jacket")]
     assert wire.quantity == pytest.approx(sum(legs) + 4 * 0.01)
     assert "10 mm" in wire.note
-    spare = [b for b in bom.values() if b.item.endswith("spare")][0]
+    spare = next(b for b in bom.values() if b.item.endswith("spare"))
     assert spare.quantity == pytest.approx(0.1 * (22.0 + 1.0 + 0.6))
     assert bom[("hardware", "snap swivel")].quantity == 4
     assert bom[("feed", "RG-58 coaxial cable")].quantity == 15.0

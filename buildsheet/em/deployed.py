@@ -169,10 +169,16 @@ def _check_legs_apart(antenna: DeployedAntenna, legs: list[WireSpec]) -> None:
 def element_segment_counts(antenna: DeployedAntenna, max_frequency_hz: float | None = None, *,
                            segment_wavelengths: float = SEGMENT_WAVELENGTHS,
                            min_segments: int = MIN_SEGMENTS_PER_LEG) -> tuple[int, ...]:
-    """Segments per leg for each element by the segmentation rule."""
+    """Segments per leg for each element by the segmentation rule.
+
+    The rule is applied to the longer of the leg and a quarter wavelength at the element's
+    design frequency, so that the mesh does not change while a resonance solve moves a leg
+    that is shorter than a quarter wave (the usual case).
+    """
     f_max = max_frequency_hz or highest_frequency(antenna)
-    return tuple(segments_for(e.leg_length_m, f_max, segment_wavelengths=segment_wavelengths,
-                              min_segments=min_segments) for e in antenna.elements)
+    return tuple(segments_for(max(e.leg_length_m, wavelength(e.design_frequency_hz) / 4.0), f_max,
+                              segment_wavelengths=segment_wavelengths, min_segments=min_segments)
+                 for e in antenna.elements)
 
 
 def build_structure(antenna: DeployedAntenna, max_frequency_hz: float | None = None, *,

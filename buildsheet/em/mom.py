@@ -55,6 +55,7 @@ class Mesh:
     wire_of: (N,) index into ``structure.wires``; T: (Nb, 2N) basis-to-segment-end coefficients
     (column 2i + e is the linear shape of segment i peaking at end e, along t_i); D: (Nb, N)
     divergence of each basis on each segment, 1/m; port_basis: (P,) basis index of each port.
+    cols, signs, segs, divs: (Nb, 2) the same as T and D for the two halves of every basis.
     static / static_img: (2, 2, N, N) analytic-static integrals int int w_a w_b / R, m;
     dist / dist_img: (N, Q, N, Q) reduced-kernel distances between smooth quadrature points, m.
     """
@@ -69,6 +70,10 @@ class Mesh:
     T: np.ndarray
     D: np.ndarray
     port_basis: np.ndarray
+    cols: np.ndarray
+    signs: np.ndarray
+    segs: np.ndarray
+    divs: np.ndarray
     static: np.ndarray
     dist: np.ndarray
     static_img: np.ndarray | None
@@ -102,7 +107,7 @@ def _segments(structure: Structure) -> tuple[np.ndarray, ...]:
     return p0, p1, vec / length[:, None], length, np.concatenate(rad), np.concatenate(owner)
 
 
-def _basis(structure: Structure, length: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _basis(structure: Structure, length: np.ndarray) -> tuple[np.ndarray, ...]:
     """Triangle basis: interior nodes, junctions (M - 1 each) and ports (one each).
 
     A wire end is (segment, end e, outward sign s): the current leaving the node into the wire
@@ -137,7 +142,11 @@ def _basis(structure: Structure, length: np.ndarray) -> tuple[np.ndarray, np.nda
     np.add.at(T, (idx, 2 * out[:, 0] + out[:, 1]), out[:, 2])
     np.add.at(D, (idx, into[:, 0]), 1.0 / length[into[:, 0]])
     np.add.at(D, (idx, out[:, 0]), -1.0 / length[out[:, 0]])
-    return T, D, np.array(port_basis, dtype=int)
+    cols = np.stack([2 * into[:, 0] + into[:, 1], 2 * out[:, 0] + out[:, 1]], axis=1)
+    signs = np.stack([-into[:, 2], out[:, 2]], axis=1).astype(float)
+    segs = np.stack([into[:, 0], out[:, 0]], axis=1)
+    divs = np.stack([1.0 / length[into[:, 0]], -1.0 / length[out[:, 0]]], axis=1)
+    return T, D, np.array(port_basis, dtype=int), cols, signs, segs, divs
 
 
 def _gauss(n: int) -> tuple[np.ndarray, np.ndarray]:
@@ -182,7 +191,7 @@ def _smooth_distances(p0: np.ndarray, t: np.ndarray, length: np.ndarray, a2: np.
 def build_mesh(structure: Structure) -> Mesh:
     """Segments, basis and frequency-independent integrals of ``structure``."""
     p0, p1, t, length, radius, owner = _segments(structure)
-    T, D, ports = _basis(structure, length)
+    T, D, ports, cols, signs, segs, divs = _basis(structure, length)
     a2 = (radius[:, None] ** 2 + radius[None, :] ** 2) / 2.0
     static = _static_integrals(p0, t, length, a2, p0, t)
     dist = _smooth_distances(p0, t, length, a2, p0, t)
@@ -191,7 +200,8 @@ def build_mesh(structure: Structure) -> Mesh:
         mirror = np.array([1.0, 1.0, -1.0])
         static_img = _static_integrals(p0, t, length, a2, p0 * mirror, t * mirror)
         dist_img = _smooth_distances(p0, t, length, a2, p0 * mirror, t * mirror)
-    return Mesh(structure, p0, p1, t, length, radius, owner, T, D, ports, static, dist,
+    return Mesh(structure, p0, p1, t, length, radius, owner, T, D, ports, cols, signs, segs, divs,
+                static, dist,
                 static_img, dist_img)
 
 
@@ -206,13 +216,20 @@ def _kernel_integrals(static: np.ndarray, dist: np.ndarray, length: np.ndarray,
     return (static + smooth) / (4.0 * math.pi)
 
 
+def _galerkin(idx: np.ndarray, coef: np.ndarray, M: np.ndarray) -> np.ndarray:
+    """sum over the two halves of m and of n: coef_m coef_n M[idx_m, idx_n] (= T M T^T)."""
+    return sum((coef[:, h, None] * coef[None, :, g]) * M[np.ix_(idx[:, h], idx[:, g])]
+               for h in (0, 1) for g in (0, 1))
+
+
 def _assemble(mesh: Mesh, P: np.ndarray, vec_factor: np.ndarray, scal_factor: np.ndarray | float,
               k: float) -> np.ndarray:
     """Vector- and scalar-potential parts of Z from pair integrals P (2, 2, N, N)."""
     n = mesh.n_segments
     pv = (P * vec_factor[None, None]).transpose(2, 0, 3, 1).reshape(2 * n, 2 * n)
     s = P.sum(axis=(0, 1)) * scal_factor
-    return 1j * k * ETA0 * (mesh.T @ pv @ mesh.T.T) - 1j * (ETA0 / k) * (mesh.D @ s @ mesh.D.T)
+    return (1j * k * ETA0 * _galerkin(mesh.cols, mesh.signs, pv)
+            - 1j * (ETA0 / k) * _galerkin(mesh.segs, mesh.divs, s))
 
 
 def _image_factors(mesh: Mesh, frequency_hz: float) -> tuple[np.ndarray, np.ndarray]:
@@ -245,12 +262,8 @@ def _loading(mesh: Mesh, frequency_hz: float, *, loss_only: bool = False) -> np.
     zs = zw[mesh.wire_of] * mesh.length
     n = mesh.n_segments
     blk = np.array([[1.0 / 3.0, 1.0 / 6.0], [1.0 / 6.0, 1.0 / 3.0]])  # int w_a w_b du / D
-    L = np.zeros((2 * n, 2 * n), dtype=complex)
-    idx = np.arange(n)
-    for a in (0, 1):
-        for b in (0, 1):
-            L[2 * idx + a, 2 * idx + b] = zs * blk[a, b]
-    return mesh.T @ L @ mesh.T.T
+    L = np.kron(np.diag(zs), blk)
+    return _galerkin(mesh.cols, mesh.signs, L)
 
 
 def impedance_matrix(mesh: Mesh, frequency_hz: float) -> np.ndarray:

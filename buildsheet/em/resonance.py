@@ -11,11 +11,12 @@ the segmentation rule at the end (re-solving if the counts change), so the answe
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, replace
 from functools import lru_cache
+from typing import Callable
 
 import numpy as np
+from numpy.polynomial.chebyshev import chebval
 from scipy.optimize import brentq
 
 from buildsheet.em.deployed import (DeployedAntenna, build_structure, element_segment_counts,
@@ -28,8 +29,10 @@ from buildsheet.errors import BuildError
 #: dipole in any deployment of interest lies well inside; a leg of a half-wave dipole is ~0.24).
 LEG_RANGE_WAVELENGTHS: tuple[float, float] = (0.12, 0.32)
 #: Relative length tolerance of the resonance solve.
-LENGTH_TOL: float = 1e-7
+LENGTH_TOL: float = 1e-6
 MAX_ITERATIONS: int = 40
+#: Direct solves per band for the SWR curve (Chebyshev nodes; the curve is interpolated).
+CURVE_NODES: int = 9
 
 
 def swr(z: np.ndarray | complex, z0: float = 50.0) -> np.ndarray:
@@ -152,32 +155,54 @@ def _solve_lengths(antenna: DeployedAntenna, start: np.ndarray, f_seg: float,
                      f"in {MAX_ITERATIONS} iterations (leg {lo[e]:.3f}-{hi[e]:.3f} m tried)")
 
 
-def _bandwidth(mesh: Mesh, f0: float, freqs: np.ndarray, s: np.ndarray, z0: float,
-               s0: float) -> tuple[float, float] | None:
-    """Edges where SWR = 2 around f0: from the band curve, searching past the band if needed."""
+def _interpolant(mesh: Mesh, lo: float, hi: float, n: int) -> Callable[[np.ndarray], np.ndarray]:
+    """Feed impedance on [lo, hi] interpolated through n Chebyshev nodes (direct MoM solves).
+
+    Z(f) of a dipole is smooth across one band; a degree n - 1 Chebyshev interpolant is exact
+    at the nodes (tests check it against direct solves between them).
+    """
+    x = np.cos(np.pi * (np.arange(n) + 0.5) / n)
+    z = port_impedances(mesh, (lo + hi) / 2 + (hi - lo) / 2 * x)[:, 0, 0]
+    cr = np.polynomial.chebyshev.chebfit(x, z.real, n - 1)
+    ci = np.polynomial.chebyshev.chebfit(x, z.imag, n - 1)
+
+    def z_of(f: np.ndarray) -> np.ndarray:
+        u = (2 * np.asarray(f, dtype=float) - lo - hi) / (hi - lo)
+        return chebval(u, cr) + 1j * chebval(u, ci)
+    return z_of
+
+
+def _bandwidth(mesh: Mesh, f0: float, lo: float, hi: float, z_fit: Callable[[np.ndarray], np.ndarray],
+               z0: float, s0: float) -> tuple[float, float] | None:
+    """Frequencies where SWR = 2 on each side of f0, Hz; None if SWR >= 2 at f0.
+
+    Each edge is bracketed on the interpolated curve, the bracket confirmed with two direct
+    solves, then located on the interpolant (or by direct solves outside the band).
+    """
     if not s0 < 2.0:
         return None
 
-    def excess(fr: float) -> float:
+    def direct(fr: float) -> float:
         return float(swr(port_impedances(mesh, fr)[0, 0, 0], z0)) - 2.0
 
-    width = max(freqs[-1] - freqs[0], 1e-3 * f0)
     edges = []
-    for sign in (-1.0, 1.0):
-        side = (freqs - f0) * sign >= 0
-        fs, ss = freqs[side][::int(sign)], s[side][::int(sign)]  # moving away from f0
-        over = np.flatnonzero(ss >= 2.0)
-        if over.size:
-            j = int(over[0])
-            a, b = (f0, fs[0]) if j == 0 else (fs[j - 1], fs[j])
-        else:
-            a = fs[-1] if fs.size else f0
-            b = a + sign * width
-            while excess(b) < 0:
-                a, b = b, b + sign * width
-                if abs(b - f0) > 0.3 * f0:
-                    raise BuildError(f"2:1 SWR edge not found within 30 % of {f0 / 1e6:.4f} MHz")
-        edges.append(brentq(excess, min(a, b), max(a, b), xtol=1.0))
+    for end in (lo, hi):
+        grid = np.linspace(f0, end, 401)
+        over = np.flatnonzero(swr(z_fit(grid), z0) >= 2.0)
+        if over.size and direct(grid[over[0]]) >= 0 > direct(grid[over[0] - 1]):
+            a, b = grid[over[0] - 1], grid[over[0]]
+            edges.append(brentq(lambda fr: float(swr(z_fit(fr), z0)) - 2.0,
+                                min(a, b), max(a, b), xtol=0.5))
+            continue
+        a, step = end, (end - f0) if end != f0 else f0 * 1e-3
+        b = a + step
+        while direct(b) < 0:
+            a, b = b, b + step
+            if abs(b - f0) > 0.3 * f0:
+                raise BuildError(f"2:1 SWR edge not found within 30 % of {f0 / 1e6:.4f} MHz")
+        if direct(a) >= 0:
+            a = f0
+        edges.append(brentq(direct, min(a, b), max(a, b), xtol=1.0))
     return edges[0], edges[1]
 
 
@@ -217,14 +242,16 @@ def solve_resonance(antenna: DeployedAntenna, *, z0: float = 50.0,
     notes = list(mesh.structure.notes)
     for e, el in enumerate(solved.elements):
         freqs = np.linspace(el.band_low_hz, el.band_high_hz, n_swr_points)
-        s = swr(port_impedances(mesh, freqs)[:, 0, 0], z0)
+        lo, hi = min(el.band_low_hz, f[e]), max(el.band_high_hz, f[e])
+        z_fit = _interpolant(mesh, lo, hi, min(n_swr_points, CURVE_NODES))
+        s = swr(z_fit(freqs), z0)
         s0 = float(swr(z_design[e], z0))
         if s0 > 2.0:
             notes.append(f"element {el.key!r}: SWR {s0:.1f}:1 on {z0:.0f} ohm at resonance "
                          f"(feed resistance {z_design[e].real:.1f} ohm)")
         results.append(ElementSolution(
             key=el.key, leg_length_m=float(L[e]), z_feed=complex(z_design[e]),
-            frequencies_hz=freqs, swr=s, bandwidth_2to1_hz=_bandwidth(mesh, f[e], freqs, s, z0, s0),
+            frequencies_hz=freqs, swr=s, bandwidth_2to1_hz=_bandwidth(mesh, f[e], lo, hi, z_fit, z0, s0),
             slope_m_per_hz=float(-dxdf[e] / dxdl[e]), swr_at_design=s0))
     return AntennaSolution(solved, tuple(results), antenna.ground, tuple(notes), describe(mesh),
                            z0, iterations)
@@ -241,7 +268,3 @@ def prediction_band(antenna: DeployedAntenna) -> PredictionBand:
                                  float((legs.max() - legs.min()) / legs.mean())))
     return PredictionBand(tuple(bands), *sols)
 
-
-def closest_fraction(a: float, b: float) -> float:
-    """Relative difference |a - b| / b (a helper for reports and tests)."""
-    return math.fabs(a - b) / b

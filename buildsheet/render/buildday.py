@@ -9,8 +9,8 @@ defaults below are used when none is given. Black on white, text at least 8 pt.
 
 from __future__ import annotations
 
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
-from typing import Callable, Iterable, Sequence
 from xml.sax.saxutils import escape
 
 from reportlab.lib import colors
@@ -36,13 +36,13 @@ LengthFormat = Callable[[float], str]
 DEFAULT_WIDTH: float = 158 * mm
 
 SAFETY_LINES: tuple[str, ...] = (
-    "Look up before raising anything: no part of a mast or antenna may come within about 3 m "
-    "(10 ft) of a power line if it falls; keep well clear of overhead lines.",
-    "Raise masts with helpers; guy and stake as the mast maker directs; flag guy lines, tie-off "
-    "cords and feed lines (trip hazards); keep wire ends above reach or rope them off.",
+    ("Look up before raising anything: no part of a mast or antenna may come within about 3 m "
+     "(10 ft) of a power line if it falls; keep well clear of overhead lines."),
+    ("Raise masts with helpers; guy and stake as the mast maker directs; flag guy lines, tie-off "
+     "cords and feed lines (trip hazards); keep wire ends above reach or rope them off."),
     "Stakes lean 45-60 degrees away from the load; double-stake in soft ground.",
-    "These are common-practice reminders only: local codes, site rules, the mast maker's "
-    "instructions and licensed practice take precedence.",
+    ("These are common-practice reminders only: local codes, site rules, the mast maker's "
+     "instructions and licensed practice take precedence."),
 )
 
 _BODY = ParagraphStyle("bd-body", fontName="Helvetica", fontSize=9, leading=11,
@@ -94,7 +94,11 @@ def _count(q: float) -> str:
 def _grid(data: list[list[object]], widths: Sequence[float], *, header_rows: int = 1,
           font_size: float = 8.5, row_height: float | None = None,
           right_cols: Sequence[int] = ()) -> Table:
-    """Table with black rules, bold header repeated on each page."""
+    """Table with black rules, bold header (wrapped) repeated on each page."""
+    head = ParagraphStyle("bd-head", parent=_CELL, fontName="Helvetica-Bold",
+                          fontSize=font_size, leading=font_size * 1.2)
+    data = [[_p(c, head) if isinstance(c, str) else c for c in row] if r < header_rows else row
+            for r, row in enumerate(data)]
     t = Table(data, colWidths=list(widths), repeatRows=header_rows,
               rowHeights=None if row_height is None else [None] * header_rows
               + [row_height] * (len(data) - header_rows))

@@ -1,0 +1,51 @@
+"""Bridge from an AntennaDesign to the method-of-moments core (buildsheet.em.resonance).
+
+The design's elements become ElementGeometry (start lengths from the closed form); the joint
+resonance is solved over free space, perfect ground and the site's ground, and the site-ground
+solution is the prediction, with the spread of the three as its uncertainty.
+"""
+
+from __future__ import annotations
+
+from functools import lru_cache
+
+from buildsheet.em import closed_form
+from buildsheet.em.deployed import DeployedAntenna, ElementGeometry
+from buildsheet.em.ground import Ground
+from buildsheet.em.predict import DesignPrediction, ElementPrediction
+from buildsheet.em.resonance import prediction_band
+from buildsheet.model import AntennaDesign
+
+
+def deployed_antenna(design: AntennaDesign, ground: Ground,
+                     leg_lengths_m: tuple[float, ...] | None = None) -> DeployedAntenna:
+    """The design as deployed over ``ground``; leg lengths default to the closed-form start."""
+    wire = design.wire
+    elements = []
+    for i, e in enumerate(design.elements):
+        leg = (leg_lengths_m[i] if leg_lengths_m else
+               closed_form.resonant_length(e.frequency_hz, wire.radius_m, wire) / 2.0)
+        drop = design.apex_height_m - e.end_height_m
+        leg = max(leg, drop * 1.05)  # a start value must reach the end height
+        elements.append(ElementGeometry(e.key, e.frequency_hz, e.low_hz, e.high_hz,
+                                        e.bearing_deg, e.end_height_m, leg, wire))
+    return DeployedAntenna(design.apex_height_m, tuple(elements), ground)
+
+
+@lru_cache(maxsize=64)
+def predict_mom(design: AntennaDesign, ground: Ground) -> DesignPrediction:
+    """Method-of-moments prediction of every element of ``design`` over ``ground``."""
+    band = prediction_band(deployed_antenna(design, ground))
+    own = band.own
+    elements = tuple(
+        ElementPrediction(s.key, "mom", s.leg_length_m, s.z_feed, s.slope_m_per_hz,
+                          tuple(float(f) for f in s.frequencies_hz), tuple(float(x) for x in s.swr),
+                          s.bandwidth_2to1_hz, s.swr_at_design)
+        for s in own.elements
+    )
+    return DesignPrediction(
+        "mom", elements, own.model_note, ground.title,
+        spread=tuple(b.spread for b in band.elements),
+        band_legs_m=tuple((b.min_leg_m, b.max_leg_m) for b in band.elements),
+        notes=tuple(dict.fromkeys(own.notes)),
+    )
