@@ -32,8 +32,16 @@ def instance(seed: int = 5) -> tuple[list[Cut], list[StockItem]]:
     return cuts[:1000], stock
 
 
-def main() -> None:
-    cuts, stock = instance()
+def tight_instance(seed: int = 7) -> tuple[list[Cut], list[StockItem]]:
+    """One material, 1,000 cuts of 0.5-30 m, 50 spools sized so the stock is about 99 % used
+    (the hard end: every spool must be packed nearly full)."""
+    rng = random.Random(seed)
+    cuts = [Cut(f"C{i:04d}", "w", round(rng.uniform(0.5, 30.0), 3), "") for i in range(1000)]
+    need = sum(c.length_m + 0.01 for c in cuts)
+    return cuts, [StockItem("w", round(need / 49.5, 2), 50, "spool")]
+
+
+def run(name: str, cuts: list[Cut], stock: list[StockItem]) -> None:
     times = []
     plan = None
     for _ in range(5):
@@ -41,12 +49,17 @@ def main() -> None:
         plan = plan_spools(cuts, stock)
         times.append(time.perf_counter() - t0)
     assert plan is not None
-    print(f"spool plan: {len(cuts)} cuts, {sum(s.count for s in stock)} spools on hand")
+    print(f"spool plan ({name}): {len(cuts)} cuts, {sum(s.count for s in stock)} spools on hand")
     print(f"  time: median {statistics.median(times):.3f} s, max {max(times):.3f} s "
           f"(target < 1 s)")
     for m in plan.materials:
         print(f"  {m.material}: {m.spools_used} spools used, lower bound {m.lower_bound}, "
               f"waste {m.waste_m:.2f} m, unassigned {len(m.unassigned)}, method {m.method}")
+
+
+def main() -> None:
+    run("two wires, leg lengths", *instance())
+    run("one material, tight", *tight_instance())
 
 
 if __name__ == "__main__":

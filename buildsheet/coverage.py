@@ -82,7 +82,7 @@ def _field_components(
     img_v = sc.vectors * -flip  # PEC image: horizontal parts reversed, vertical kept
     n_img = _radiation_vector(k, img_c, img_v, sc.currents, r)
     gv, gh = _gammas(ground, sc.frequency_hz, elev_rad)
-    n_t = n_t + gv * np.sum(n_img * t_hat, axis=1)
+    n_t = n_t - gv * np.sum(n_img * t_hat, axis=1)
     n_p = n_p - gh * np.sum(n_img * p_hat, axis=1)
     return n_t, n_p
 
@@ -143,7 +143,7 @@ def elevation_cuts(
     sc: SegmentCurrents, ground: Ground, bearing_deg: float, step_deg: float = 1.0
 ) -> ElevationCuts:
     """Broadside and end-fire elevation cuts for an element along compass ``bearing_deg``."""
-    t = np.linspace(0.0, 180.0, int(round(180.0 / step_deg)) + 1)
+    t = np.linspace(0.0, 180.0, round(180.0 / step_deg) + 1)
     elev = np.where(t <= 90.0, t, 180.0 - t)
     side = np.where(t <= 90.0, 0.0, 180.0)
     broad = gain_dbi(sc, ground, elev, bearing_deg + 90.0 + side)
@@ -187,7 +187,8 @@ def _band_power(
         n_t_c, n_p_c = _field_components(sc, Ground("free_space"), e2.ravel(), a2.ravel())
         gv, gh = _gammas(ground, sc.frequency_hz, np.abs(e2.ravel()))
         u = fac * (
-            np.abs(n_t_c) ** 2 * (1.0 - np.abs(gv) ** 2) + np.abs(n_p_c) ** 2 * (1.0 - np.abs(gh) ** 2)
+            np.abs(n_t_c) ** 2 * (1.0 - np.abs(gv) ** 2)
+            + np.abs(n_p_c) ** 2 * (1.0 - np.abs(gh) ** 2)
         )
     else:
         n_t_c, n_p_c = _field_components(sc, ground, e2.ravel(), a2.ravel())

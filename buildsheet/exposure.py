@@ -181,13 +181,19 @@ def cautions(frequency_hz: float) -> tuple[str, ...]:
     near = C0 / frequency_hz / (2.0 * math.pi)
     return (
         "Screening estimate only (far-field formula with ground-reflection factor 2.56).",
-        f"Not valid in the reactive near field, within about {near:.1f} m (lambda/2pi) of the "
-        "antenna, where it may be conservative or not: the E-field near the wire ends and the "
-        "H-field near the feed can exceed it.",
-        "Keep people away from the low element ends and the feed while transmitting; rope off "
-        "or raise ends that are within reach.",
-        "Local regulations and licensed practice govern; where an evaluation is required, do "
-        "a full one.",
+        (
+            f"Not valid in the reactive near field, within about {near:.1f} m (lambda/2pi) of "
+            "the antenna, where it may be conservative or not: the E-field near the wire ends "
+            "and the H-field near the feed can exceed it."
+        ),
+        (
+            "Keep people away from the low element ends and the feed while transmitting; rope "
+            "off or raise ends that are within reach."
+        ),
+        (
+            "Local regulations and licensed practice govern; where an evaluation is required, "
+            "do a full one."
+        ),
     )
 
 

@@ -13,7 +13,9 @@ from dataclasses import dataclass
 from buildsheet.cuts import DesignCuts, ElementCut, design_cuts
 from buildsheet.em.predict import ModelName, predict
 from buildsheet.errors import BuildError, Problem
+from buildsheet.logistics import logistics
 from buildsheet.model import AntennaDesign, Design, Kit
+from buildsheet.stock import BomLine, SpoolPlan
 from buildsheet.units import format_both, format_frequency
 
 SAFETY_CAUTIONS: tuple[str, ...] = (
@@ -56,6 +58,9 @@ class Packet:
     cuts: tuple[DesignCuts, ...]  # per antenna design, in spec order
     entries: tuple[ElementEntry, ...]  # per kit element, sorted by kit then element order
     warnings: tuple[str, ...]
+    kit_boms: dict[str, tuple[BomLine, ...]]  # per kit ID
+    day_bom: tuple[BomLine, ...]  # totals over all kits
+    spool_plan: SpoolPlan
 
     def cuts_for(self, design_key: str) -> DesignCuts:
         return next(c for c in self.cuts if c.design.key == design_key)
@@ -92,7 +97,11 @@ def build_packet(spec: Design, *, built_at: str, revision: int = 1,
         for kit in spec.kits for cut in by_key[kit.design_key].elements
     )
     warnings = list(spec.warnings) + [w for c in cuts for w in c.warnings]
-    return Packet(spec, built_at, revision, model, cuts, entries, tuple(warnings))
+    kit_boms, day_bom, plan = logistics(spec, cuts)
+    for to_buy in plan.to_buy:
+        warnings.append(f"not enough {to_buy.material} on hand: {to_buy.note}")
+    return Packet(spec, built_at, revision, model, cuts, entries, tuple(warnings), kit_boms,
+                  day_bom, plan)
 
 
 def entry_fingerprint(packet: Packet, entry: ElementEntry) -> str:

@@ -63,9 +63,12 @@ def _length(option: str, text: str) -> float:
     return value
 
 
-def _both(metres: float) -> str:
-    from buildsheet.units import format_both
+def _both(metres: float, precise: bool = False) -> str:
+    """Metric and feet-inches; ``precise``: metres to the millimetre (tape-measure lengths)."""
+    from buildsheet.units import format_both, format_length
 
+    if precise:
+        return f"{metres:.3f} m ({format_length(metres, 'imperial')})"
     return format_both(metres)
 
 
@@ -114,8 +117,8 @@ def handle_trim(args: argparse.Namespace, out: TextIO | None = None) -> int:
     verb = "removed from" if trim.delta_m > 0 else "added back to"
     which = "each leg" if leg == "both" else f"leg {leg}"
     print(f"{row.id}: {_both(abs(trim.delta_m))} {verb} {which} recorded.", file=out)
-    print(f"  Current legs: A {_both(history.current_leg_m('A'))}, "
-          f"B {_both(history.current_leg_m('B'))}.", file=out)
+    print(f"  Current legs: A {_both(history.current_leg_m('A'), True)}, "
+          f"B {_both(history.current_leg_m('B'), True)}.", file=out)
     return 0
 
 

@@ -474,7 +474,11 @@ def sync_elements(store: RecordStore, rows: Iterable[ElementRow], revision: int,
     re-activates archived ones that are back, and archives active ones no longer present.
     """
     stamp = iso_time(now)
+    rows = list(rows)
     wanted = {r.id: r for r in rows}
+    if len(wanted) != len(rows):
+        dupes = sorted({r.id for r in rows if sum(o.id == r.id for o in rows) > 1})
+        raise RecordError(f"element IDs repeated in the spec: {', '.join(dupes)}")
     new: list[str] = []
     changed: list[str] = []
     unchanged: list[str] = []

@@ -389,7 +389,7 @@ def _pack(needs: Sequence[int], caps: Sequence[int]) -> tuple[_Packing, str, boo
         return best, method, True  # meets the lower bound
     proven = False
     if len(needs) <= EXACT_MAX_CUTS:
-        best, proven = _exact(needs, caps, best)
+        best, proven = _exact(needs, caps, best, EXACT_NODE_BUDGET)
         method = "exact" if proven else "heuristic"
     return best, method, proven
 

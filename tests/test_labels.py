@@ -33,7 +33,7 @@ from buildsheet.labels import (
     resolve_stock,
     stock_from_mapping,
 )
-from buildsheet.render.labels import render_labels
+from buildsheet.render.labels import render_labels, symbol_rects
 
 URL_TEMPLATE = "https://club.example.org/records/{kit}/{element}/{leg}.html"
 BANDS = (
@@ -481,8 +481,8 @@ def test_text_that_cannot_fit_is_reported_per_label():
         label.payload,
         ("x" * 80,),
     )
-    with pytest.raises(SpecError, match=r"labels\[0\] K01-75m-A"):
-        render_labels([long], STOCKS["roll"], io.BytesIO())
+    with pytest.raises(SpecError, match=r"^s.toml: labels.stock \(label 0, K01-75m-A\):"):
+        render_labels([long], STOCKS["roll"], io.BytesIO(), where="s.toml: labels.stock")
 
 
 def test_error_correction_h_renders_and_decodes_as_h():
@@ -492,3 +492,12 @@ def test_error_correction_h_renders_and_decodes_as_h():
     for img in pages_as_gray(pdf, scale):
         (result,) = decode(img)
         assert result.ec_level == "H"  # zxing-cpp reports the level it decoded
+
+
+def test_symbol_rectangles_cover_exactly_the_dark_modules():
+    matrix = segno.make_qr("K03-40m-A", error="q").matrix  # segno's matrix is the reference
+    grid = np.zeros((len(matrix), len(matrix)), dtype=int)
+    for c, r, w, h in symbol_rects(matrix):
+        grid[r : r + h, c : c + w] += 1
+    assert grid.max() == 1  # no overlaps
+    assert np.array_equal(grid, np.array([[v & 1 for v in row] for row in matrix]))

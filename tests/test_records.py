@@ -305,3 +305,17 @@ def test_fifty_concurrent_measure_processes(store_path: Path) -> None:
         notes = sorted(m.note for m in rec.element_history(store, "K03-40m").measurements)
         assert notes == sorted(f"p{i}" for i in range(50))
         assert rec.integrity_check(store) == ["ok"]
+
+
+def test_migration_adds_a_table_and_keeps_the_data(store_path: Path,
+                                                   monkeypatch: pytest.MonkeyPatch) -> None:
+    """A later schema (e.g. per-design calibrations, issue 7) migrates an existing store."""
+    v2 = (*rec.MIGRATIONS, (2, (("CREATE TABLE calibrations (design TEXT PRIMARY KEY, "
+                                "ratio REAL NOT NULL)"),)))
+    monkeypatch.setattr(rec, "MIGRATIONS", v2)
+    monkeypatch.setattr(rec, "SCHEMA_VERSION", 2)
+    with rec.open_store(store_path) as store:
+        assert store.conn.execute("PRAGMA user_version").fetchone()[0] == 2
+        store.conn.execute("INSERT INTO calibrations VALUES ('nvis-fan', 0.99)")
+        assert [e.id for e in rec.list_elements(store)] == ["K03-40m", "K03-80m"]
+        assert rec.integrity_check(store) == ["ok"]

@@ -54,6 +54,8 @@ class DeployedAntenna:
     feed_height_m: float        # apex / feed-point height above ground
     elements: tuple[ElementGeometry, ...]
     ground: Ground              # from buildsheet.em.ground
+    #: largest segment in wavelengths at the highest frequency analysed (at most 0.05)
+    segment_wavelengths: float = SEGMENT_WAVELENGTHS
 
 
 @dataclass(frozen=True)
@@ -167,7 +169,7 @@ def _check_legs_apart(antenna: DeployedAntenna, legs: list[WireSpec]) -> None:
 
 
 def element_segment_counts(antenna: DeployedAntenna, max_frequency_hz: float | None = None, *,
-                           segment_wavelengths: float = SEGMENT_WAVELENGTHS,
+                           segment_wavelengths: float | None = None,
                            min_segments: int = MIN_SEGMENTS_PER_LEG) -> tuple[int, ...]:
     """Segments per leg for each element by the segmentation rule.
 
@@ -176,13 +178,14 @@ def element_segment_counts(antenna: DeployedAntenna, max_frequency_hz: float | N
     that is shorter than a quarter wave (the usual case).
     """
     f_max = max_frequency_hz or highest_frequency(antenna)
+    segment_wavelengths = segment_wavelengths or antenna.segment_wavelengths
     return tuple(segments_for(max(e.leg_length_m, wavelength(e.design_frequency_hz) / 4.0), f_max,
                               segment_wavelengths=segment_wavelengths, min_segments=min_segments)
                  for e in antenna.elements)
 
 
 def build_structure(antenna: DeployedAntenna, max_frequency_hz: float | None = None, *,
-                    segment_wavelengths: float = SEGMENT_WAVELENGTHS,
+                    segment_wavelengths: float | None = None,
                     min_segments: int = MIN_SEGMENTS_PER_LEG,
                     segment_counts: tuple[int, ...] | None = None) -> Structure:
     """Wires of ``antenna`` segmented for ``max_frequency_hz`` (default: its highest band edge).
@@ -194,6 +197,8 @@ def build_structure(antenna: DeployedAntenna, max_frequency_hz: float | None = N
     legs that touch each other. Thin-wire limits become notes, not errors.
     """
     _check_elements(antenna)
+    if not 0 < antenna.segment_wavelengths <= 0.05:
+        raise BuildError("segment_wavelengths must be in (0, 0.05]")
     f_max = max_frequency_hz or highest_frequency(antenna)
     feed = (0.0, 0.0, float(antenna.feed_height_m))
     legs: list[WireSpec] = []

@@ -170,8 +170,9 @@ def spool_plan_flowables(plan: SpoolPlan, *, title: str = "Spool cut plan",
     out: list[Flowable] = [
         _p(title, _H1),
         _p(f"Every cut includes a cutting tolerance of {fmt(plan.tolerance_m)} on top of its "
-           f"length. Marks run from the free end of each spool. Total remainder on opened "
-           f"spools: {fmt(plan.total_waste_m)}.", _BODY),
+           f"length. Marks run from the free end of each spool. The plan opens the fewest "
+           f"spools and, among plans with as few, the shortest spools that hold the cuts. "
+           f"Total remainder on opened spools: {fmt(plan.total_waste_m)}.", _BODY),
         _p("By material", _H2),
     ]
     rows: list[list[object]] = [["Material", "On hand", "Opened", "Lower bound", "Needed",

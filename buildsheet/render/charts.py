@@ -53,20 +53,54 @@ def elevation_polar_drawing(
     cy = legend_h + 12.0
     height = cy + radius + pad + TITLE_PT + 6.0
     d = Drawing(width_pt, height)
-    d.add(String(cx, height - TITLE_PT - 2.0, title, fontName=FONT_BOLD, fontSize=TITLE_PT,
-                 textAnchor="middle"))
+    d.add(
+        String(
+            cx,
+            height - TITLE_PT - 2.0,
+            title,
+            fontName=FONT_BOLD,
+            fontSize=TITLE_PT,
+            textAnchor="middle",
+        )
+    )
 
     def radius_of(g: np.ndarray) -> np.ndarray:
         return radius * np.clip((g - floor) / (top - floor), 0.0, 1.0)
 
     for i, lev in enumerate(levels[:-1]):
         r = float(radius_of(np.array([lev]))[0])
-        d.add(Wedge(cx, cy, r, 0, 180, strokeColor=GREY if i else colors.black,
-                    strokeWidth=THIN, fillColor=None))
-        d.add(String(cx + r + 1.0, cy - TEXT_PT - 1.0, f"{lev:g}", fontName=FONT,
-                     fontSize=TEXT_PT, textAnchor="middle"))
-    d.add(String(cx, cy - TEXT_PT - 1.0, f"{floor:g} dBi", fontName=FONT, fontSize=TEXT_PT,
-                 textAnchor="middle"))
+        d.add(
+            Wedge(
+                cx,
+                cy,
+                r,
+                0,
+                180,
+                strokeColor=GREY if i else colors.black,
+                strokeWidth=THIN,
+                fillColor=None,
+            )
+        )
+        d.add(
+            String(
+                cx + r + 1.0,
+                cy - TEXT_PT - 1.0,
+                f"{lev:g}",
+                fontName=FONT,
+                fontSize=TEXT_PT,
+                textAnchor="middle",
+            )
+        )
+    d.add(
+        String(
+            cx,
+            cy - TEXT_PT - 1.0,
+            f"{floor:g} dBi",
+            fontName=FONT,
+            fontSize=TEXT_PT,
+            textAnchor="middle",
+        )
+    )
     for a_deg in range(0, 181, 30):
         a = math.radians(a_deg)
         x, y = cx + radius * math.cos(a), cy + radius * math.sin(a)
@@ -87,8 +121,11 @@ def elevation_polar_drawing(
     d.add(Line(pad, ly + 3, pad + 16, ly + 3, strokeColor=colors.black, strokeWidth=BOLD))
     d.add(String(pad + 19, ly, "broadside", fontName=FONT, fontSize=TEXT_PT))
     x2 = cx + 4.0
-    d.add(Line(x2, ly + 3, x2 + 16, ly + 3, strokeColor=GREY, strokeWidth=BOLD,
-               strokeDashArray=[3, 2]))
+    d.add(
+        Line(
+            x2, ly + 3, x2 + 16, ly + 3, strokeColor=GREY, strokeWidth=BOLD, strokeDashArray=[3, 2]
+        )
+    )
     d.add(String(x2 + 19, ly, "end-fire", fontName=FONT, fontSize=TEXT_PT))
     return d
 
@@ -113,8 +150,16 @@ def swr_drawing(
     pw, ph = width_pt - left - right, height_pt - bottom - top_pad
     f0, f1 = float(np.min(f)), float(np.max(f))
     d = Drawing(width_pt, height_pt)
-    d.add(String(width_pt / 2.0, height_pt - TITLE_PT - 2.0, title, fontName=FONT_BOLD,
-                 fontSize=TITLE_PT, textAnchor="middle"))
+    d.add(
+        String(
+            width_pt / 2.0,
+            height_pt - TITLE_PT - 2.0,
+            title,
+            fontName=FONT_BOLD,
+            fontSize=TITLE_PT,
+            textAnchor="middle",
+        )
+    )
 
     def x_of(v: np.ndarray | float) -> np.ndarray | float:
         return left + (np.asarray(v) - f0) / (f1 - f0) * pw
@@ -125,30 +170,55 @@ def swr_drawing(
     for k in range(1, 6):
         y = float(y_of(k))
         d.add(Line(left, y, left + pw, y, strokeColor=LIGHT, strokeWidth=THIN))
-        d.add(String(left - 3, y - 2.5, f"{k}", fontName=FONT, fontSize=TEXT_PT,
-                     textAnchor="end"))
+        d.add(String(left - 3, y - 2.5, f"{k}", fontName=FONT, fontSize=TEXT_PT, textAnchor="end"))
     y2 = float(y_of(2.0))
-    d.add(Line(left, y2, left + pw, y2, strokeColor=colors.black, strokeWidth=THIN,
-               strokeDashArray=[4, 2]))
-    d.add(String(left + pw - 1, y2 + 2, "2:1", fontName=FONT, fontSize=TEXT_PT,
-                 textAnchor="end"))
+    d.add(
+        Line(
+            left,
+            y2,
+            left + pw,
+            y2,
+            strokeColor=colors.black,
+            strokeWidth=THIN,
+            strokeDashArray=[4, 2],
+        )
+    )
+    d.add(String(left + pw - 1, y2 + 2, "2:1", fontName=FONT, fontSize=TEXT_PT, textAnchor="end"))
     for fe in (band_low_hz / 1e6, band_high_hz / 1e6):
         if f0 <= fe <= f1:
             x = float(x_of(fe))
             d.add(Line(x, bottom, x, bottom + ph, strokeColor=GREY, strokeWidth=BOLD))
     if f0 <= design_hz / 1e6 <= f1:
         x = float(x_of(design_hz / 1e6))
-        d.add(Line(x, bottom, x, bottom + ph, strokeColor=colors.black, strokeWidth=THIN,
-                   strokeDashArray=[1, 2]))
+        d.add(
+            Line(
+                x,
+                bottom,
+                x,
+                bottom + ph,
+                strokeColor=colors.black,
+                strokeWidth=THIN,
+                strokeDashArray=[1, 2],
+            )
+        )
     d.add(Line(left, bottom, left + pw, bottom, strokeColor=colors.black, strokeWidth=THIN))
     d.add(Line(left, bottom, left, bottom + ph, strokeColor=colors.black, strokeWidth=THIN))
     for t in np.linspace(f0, f1, 5):
         x = float(x_of(t))
         d.add(Line(x, bottom, x, bottom - 2, strokeColor=colors.black, strokeWidth=THIN))
-        d.add(String(x, bottom - 10, f"{t:.3f}", fontName=FONT, fontSize=TEXT_PT,
-                     textAnchor="middle"))
-    d.add(String(left + pw / 2, 2, "frequency, MHz (grey: band edges, dotted: design)",
-                 fontName=FONT, fontSize=TEXT_PT, textAnchor="middle"))
+        d.add(
+            String(x, bottom - 10, f"{t:.3f}", fontName=FONT, fontSize=TEXT_PT, textAnchor="middle")
+        )
+    d.add(
+        String(
+            left + pw / 2,
+            2,
+            "frequency, MHz (grey: band edges, dotted: design)",
+            fontName=FONT,
+            fontSize=TEXT_PT,
+            textAnchor="middle",
+        )
+    )
     d.add(String(2, bottom + ph / 2 - 2.5, "SWR", fontName=FONT, fontSize=TEXT_PT))
     pts = np.column_stack([x_of(f), y_of(s)]).ravel()
     d.add(PolyLine(pts.tolist(), strokeColor=colors.black, strokeWidth=BOLD))

@@ -197,7 +197,7 @@ class _Plan:
     matrix: tuple[bytearray, ...]
 
 
-def _plan(labels: Sequence[LabelContent], stock: LabelStock, ec: str) -> list[_Plan]:
+def _plan(labels: Sequence[LabelContent], stock: LabelStock, ec: str, where: str) -> list[_Plan]:
     """Layout and set text for every label, or raise SpecError naming each that cannot fit."""
     plans: list[_Plan] = []
     problems: list[Problem] = []
@@ -208,7 +208,7 @@ def _plan(labels: Sequence[LabelContent], stock: LabelStock, ec: str) -> list[_P
         if set_lines is None:
             problems.append(
                 Problem(
-                    f"labels[{i}] {label.leg_id}",
+                    f"{where} (label {i}, {label.leg_id})",
                     f"the text does not fit a {layout.text.width:.1f} x {layout.text.height:.1f} mm "
                     f"text area of stock {stock.name!r} at {MIN_TEXT_PT:g} pt or more (band "
                     f"{MIN_BAND_PT:g} pt); use a larger label or shorter extra lines",
@@ -229,18 +229,20 @@ def render_labels(
     start_cell: int = 0,
     title: str = "",
     ec: str = "q",
+    where: str = "labels.stock",
 ) -> int:
     """Write the labels PDF (labels in the order given) and return the number of pages.
 
     ``start_cell`` skips that many cells of the first page (a partly used sheet). ``title``
-    becomes the PDF document title. A path is written atomically; a stream gets the bytes.
+    becomes the PDF document title. ``where`` locates fit problems in SpecErrors (the spec's
+    stock key). A path is written atomically; a stream gets the bytes.
     """
     if not labels:
         raise BuildError([Problem("labels", "no labels to render")])
     level = check_ec(ec)
     check_start_cell(stock, start_cell)
-    check_fit(stock, [label.payload for label in labels], ec=level)
-    plans = _plan(labels, stock, level)
+    check_fit(stock, [label.payload for label in labels], ec=level, where=where)
+    plans = _plan(labels, stock, level, where)
 
     buf = io.BytesIO()
     page_size = (stock.page_width * mm, stock.page_height * mm)

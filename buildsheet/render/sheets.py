@@ -24,7 +24,7 @@ from reportlab.platypus.tableofcontents import TableOfContents
 from buildsheet.cuts import DesignCuts, ElementCut
 from buildsheet.model import Kit
 from buildsheet.packet import SAFETY_CAUTIONS, Packet
-from buildsheet.render import drawings
+from buildsheet.render import buildday, drawings
 from buildsheet.units import format_both, format_frequency, format_length
 
 _BASE = getSampleStyleSheet()
@@ -50,6 +50,10 @@ GRID = TableStyle([
 ])
 
 
+#: Paragraph styles that become bookmarks and contents entries, with their outline level.
+_OUTLINE_LEVELS = {"title": 0, "h1": 0, "bd-h1": 0, "h2": 1}
+
+
 class SheetDoc(BaseDocTemplate):
     """Doc template that turns h1/h2 paragraphs into PDF bookmarks and contents entries."""
 
@@ -73,8 +77,8 @@ class SheetDoc(BaseDocTemplate):
         canvas.restoreState()
 
     def afterFlowable(self, flowable: Flowable) -> None:  # noqa: N802 - reportlab API
-        if isinstance(flowable, Paragraph) and flowable.style.name in ("title", "h1", "h2"):
-            level = 1 if flowable.style.name == "h2" else 0
+        if isinstance(flowable, Paragraph) and flowable.style.name in _OUTLINE_LEVELS:
+            level = _OUTLINE_LEVELS[flowable.style.name]
             text = flowable.getPlainText()
             key = f"m{self._mark}"
             self._mark += 1
@@ -87,26 +91,34 @@ def _p(text: str, style: str = "cell") -> Paragraph:
     return Paragraph(text, STYLES[style])
 
 
+def _two_line(metres: float, units: str) -> str:
+    """Primary unit on the first line, the other in brackets below (plain table cell text)."""
+    return format_both(metres, units).replace(" (", "\n(")
+
+
+def _table(rows: list[list[str]], widths: list[float], bold_cols: tuple[int, ...] = ()) -> Table:
+    """A ruled table of plain-text cells (faster to lay out than paragraphs)."""
+    t = Table(rows, colWidths=widths, repeatRows=1)
+    t.setStyle(GRID)
+    for col in bold_cols:
+        t.setStyle(TableStyle([("FONT", (col, 1), (col, -1), "Helvetica-Bold", 8)]))
+    return t
+
+
 def element_table(cuts: DesignCuts, units: str) -> Table:
     """The cut table: per element the model lengths, allowances and the cut length per leg."""
-    header = ["Band", "Design freq.", "468/f leg", "Closed-form leg", "Model leg", "Trim",
-              "Termination", "Feed", "CUT EACH LEG"]
-    rows = [[_p(f"<b>{h}</b>") for h in header]]
+    rows = [["Band", "Design\nfreq.", "468/f leg", "Closed-form\nleg", "Model leg", "Trim",
+             "Termi-\nnation", "Feed", "CUT EACH LEG"]]
     for c in cuts.elements:
         rows.append([
-            _p(f"<b>{c.element.band_label}</b>"),
-            _p(format_frequency(c.element.frequency_hz)),
-            _p(format_both(c.rule468_leg_m, units)),
-            _p(format_both(c.closed_form_leg_m, units)),
-            _p(format_both(c.predicted_leg_m, units)),
-            _p(f"{format_both(c.trim_m, units)}<br/>({c.trim_fraction:.1%})"),
-            _p(format_both(c.termination_m, units)),
-            _p(format_both(c.feed_m, units)),
-            _p(f"<b>{format_both(c.cut_leg_m, units)}</b>"),
+            c.element.band_label, format_frequency(c.element.frequency_hz),
+            _two_line(c.rule468_leg_m, units), _two_line(c.closed_form_leg_m, units),
+            _two_line(c.predicted_leg_m, units),
+            f"{format_length(c.trim_m, units)}\n({c.trim_fraction:.1%})",
+            _two_line(c.termination_m, units), _two_line(c.feed_m, units),
+            _two_line(c.cut_leg_m, units),
         ])
-    t = Table(rows, colWidths=[34, 50, 62, 62, 62, 58, 52, 46, 74], repeatRows=1)
-    t.setStyle(GRID)
-    return t
+    return _table(rows, [40, 54, 60, 60, 62, 50, 50, 46, 82], bold_cols=(0, 8))
 
 
 def tuning_lines(cuts: DesignCuts, units: str) -> list[Flowable]:
@@ -142,21 +154,17 @@ def feed_lines(cuts: DesignCuts) -> list[Flowable]:
 
 
 def geometry_table(cuts: DesignCuts, units: str) -> Table:
-    header = ["Leg", "Bearing", "Reach", "Slope", "End height", "Cord line", "Cord to cut",
-              "Stake from mast"]
-    rows = [[_p(f"<b>{h}</b>") for h in header]]
+    rows = [["Leg", "Bearing", "Reach", "Slope", "End height", "Cord line", "Cord to cut",
+             "Stake from mast"]]
     for c in cuts.elements:
         for leg in c.legs:
             rows.append([
-                _p(f"{c.element.band_label} {leg.leg_id}"), _p(f"{leg.bearing_deg:.0f} deg"),
-                _p(format_both(leg.reach_m, units)), _p(f"{leg.slope_deg:.0f} deg"),
-                _p(format_both(leg.end_height_m, units)), _p(format_both(leg.cord_line_m, units)),
-                _p(f"<b>{format_both(leg.cord_cut_m, units)}</b>"),
-                _p(format_both(leg.stake_distance_m, units)),
+                f"{c.element.band_label} {leg.leg_id}", f"{leg.bearing_deg:.0f} deg",
+                _two_line(leg.reach_m, units), f"{leg.slope_deg:.0f} deg",
+                _two_line(leg.end_height_m, units), _two_line(leg.cord_line_m, units),
+                _two_line(leg.cord_cut_m, units), _two_line(leg.stake_distance_m, units),
             ])
-    t = Table(rows, colWidths=[44, 44, 72, 34, 66, 72, 78, 78], repeatRows=1)
-    t.setStyle(GRID)
-    return t
+    return _table(rows, [50, 44, 66, 36, 66, 70, 74, 78], bold_cols=(6,))
 
 
 def cautions_box() -> Table:
@@ -216,6 +224,10 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...],
                             drawings.plan_view(cuts, 270, units, dims)])]
     for w in cuts.warnings:
         story.append(_p(f"<b>Note:</b> {w}", "small"))
+    if len(kits) == 1:
+        story += [CondPageBreak(60 * mm), _p("Kit bill of materials", "h2")]
+        story += buildday.bom_flowables(packet.kit_boms[kits[0].kit_id], title="",
+                                        fmt=_fmt(units), safety=False)[1:]
     story += [Spacer(1, 6), KeepTogether([cautions_box()]), PageBreak()]
     return story
 
@@ -247,10 +259,38 @@ def cover(packet: Packet) -> list[Flowable]:
     return story
 
 
-def sheet_story(packet: Packet, extras: tuple[Extra, ...] = (),
-                front: list[Flowable] | None = None, back: list[Flowable] | None = None) -> list[Flowable]:
-    """The whole sheets document as flowables: cover, optional front matter, build sheets."""
-    story = cover(packet) + list(front or [])
+def _fmt(units: str) -> Callable[[float], str]:
+    return lambda m: format_both(m, units)  # type: ignore[arg-type]
+
+
+def logistics_pages(packet: Packet) -> list[Flowable]:
+    """Day bill of materials, spool cut plan and one cutting-station list per spool."""
+    units = packet.design.event.units
+    story: list[Flowable] = buildday.bom_flowables(
+        packet.day_bom, title="Bill of materials for the day", fmt=_fmt(units))
+    story += [PageBreak()] + buildday.spool_plan_flowables(packet.spool_plan, fmt=_fmt(units))
+    if packet.spool_plan.spools:
+        story += [PageBreak()] + buildday.station_lists_flowables(
+            packet.spool_plan, metric=lambda m: format_length(m, "metric"),
+            imperial=lambda m: format_length(m, "imperial"))
+    return story + [PageBreak()]
+
+
+def log_forms(packet: Packet) -> list[Flowable]:
+    """One measurement log form per kit, a row per element, to fill in by hand."""
+    story: list[Flowable] = []
+    for kit in packet.design.kits:
+        rows = [buildday.LogRow(e.element_id, e.cut.element.band_label, e.cut.element.frequency_hz)
+                for e in packet.kit_entries(kit.kit_id)]
+        story += buildday.log_form_flowables(kit.kit_id, kit.builder, rows, passes=3,
+                                             fmt_freq=format_frequency, safety=False)
+        story.append(PageBreak())
+    return story
+
+
+def sheet_story(packet: Packet, extras: tuple[Extra, ...] = ()) -> list[Flowable]:
+    """The whole sheets document: cover, logistics, build sheets, then the log forms."""
+    story = cover(packet) + logistics_pages(packet)
     for c in packet.cuts:
         kits = packet.kits_of(c.design.key)
         if packet.design.event.layout == "per_design":
@@ -258,7 +298,7 @@ def sheet_story(packet: Packet, extras: tuple[Extra, ...] = (),
         else:
             for k in kits:
                 story += build_sheet(packet, c, (k,), extras)
-    return story + list(back or [])
+    return story + log_forms(packet)
 
 
 def footer_text(packet: Packet) -> str:
