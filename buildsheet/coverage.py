@@ -82,7 +82,7 @@ def _field_components(
     img_v = sc.vectors * -flip  # PEC image: horizontal parts reversed, vertical kept
     n_img = _radiation_vector(k, img_c, img_v, sc.currents, r)
     gv, gh = _gammas(ground, sc.frequency_hz, elev_rad)
-    n_t = n_t - gv * np.sum(n_img * t_hat, axis=1)
+    n_t = n_t + gv * np.sum(n_img * t_hat, axis=1)
     n_p = n_p - gh * np.sum(n_img * p_hat, axis=1)
     return n_t, n_p
 

@@ -36,7 +36,8 @@ def kit_needs(kit: Kit, cuts: DesignCuts) -> KitNeeds:
 
 
 def day_cuts(spec: Design, cuts_by_design: dict[str, DesignCuts]) -> tuple[Cut, ...]:
-    """Every wire leg and tie-off cord cut of the day, with stable IDs (K03-40m-A, ...-cord)."""
+    """Every wire leg and tie-off cord cut of the day, with stable IDs (K03-40m-A; its tie-off
+    cord K03-40m-A-T)."""
     out: list[Cut] = []
     for kit in spec.kits:
         dc = cuts_by_design[kit.design_key]
@@ -44,7 +45,7 @@ def day_cuts(spec: Design, cuts_by_design: dict[str, DesignCuts]) -> tuple[Cut, 
             for leg in c.legs:
                 leg_id = f"{kit.kit_id}-{c.element.key}-{leg.leg_id}"
                 out.append(Cut(leg_id, dc.design.wire.key, c.cut_leg_m, leg_id))
-                out.append(Cut(f"{leg_id}-cord", CORD, leg.cord_cut_m, f"{leg_id} tie-off"))
+                out.append(Cut(f"{leg_id}-T", CORD, leg.cord_cut_m, f"tie-off for {leg_id}"))
     return tuple(out)
 
 

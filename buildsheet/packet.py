@@ -98,8 +98,10 @@ def build_packet(spec: Design, *, built_at: str, revision: int = 1,
     )
     warnings = list(spec.warnings) + [w for c in cuts for w in c.warnings]
     kit_boms, day_bom, plan = logistics(spec, cuts)
-    for to_buy in plan.to_buy:
-        warnings.append(f"not enough {to_buy.material} on hand: {to_buy.note}")
+    for buy in plan.to_buy:
+        what = (f"buy {buy.spools} more of {buy.spool_length_m:.0f} m" if buy.spools else buy.note)
+        warnings.append(f"not enough {buy.material} on hand: {buy.short_m:.1f} m short ({what}); "
+                        "see the spool cut plan")
     return Packet(spec, built_at, revision, model, cuts, entries, tuple(warnings), kit_boms,
                   day_bom, plan)
 

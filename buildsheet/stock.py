@@ -561,7 +561,7 @@ def kit_bom(needs: KitNeeds) -> tuple[BomLine, ...]:
         BomLine("hardware", needs.quick_disconnect_item, needs.quick_disconnects, "pcs",
                 "quick disconnect, one per leg"),
         BomLine("hardware", "ground stake, steel", needs.stakes, "pcs", _STAKE_NOTE),
-        BomLine("hardware", "wire winder", needs.winders, "pcs", "one per element"),
+        BomLine("hardware", "wire winder", needs.winders, "pcs", "one per leg (quick-detach legs)"),
         BomLine("connectors", "crimp ring terminal to suit the wire and balun studs",
                 needs.crimp_ring_terminals, "pcs", "one per leg"),
         BomLine("feed", "1:1 current balun, leg terminals and coax socket", needs.baluns, "pcs",

@@ -234,7 +234,7 @@ def station_list_flowables(spool: SpoolUse, *, metric: LengthFormat = default_me
     for n, pc in enumerate(spool.cuts, start=1):
         rows.append([TickBox(), str(n), _p(pc.cut.cut_id, _BIG_BOLD), _p(pc.cut.label),
                      metric(pc.cut.length_m), metric(pc.mark_m), imperial(pc.mark_m)])
-    table = _grid(rows, [w * width for w in (0.07, 0.05, 0.2, 0.22, 0.12, 0.15, 0.19)],
+    table = _grid(rows, [w * width for w in (0.07, 0.05, 0.27, 0.17, 0.12, 0.14, 0.18)],
                   font_size=10, row_height=9 * mm, right_cols=(4, 5, 6))
     table.setStyle(TableStyle([("ALIGN", (0, 1), (0, -1), "CENTER"),
                                ("FONT", (5, 1), (5, -1), "Helvetica-Bold", 10)]))

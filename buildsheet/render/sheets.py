@@ -260,7 +260,7 @@ def cover(packet: Packet) -> list[Flowable]:
 
 
 def _fmt(units: str) -> Callable[[float], str]:
-    return lambda m: format_both(m, units)  # type: ignore[arg-type]
+    return lambda m: _two_line(m, units)
 
 
 def logistics_pages(packet: Packet) -> list[Flowable]:
@@ -268,7 +268,8 @@ def logistics_pages(packet: Packet) -> list[Flowable]:
     units = packet.design.event.units
     story: list[Flowable] = buildday.bom_flowables(
         packet.day_bom, title="Bill of materials for the day", fmt=_fmt(units))
-    story += [PageBreak()] + buildday.spool_plan_flowables(packet.spool_plan, fmt=_fmt(units))
+    story += [PageBreak()] + buildday.spool_plan_flowables(
+        packet.spool_plan, fmt=lambda m: format_length(m, units))
     if packet.spool_plan.spools:
         story += [PageBreak()] + buildday.station_lists_flowables(
             packet.spool_plan, metric=lambda m: format_length(m, "metric"),

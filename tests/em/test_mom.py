@@ -110,9 +110,11 @@ def test_perfect_ground_image(h, z):
                   (Port("pa", "pb"), Port("qa", "qb")), FREE_SPACE)
     z2 = mom.port_impedances(mom.build_mesh(s), F)[0]
     np.testing.assert_allclose(got, z2[0, 0] - z2[0, 1], rtol=1e-6)
-    # Z11 - Z12(2h) with Carter's Z12 (REFERENCES 4) and our free-space Z11: within 5 %.
+    # Z11 - Z12(2h) with Carter's Z12 (REFERENCES 4) and our free-space Z11: within 5 % at
+    # 0.25 and 0.5 lambda. At 0.1 lambda the MoM current departs from the sinusoid assumed by
+    # Carter's Z12 (REFERENCES 4: "MoM gives about 10 % higher R"); there we allow 10 %.
     approx = z_in(60, 1e-4) - side_by_side_half_wave(2 * h, F)
-    assert abs(got - approx) / abs(approx) < 0.05 or abs(got - approx) < 5.0
+    assert abs(got - approx) / abs(approx) < (0.10 if h < 0.2 else 0.05)
 
 
 def test_low_dipole_over_perfect_ground():
@@ -160,12 +162,13 @@ def test_currents_kirchhoff_and_power():
     z = mom.feed_impedance(ant, 7.15e6)[0]
     i_feed = 2.0 / z
     # Kirchhoff at the A terminal: the feed current splits among the A legs (first segments).
-    feed = np.isclose(np.linalg.norm(sc.centres - sc.vectors / 2 - [0, 0, 7.5], axis=1), 0)
-    a_legs = feed & (np.arange(len(sc.currents)) < len(sc.currents))
-    first = np.flatnonzero(a_legs)
-    assert first.size == 6
-    # Segment-average currents near the feed add up close to the feed current (A legs 0, 2, 4).
-    assert abs(sc.currents[first[::2]].sum() - i_feed) / abs(i_feed) < 0.05
+    first = np.flatnonzero(np.isclose(np.linalg.norm(
+        sc.centres - sc.vectors / 2 - [0, 0, 7.5], axis=1), 0))
+    assert first.size == 6  # legs in order 75m A, B, 60m A, B, 40m A, B; currents point outward
+    # The feed current leaves the A terminal's legs and enters the B terminal's legs; the
+    # segment averages next to the feed add up to it within the current's fall over a segment.
+    assert abs(sc.currents[first[0::2]].sum() + i_feed) / abs(i_feed) < 0.05
+    assert abs(sc.currents[first[1::2]].sum() - i_feed) / abs(i_feed) < 0.05
     # Input power 1/2 Re(Z) |I|^2; copper loss positive and a small part of it (from memory:
     # #14 copper dipoles are well over 90 % efficient at HF).
     np.testing.assert_allclose(sc.input_power_w, 0.5 * z.real * abs(i_feed) ** 2, rtol=1e-9)
@@ -190,7 +193,7 @@ def test_geometry_errors():
         mom.feed_impedance(DeployedAntenna(7.5, (ElementGeometry(
             "40m", 7.1e6, 7.0e6, 7.3e6, 0.0, 2.0, 5.0, w),), PERFECT_GROUND), 7.1e6)
     twin = (ElementGeometry("a", 7.1e6, 7.0e6, 7.3e6, 30.0, 2.0, 10.0, w),
-            ElementGeometry("b", 5.36e6, 5.33e6, 5.41e6, 30.0, 2.0, 13.0, w))
+            ElementGeometry("b", 5.36e6, 5.33e6, 5.41e6, 30.0, 0.35, 13.0, w))  # same slope
     with pytest.raises(BuildError, match="touch"):
         mom.feed_impedance(DeployedAntenna(7.5, twin, PERFECT_GROUND), 7.1e6)
 
