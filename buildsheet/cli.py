@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import os
 import sys
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from importlib import resources
 from pathlib import Path
 
@@ -15,8 +15,8 @@ from buildsheet.errors import BuildsheetError
 def build_timestamp() -> str:
     """One build time for the whole packet: SOURCE_DATE_EPOCH if set (reproducible), else now."""
     epoch = os.environ.get("SOURCE_DATE_EPOCH")
-    moment = (datetime.fromtimestamp(int(epoch), timezone.utc) if epoch and epoch.isdigit()
-              else datetime.now(timezone.utc))
+    moment = (datetime.fromtimestamp(int(epoch), UTC) if epoch and epoch.isdigit()
+              else datetime.now(UTC))
     return moment.strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
@@ -28,9 +28,12 @@ def demo_spec_text() -> str:
 def _cmd_packet(args: argparse.Namespace) -> int:
     from buildsheet.build import build
 
-    result = build(args.spec, args.output, built_at=build_timestamp(), model=args.model)
+    result = build(args.spec, args.output, built_at=build_timestamp(), model=args.model,
+                   store_path=args.store, changed_only=args.changed_only)
     for w in result.packet.warnings:
         print(f"warning: {w}", file=sys.stderr)
+    print(result.report)
+    print(f"records: {result.store}")
     print(f"wrote {', '.join(result.files)} to {result.out_dir}")
     return 0
 
@@ -72,21 +75,32 @@ def make_parser() -> argparse.ArgumentParser:
         p.add_argument("--model", choices=("mom", "closed_form"), default="mom",
                        help="model behind the cut lengths (default: method of moments)")
 
-    p = sub.add_parser("packet", help="build the packet (sheets, labels, manifest) for a spec")
+    p = sub.add_parser("packet", help="build the packet (sheets, labels, record pages, "
+                       "manifest) for a spec and update its element records")
     p.add_argument("spec", help="the TOML spec")
     p.add_argument("-o", "--output", required=True, help="output folder")
+    p.add_argument("--store", metavar="PATH",
+                   help="element record store (default: <spec stem>.records.sqlite beside the "
+                   "spec)")
+    p.add_argument("--changed-only", action="store_true",
+                   help="write sheets and labels only for new and changed elements (labels "
+                   "start at the spec's labels.start_cell); earlier files stay alongside")
     model_option(p)
-    p.set_defaults(func=_cmd_packet)
+    p.set_defaults(handler=_cmd_packet)
 
     p = sub.add_parser("check", help="validate a spec and print the cut table")
     p.add_argument("spec")
     model_option(p)
-    p.set_defaults(func=_cmd_check)
+    p.set_defaults(handler=_cmd_check)
 
     p = sub.add_parser("demo", help="write the bundled demo spec and build its packet")
     p.add_argument("-o", "--output", default="out/demo", help="folder (default out/demo)")
     model_option(p)
-    p.set_defaults(func=_cmd_demo)
+    p.set_defaults(handler=_cmd_demo)
+
+    from buildsheet.record_cli import register
+
+    register(sub)  # measure, trim, export, import
     return parser
 
 
@@ -94,7 +108,7 @@ def main(argv: list[str] | None = None) -> int:
     """Entry point. Exit 0 on success, 1 for a problem in the spec or build, 2 for usage."""
     args = make_parser().parse_args(argv)
     try:
-        return args.func(args)
+        return int(args.handler(args))
     except BuildsheetError as exc:
         for problem in exc.problems:
             print(f"error: {problem}", file=sys.stderr)

@@ -6,14 +6,12 @@ from __future__ import annotations
 from collections.abc import Iterable
 
 from buildsheet.cuts import DesignCuts
+from buildsheet.feedline import coax
 from buildsheet.model import Design, Kit
 from buildsheet.stock import BomLine, Cut, KitNeeds, SpoolPlan, StockItem, WireNeed, day_bom, kit_bom, plan_spools
 
 #: Material key for tie-off cord in the spec's [[stock]] tables.
 CORD = "cord"
-#: Coax names printed in bills of materials, by spec key (generic type names).
-COAX_NAMES = {"rg58": "RG-58", "rg8x": "RG-8X", "rg213": "RG-213",
-              "lowloss10": "10 mm low-loss foam coax"}
 #: Cord for the hang loop at the apex and the balun strain loop, m per kit (common practice).
 HANG_LOOP_CORD_M = 1.0
 BALUN_LOOP_CORD_M = 0.5
@@ -29,7 +27,7 @@ def kit_needs(kit: Kit, cuts: DesignCuts) -> KitNeeds:
         kit_id=kit.kit_id, wires=(WireNeed(d.wire.title, tuple(legs)),),
         tie_off_cords_m=tuple(cords), elements=len(cuts.elements), legs=n_legs,
         end_insulators=n_legs, stakes=n_legs, winders=n_legs, coax_length_m=d.coax_length_m,
-        coax_type=COAX_NAMES.get(d.coax_type, d.coax_type), coax_connectors=2,
+        coax_type=coax(d.coax_type).title, coax_connectors=2,
         crimp_ring_terminals=n_legs, quick_disconnects=n_legs,
         hang_loop_cord_m=HANG_LOOP_CORD_M, balun_loop_cord_m=BALUN_LOOP_CORD_M,
     )

@@ -53,6 +53,8 @@ class Manifest:
     elements: Mapping[str, ManifestElement]
     files: Mapping[str, str] = field(default_factory=dict)
     format: str = MANIFEST_FORMAT
+    spec: str = ""  # the spec's file name, for people reading the manifest
+    notes: tuple[str, ...] = ()  # what this packet wrote (e.g. a changed-only build), plain text
 
 
 @dataclass(frozen=True)
@@ -156,6 +158,14 @@ def format_diff(diff: ManifestDiff) -> str:
     return "\n".join(lines)
 
 
+def recheck_lines(diff: ManifestDiff) -> list[str]:
+    """One "re-check on the analyzer" line per element whose predicted resonance moved."""
+    return [f"re-check on the analyzer: {r.element_id} (the wire already cut now predicts "
+            f"{r.shift_hz / 1e3:+.1f} kHz, {r.fraction * 100:+.2f} %; predicted leg "
+            f"{r.old_predicted_leg_m:.3f} m -> {r.new_predicted_leg_m:.3f} m)"
+            for r in diff.recheck]
+
+
 def manifest_to_dict(m: Manifest) -> dict[str, Any]:
     """The JSON form of a manifest (elements and files in sorted order)."""
     return {
@@ -166,6 +176,7 @@ def manifest_to_dict(m: Manifest) -> dict[str, Any]:
                            "cut_leg_m": e.cut_leg_m, "files": list(e.files)}
                      for eid, e in sorted(m.elements.items())},
         "files": dict(sorted(m.files.items())),
+        "spec": m.spec, "notes": list(m.notes),
     }
 
 
@@ -201,7 +212,11 @@ def manifest_from_dict(data: Any) -> Manifest:
             _number(e.get("design_frequency_hz"), f"{where}.design_frequency_hz"),
             None if cut is None else _number(cut, f"{where}.cut_leg_m"), tuple(files))
     files_map = {str(k): str(v) for k, v in data["files"].items()}
-    return Manifest(data["spec_hash"], data["revision"], data["built_at"], elements, files_map)
+    notes = data.get("notes", [])
+    if not isinstance(notes, list) or not all(isinstance(n, str) for n in notes):
+        raise ValueError("notes must be a list of text lines")
+    return Manifest(data["spec_hash"], data["revision"], data["built_at"], elements, files_map,
+                    spec=str(data.get("spec", "")), notes=tuple(notes))
 
 
 # --------------------------------------------------------------------------- files

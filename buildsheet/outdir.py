@@ -35,14 +35,35 @@ def _backup_name(out_dir: Path) -> Path:
     return out_dir.parent / f".{out_dir.name}.previous"
 
 
+def _staging_prefix(out_dir: Path) -> str:
+    return f".{out_dir.name}.building-"
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
 def recover(out_dir: Path) -> None:
-    """Undo an interrupted swap: restore the previous packet if the new one never landed."""
+    """Undo an interrupted build: restore the previous packet if the new one never landed, and
+    remove staging folders left by builds that were killed (their process is gone)."""
     backup = _backup_name(out_dir)
     if backup.is_dir():
         if out_dir.exists():
             shutil.rmtree(backup, ignore_errors=True)
         else:
             os.replace(backup, out_dir)
+    prefix = _staging_prefix(out_dir)
+    if out_dir.parent.is_dir():
+        for stale in out_dir.parent.glob(prefix + "*"):
+            pid = stale.name[len(prefix):].partition("-")[0]
+            if pid.isdigit() and int(pid) != os.getpid() and not _alive(int(pid)):
+                shutil.rmtree(stale, ignore_errors=True)
 
 
 def prepare_staging(out_dir: Path) -> Path:
@@ -55,7 +76,7 @@ def prepare_staging(out_dir: Path) -> Path:
         recover(out_dir)
         if out_dir.exists() and not out_dir.is_dir():
             raise BuildError([Problem(str(out_dir), "exists and is not a folder; choose another -o")])
-        staging = Path(tempfile.mkdtemp(dir=out_dir.parent, prefix=f".{out_dir.name}.building-"))
+        staging = Path(tempfile.mkdtemp(dir=out_dir.parent, prefix=f"{_staging_prefix(out_dir)}{os.getpid()}-"))
         staging.chmod(0o777 & ~_umask())
         return staging
     except OSError as exc:

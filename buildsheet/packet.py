@@ -15,6 +15,7 @@ from buildsheet.em.predict import ModelName, predict
 from buildsheet.errors import BuildError, Problem
 from buildsheet.logistics import logistics
 from buildsheet.model import AntennaDesign, Design, Kit
+from buildsheet.performance import DesignPerformance, design_performance
 from buildsheet.stock import BomLine, SpoolPlan
 from buildsheet.units import format_both, format_frequency
 
@@ -61,6 +62,10 @@ class Packet:
     kit_boms: dict[str, tuple[BomLine, ...]]  # per kit ID
     day_bom: tuple[BomLine, ...]  # totals over all kits
     spool_plan: SpoolPlan
+    performance: tuple[DesignPerformance, ...]  # per design, same order as cuts
+
+    def performance_for(self, design_key: str) -> DesignPerformance:
+        return next(p for c, p in zip(self.cuts, self.performance) if c.design.key == design_key)
 
     def cuts_for(self, design_key: str) -> DesignCuts:
         return next(c for c in self.cuts if c.design.key == design_key)
@@ -102,8 +107,9 @@ def build_packet(spec: Design, *, built_at: str, revision: int = 1,
         what = (f"buy {buy.spools} more of {buy.spool_length_m:.0f} m" if buy.spools else buy.note)
         warnings.append(f"not enough {buy.material} on hand: {buy.short_m:.1f} m short ({what}); "
                         "see the spool cut plan")
+    performance = tuple(design_performance(c, spec.site.ground, spec.exposure) for c in cuts)
     return Packet(spec, built_at, revision, model, cuts, entries, tuple(warnings), kit_boms,
-                  day_bom, plan)
+                  day_bom, plan, performance)
 
 
 def entry_fingerprint(packet: Packet, entry: ElementEntry) -> str:

@@ -36,4 +36,28 @@ def cut_table(packet: Packet) -> str:
         out.append(_table(["band", "freq", "468/f leg", "closed-form leg", "model leg", "trim",
                            "CUT each leg", "Z feed", "SWR", "per leg per 100 kHz"], rows))
         out.append("")
+        out.append(performance_table(packet, c.design.key))
+        out.append("")
     return "\n".join(out)
+
+
+def performance_table(packet: Packet, design_key: str) -> str:
+    """NVIS figures, height advice and exposure distances of one design."""
+    units = packet.design.event.units
+    perf = packet.performance_for(design_key)
+    rows = []
+    for b in perf.bands:
+        n, h = b.nvis, b.height
+        rows.append([
+            b.band_label, f"{n.zenith_gain_dbi:.1f} dBi", f"{n.share_above_60:.0%}",
+            f"{n.share_above_45:.0%}", f"{n.main_lobe_elevation_deg:.0f} deg",
+            f"{n.ground_loss_share:.0%}", format_both(h.best_height_m, units),
+            "; ".join(f"{d.limit.name} {format_both(d.distance_m, units)}"
+                      for d in b.exposure.distances),
+        ])
+    text = _table(["band", "zenith", ">60 deg", ">45 deg", "main lobe", "ground loss",
+                   "best height", "exposure: limit met beyond"], rows)
+    if perf.compromise is not None:
+        text += f"\ncompromise apex for all bands: {format_both(perf.compromise.height_m, units)}"
+    text += "\nexposure: screening estimate only (far field x 2.56); local rules govern."
+    return text

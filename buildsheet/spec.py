@@ -15,6 +15,8 @@ from typing import Any
 from buildsheet import bands
 from buildsheet.em.ground import FREE_SPACE, GROUND_CLASSES, PERFECT_GROUND, real_ground
 from buildsheet.errors import Problem, SpecError
+from buildsheet.exposure import DUTY_FACTORS
+from buildsheet.feedline import COAX_TYPES
 from buildsheet.model import (
     Allowances, AntennaDesign, Design, ElementSpec, Event, ExposureSettings, Kit, LabelSettings,
     Site, SpoolSpec,
@@ -36,8 +38,8 @@ _LABEL_KEYS = ("stock", "start_cell")
 _EXPOSURE_KEYS = ("power", "mode", "transmit_fraction", "regime")
 _STOCK_KEYS = ("material", "length", "count")
 _GROUNDS = ("free_space", "perfect", *GROUND_CLASSES)
-_MODES = ("ssb", "cw", "fm", "data", "am")
-_COAX = ("rg58", "rg8x", "rg213", "lowloss10")
+_MODES = tuple(DUTY_FACTORS)
+_COAX = tuple(COAX_TYPES)
 
 DEFAULTS = {
     "trim_allowance": "3 %",  # common practice: cut 3-5 % long

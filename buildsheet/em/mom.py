@@ -260,7 +260,6 @@ def _loading(mesh: Mesh, frequency_hz: float, *, loss_only: bool = False) -> np.
                     else series_impedance_per_m(w.wire, frequency_hz))
                    for w in mesh.structure.wires])
     zs = zw[mesh.wire_of] * mesh.length
-    n = mesh.n_segments
     blk = np.array([[1.0 / 3.0, 1.0 / 6.0], [1.0 / 6.0, 1.0 / 3.0]])  # int w_a w_b du / D
     L = np.kron(np.diag(zs), blk)
     return _galerkin(mesh.cols, mesh.signs, L)

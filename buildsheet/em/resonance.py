@@ -11,16 +11,22 @@ the segmentation rule at the end (re-solving if the counts change), so the answe
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, replace
 from functools import lru_cache
-from typing import Callable
 
 import numpy as np
 from numpy.polynomial.chebyshev import chebval
 from scipy.optimize import brentq
 
-from buildsheet.em.deployed import (DeployedAntenna, build_structure, element_segment_counts,
-                                    highest_frequency, wavelength, with_leg_lengths)
+from buildsheet.em.deployed import (
+    DeployedAntenna,
+    build_structure,
+    element_segment_counts,
+    highest_frequency,
+    wavelength,
+    with_leg_lengths,
+)
 from buildsheet.em.ground import FREE_SPACE, PERFECT_GROUND, Ground
 from buildsheet.em.mom import Mesh, build_mesh, describe, mesh_for, port_impedances
 from buildsheet.errors import BuildError

@@ -99,9 +99,11 @@ def plan_view(cuts: DesignCuts, size: float, system: UnitSystem,
             d.add(Line(cx, cy, ex, ey, strokeWidth=1.6, strokeDashArray=dash))
             d.add(Line(ex, ey, sx, sy, strokeWidth=0.6, strokeColor=GREY, strokeDashArray=[2, 2]))
             d.add(Rect(sx - 2.5, sy - 2.5, 5, 5, fillColor=colors.black, strokeWidth=0))
-            tx = sx + 6 * math.sin(b)
-            ty = sy + 6 * math.cos(b) - 3
-            anchor = "start" if math.sin(b) > 0.2 else "end" if math.sin(b) < -0.2 else "middle"
+            if abs(math.sin(b)) < 0.2:  # near north/south: label beside the stake, not on the line
+                tx, ty, anchor = sx + 6, sy + (2 if math.cos(b) > 0 else -6), "start"
+            else:
+                tx, ty = sx + 6 * math.sin(b), sy + 6 * math.cos(b) - 3
+                anchor = "start" if math.sin(b) > 0 else "end"
             d.add(String(tx, ty, f"{c.element.band_label}{leg.leg_id} {leg.bearing_deg:.0f} deg",
                          fontName=FONT, fontSize=7, textAnchor=anchor))
             d.add(String(tx, ty - 8, format_length(leg.stake_distance_m, system), fontName=FONT,

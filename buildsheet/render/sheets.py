@@ -19,12 +19,12 @@ from reportlab.platypus import (
     BaseDocTemplate, CondPageBreak, Flowable, Frame, KeepTogether, PageBreak, PageTemplate,
     Paragraph, Spacer, Table, TableStyle,
 )
-from reportlab.platypus.tableofcontents import TableOfContents
 
 from buildsheet.cuts import DesignCuts, ElementCut
 from buildsheet.model import Kit
 from buildsheet.packet import SAFETY_CAUTIONS, Packet
-from buildsheet.render import buildday, drawings
+from buildsheet.performance import DesignPerformance
+from buildsheet.render import buildday, charts, drawings
 from buildsheet.units import format_both, format_frequency, format_length
 
 _BASE = getSampleStyleSheet()
@@ -68,6 +68,7 @@ class SheetDoc(BaseDocTemplate):
 
     def beforeDocument(self) -> None:  # noqa: N802 - reportlab API; runs once per pass
         self._mark = 0
+        self.headings: list[tuple[int, str, int]] = []
 
     def _footer(self, canvas, doc) -> None:  # noqa: ANN001 - reportlab callback signature
         canvas.saveState()
@@ -84,7 +85,7 @@ class SheetDoc(BaseDocTemplate):
             self._mark += 1
             self.canv.bookmarkPage(key)
             self.canv.addOutlineEntry(text, key, level=level, closed=level > 0)
-            self.notify("TOCEntry", (level, text, self.page, key))
+            self.headings.append((level, text, self.page))
 
 
 def _p(text: str, style: str = "cell") -> Paragraph:
@@ -177,6 +178,86 @@ def cautions_box() -> Table:
     return t
 
 
+def swr_row(cuts: DesignCuts, width: float = 500) -> Table:
+    """The SWR-vs-frequency plot of every band, side by side."""
+    n = len(cuts.elements)
+    w = width / n - 6
+    plots = [charts.swr_drawing(c.prediction.frequencies_hz, c.prediction.swr,
+                                c.element.frequency_hz, c.element.low_hz, c.element.high_hz,
+                                w, 120, f"{c.element.band_label} SWR on 50 ohm")
+             for c in cuts.elements]
+    return Table([plots], colWidths=[width / n] * n)
+
+
+def exposure_box(perf: DesignPerformance, units: str, width: float = 500) -> Table:
+    """The RF-exposure caution box: distances per band and limit, then the cautions."""
+    first = perf.bands[0].exposure
+    paras: list[Flowable] = [_p(
+        f"<b>RF exposure screen</b> ({first.pep_w:.0f} W PEP, {first.mode.upper()} duty "
+        f"{first.duty_factor:.0%}, transmitting {first.transmit_fraction:.0%} of the time, "
+        f"antenna gain {first.gain_dbi:.2f} dBi with the ground-reflection factor 2.56):", "body")]
+    for b in perf.bands:
+        x = b.exposure
+        dist = "; ".join(f"{d.limit.name} beyond {format_both(d.distance_m, units)}"
+                         for d in x.distances)
+        paras.append(_p(f"<b>{b.band_label}</b>: {x.average_power_w:.1f} W average after "
+                        f"{b.feedline_loss_db:.1f} dB feedline loss; {dist}.", "caution"))
+    paras += [Paragraph(text, STYLES["caution"], bulletText="\u2022") for text in first.cautions]
+    t = Table([[paras]], colWidths=[width])
+    t.setStyle(TableStyle([("BOX", (0, 0), (-1, -1), 1.6, colors.black),
+                           ("LEFTPADDING", (0, 0), (-1, -1), 6),
+                           ("TOPPADDING", (0, 0), (-1, -1), 4)]))
+    return t
+
+
+def nvis_table(perf: DesignPerformance, units: str) -> Table:
+    rows = [["Band", "Zenith gain", "Power above\n60 deg", "Power above\n45 deg",
+             "Main lobe\nelevation", "Ground loss\nshare", "Best height\n(zenith)",
+             "Within 1 dB\nof best"]]
+    for b in perf.bands:
+        n, h = b.nvis, b.height
+        rows.append([b.band_label, f"{n.zenith_gain_dbi:.1f} dBi", f"{n.share_above_60:.0%}",
+                     f"{n.share_above_45:.0%}", f"{n.main_lobe_elevation_deg:.0f} deg",
+                     f"{n.ground_loss_share:.0%}",
+                     f"{format_length(h.best_height_m, units)}\n"
+                     f"({h.best_height_m / h.wavelength_m:.2f} wl)",
+                     f"{format_length(h.range_low_m, units)} to\n{format_length(h.range_high_m, units)}"])
+    return _table(rows, [44, 58, 62, 62, 58, 60, 72, 84])
+
+
+def coverage_page(packet: Packet, cuts: DesignCuts) -> list[Flowable]:
+    """Once per design: NVIS table, elevation patterns, height advice, band guidance, exposure."""
+    units = packet.design.event.units
+    perf = packet.performance_for(cuts.design.key)
+    d = cuts.design
+    story: list[Flowable] = [_p(f"Coverage and exposure: {d.title}", "h1"),
+                             _p(perf.method_note, "small"), Spacer(1, 3), nvis_table(perf, units),
+                             Spacer(1, 4)]
+    n = len(perf.bands)
+    w = min(250, 500 / n) - 6
+    polar = [charts.elevation_polar_drawing(b.cuts.angle_deg, b.cuts.broadside_dbi,
+                                            b.cuts.endfire_dbi, w, f"{b.band_label} elevation")
+             for b in perf.bands]
+    story.append(Table([polar], colWidths=[w + 6] * n))
+    apex = d.apex_height_m
+    lines = [f"The apex is at {format_both(apex, units)}."]
+    for b in perf.bands:
+        lines.append(f"{b.band_label}: best zenith gain at {format_both(b.height.best_height_m, units)}; "
+                     f"within 1 dB from {format_length(b.height.range_low_m, units)} to "
+                     f"{format_length(b.height.range_high_m, units)}.")
+    if perf.compromise is not None:
+        c = perf.compromise
+        lines.append(f"Compromise for all bands (lowest apex within 1 dB of each band's best): "
+                     f"<b>{format_both(c.height_m, units)}</b>; worst shortfall there "
+                     f"{c.worst_shortfall_db:.1f} dB.")
+    lines.append("Common practice: about 0.2 wavelength for a transmitting NVIS antenna, about 0.1 "
+                 "wavelength for a separate receiving one; moist farmland beats dry sand or rock.")
+    story += [_p("Height advice", "h2")] + [_p(t, "body") for t in lines]
+    story += [_p("Band by time of day", "h2")] + [_p(t, "body") for t in perf.guidance]
+    story += [Spacer(1, 6), KeepTogether([exposure_box(perf, units)]), PageBreak()]
+    return story
+
+
 Extra = Callable[[Packet, DesignCuts], list[Flowable]]
 
 
@@ -213,7 +294,7 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...],
         f"{cuts.prediction.ground_title}. The 468/f rule and the straight-dipole closed form are "
         "shown for comparison.", "small"))
     story += tuning_lines(cuts, units)
-    story += [_p("Feed point", "h2")] + feed_lines(cuts)
+    story += [_p("Feed point", "h2")] + feed_lines(cuts) + [swr_row(cuts)]
     for extra in extras:
         story += extra(packet, cuts)
     story += [CondPageBreak(120 * mm), _p("Deployment", "h2"),
@@ -228,8 +309,41 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...],
         story += [CondPageBreak(60 * mm), _p("Kit bill of materials", "h2")]
         story += buildday.bom_flowables(packet.kit_boms[kits[0].kit_id], title="",
                                         fmt=_fmt(units), safety=False)[1:]
-    story += [Spacer(1, 6), KeepTogether([cautions_box()]), PageBreak()]
+    story += [Spacer(1, 6), KeepTogether([exposure_box(packet.performance_for(d.key), units)]),
+              Spacer(1, 6), KeepTogether([cautions_box()]), PageBreak()]
     return story
+
+
+#: Placeholder in the story where the table of contents goes (filled by render_sheets).
+CONTENTS_MARK = Spacer(0, 0)
+
+
+def outline_entries(story: list[Flowable]) -> list[tuple[int, str]]:
+    """(level, text) of every heading that becomes a bookmark, in story order."""
+    return [(_OUTLINE_LEVELS[f.style.name], f.getPlainText()) for f in story
+            if isinstance(f, Paragraph) and f.style.name in _OUTLINE_LEVELS]
+
+
+def contents_table(entries: list[tuple[int, str]], pages: list[int] | None) -> Table:
+    """Contents with one row per heading; page numbers blank-padded in the first pass so the
+    layout (and so every page number) is the same in both passes."""
+    rows = [[("    " * level) + text, f"{pages[i]}" if pages else "000"]
+            for i, (level, text) in enumerate(entries)]
+    t = Table(rows, colWidths=[440, 50], rowHeights=11)
+    t.setStyle(TableStyle([("FONT", (0, 0), (-1, -1), "Helvetica", 8),
+                           ("ALIGN", (1, 0), (1, -1), "RIGHT"),
+                           ("LINEBELOW", (0, 0), (-1, -1), 0.25, colors.lightgrey),
+                           ("TOPPADDING", (0, 0), (-1, -1), 1),
+                           ("BOTTOMPADDING", (0, 0), (-1, -1), 1)]))
+    for i, (level, _) in enumerate(entries):
+        if level == 0:
+            t.setStyle(TableStyle([("FONT", (0, i), (-1, i), "Helvetica-Bold", 8)]))
+    return t
+
+
+def _qty(line: buildday.BomLine, units: str) -> str:
+    return (format_length(line.quantity, units) if line.unit == "m"  # type: ignore[arg-type]
+            else f"{line.quantity:g}")
 
 
 def cover(packet: Packet) -> list[Flowable]:
@@ -247,15 +361,16 @@ def cover(packet: Packet) -> list[Flowable]:
                                      for e in c.elements))])
     t = Table(rows, colWidths=[180, 40, 90, 190])
     t.setStyle(GRID)
-    story += [t, Spacer(1, 8)]
+    n_elements = sum(len(packet.kit_entries(k.kit_id)) for k in packet.design.kits)
+    story += [t, Spacer(1, 4), _p(
+        f"<b>Totals:</b> {len(packet.design.kits)} kits, {n_elements} elements, "
+        f"{2 * n_elements} legs and labels. <b>What to bring:</b> "
+        + "; ".join(f"{_qty(line, units)} {line.item}" for line in packet.day_bom)
+        + ". Details in the bill of materials and the spool cut plan.", "body"), Spacer(1, 6)]
     if packet.warnings:
         story.append(_p("Warnings", "h2"))
         story += [_p(w, "small") for w in packet.warnings]
-    toc = TableOfContents()
-    toc.levelStyles = [ParagraphStyle("toc0", fontName="Helvetica", fontSize=9, leading=11),
-                       ParagraphStyle("toc1", fontName="Helvetica", fontSize=8, leading=10,
-                                      leftIndent=12)]
-    story += [_p("Contents", "h2"), toc, PageBreak()]
+    story += [_p("Contents", "h2"), CONTENTS_MARK, PageBreak()]
     return story
 
 
@@ -294,6 +409,7 @@ def sheet_story(packet: Packet, extras: tuple[Extra, ...] = ()) -> list[Flowable
     story = cover(packet) + logistics_pages(packet)
     for c in packet.cuts:
         kits = packet.kits_of(c.design.key)
+        story += coverage_page(packet, c)
         if packet.design.event.layout == "per_design":
             story += build_sheet(packet, c, kits, extras)
         else:
@@ -308,13 +424,25 @@ def footer_text(packet: Packet) -> str:
             f"{packet.revision} | built {packet.built_at} | buildsheet")
 
 
+def _with_contents(story: list[Flowable], contents: Table) -> list[Flowable]:
+    return [contents if f is CONTENTS_MARK else f for f in story]
+
+
 def render_sheets(packet: Packet, out: str | Path | BinaryIO, story: list[Flowable] | None = None) -> None:
     """Write the sheets PDF to a path or a binary stream."""
     pagesize = LETTER if packet.design.event.paper == "letter" else A4
     buf = io.BytesIO()
     doc = SheetDoc(buf, pagesize=pagesize, footer=footer_text(packet),
                    title=f"{packet.design.event.name} build sheets")
-    doc.multiBuild(story if story is not None else sheet_story(packet))
+    make = (lambda: list(story)) if story is not None else (lambda: sheet_story(packet))
+    first = make()
+    entries = outline_entries(first)
+    # Two passes: the first finds the page of every heading, the second prints them.
+    doc.build(_with_contents(first, contents_table(entries, None)))
+    pages = [page for _, _, page in doc.headings]
+    buf.seek(0)
+    buf.truncate()
+    doc.build(_with_contents(make(), contents_table(entries, pages)))
     data = buf.getvalue()
     if isinstance(out, (str, Path)):
         Path(out).write_bytes(data)
