@@ -1,0 +1,73 @@
+"""The assembled packet: logistics totals, performance figures and sheet content."""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+from pypdf import PdfReader
+
+from buildsheet.constants import C0
+from buildsheet.logistics import CORD
+
+
+def test_demo_spool_plan_within_one_of_bound(demo_packet):
+    # Issue 5: on the demo day the plan opens at most one spool more than the lower bound
+    # ceil(total needed / spool length) for each material.
+    plan = demo_packet.packet.spool_plan
+    assert not plan.unassigned
+    for m in plan.materials:
+        assert m.lower_bound <= m.spools_used <= m.lower_bound + 1
+
+
+def test_day_wire_total_equals_sum_of_every_leg(demo_packet):
+    # BOM totals equal the sum over kits (issue 5): every leg of every kit, plus the stated
+    # cutting tolerance per cut.
+    packet = demo_packet.packet
+    legs = [e.cut.cut_leg_m for e in packet.entries for _ in e.leg_ids]
+    wire = [line for line in packet.day_bom if line.category == "wire"]
+    assert len(wire) == 1
+    assert wire[0].quantity == pytest.approx(math.fsum(legs) + 0.01 * len(legs), abs=1e-4)
+    per_kit = [line.quantity for bom in packet.kit_boms.values() for line in bom
+               if line.category == "wire"]
+    assert math.fsum(per_kit) == pytest.approx(wire[0].quantity)
+
+
+def test_every_leg_and_cord_is_cut_once(demo_packet):
+    plan = demo_packet.packet.spool_plan
+    ids = [pc.cut.cut_id for spool in plan.spools for pc in spool.cuts]
+    assert len(ids) == len(set(ids))
+    legs = {leg for e in demo_packet.packet.entries for leg in e.leg_ids}
+    assert legs | {f"{leg}-T" for leg in legs} == set(ids)
+    assert {spool.material for spool in plan.spools} == {"awg16-pvc", CORD}
+
+
+def test_nvis_height_advice_in_common_practice_range(demo_packet):
+    # Common practice: a transmitting NVIS antenna about 0.2 wavelength high; the model's best
+    # zenith height for every demo band lies in 0.1-0.3 wavelength over medium dry ground.
+    for perf in demo_packet.packet.performance:
+        for band in perf.bands:
+            assert 0.1 <= band.height.best_height_m / band.height.wavelength_m <= 0.3
+            assert band.nvis.main_lobe_elevation_deg >= 60  # low antenna: high-angle lobe
+
+
+def test_exposure_screen_follows_oet65_formula(demo_packet):
+    # FCC OET Bulletin 65: S = 2.56 EIRP / (4 pi R^2); 47 CFR 1.1310 uncontrolled limit
+    # 180/f^2 mW/cm^2 (f in MHz) = 1800/f^2 W/m^2.
+    for perf in demo_packet.packet.performance:
+        for band in perf.bands:
+            x = band.exposure
+            f_mhz = x.frequency_hz / 1e6
+            unc = next(d for d in x.distances if "uncontrolled" in d.limit.name)
+            expected = math.sqrt(2.56 * x.eirp_w / (4 * math.pi * 1800 / f_mhz**2))
+            assert unc.distance_m == pytest.approx(expected, rel=1e-6)
+            assert x.near_field_m == pytest.approx(C0 / x.frequency_hz / (2 * math.pi))
+
+
+def test_sheets_carry_coverage_swr_and_exposure(demo_packet):
+    text = " ".join(" ".join(p.extract_text().split()) for p in
+                    PdfReader(demo_packet.out_dir / "sheets.pdf").pages)
+    for words in ("Coverage and exposure", "RF exposure screen", "SWR on 50 ohm",
+                  "Height advice", "Measurement log: kit K13", "Cutting station", "Spool cut plan",
+                  "Bill of materials for the day", "What to bring", "Local regulations", "Screening estimate"):
+        assert words in text, words
