@@ -8,6 +8,7 @@ transaction. Nothing is ever deleted (triggers refuse DELETE): elements dropped 
 archived. Lengths are metres, frequencies hertz, times ISO 8601 text passed in by the caller.
 
 Pure helpers (no I/O): :func:`trim_advice`, :func:`current_leg_m`, :func:`nearest_ids`.
+Export and import live in :mod:`buildsheet.records_io` (re-exported here).
 """
 
 from __future__ import annotations
@@ -31,8 +32,6 @@ PrintKind = Literal["sheet", "label"]
 LEGS: tuple[str, ...] = ("A", "B", "both")
 PRINT_KINDS: tuple[str, ...] = ("sheet", "label")
 
-#: Export file format tag (``export_json``); bump the number on incompatible changes.
-EXPORT_FORMAT = "buildsheet-records"
 #: How long a writer waits for another writer's lock before giving up, milliseconds.
 BUSY_TIMEOUT_MS = 30_000
 #: A dip this far outside the band edges (fraction of the edge) is refused as a probable unit
@@ -46,7 +45,6 @@ STEP_FRACTION = 0.5
 LEG_MISMATCH_M = 0.005
 
 # Schema migrations: (version, statements). Append only; never edit a released migration.
-# Issue 7 (calibrations per design) will add version 2 here.
 _NO_DELETE = ("CREATE TRIGGER {t}_keep BEFORE DELETE ON {t} BEGIN "
               "SELECT RAISE(ABORT, 'records are never deleted; archive instead'); END")
 _CHILD_TABLES = ("measurements", "trims", "prints")
@@ -76,6 +74,13 @@ MIGRATIONS: tuple[tuple[int, tuple[str, ...]], ...] = (
         " file TEXT NOT NULL DEFAULT '', time TEXT NOT NULL)"),
         *(f"CREATE INDEX {t}_element ON {t} (element_id)" for t in _CHILD_TABLES),
         *(_NO_DELETE.format(t=t) for t in ("elements", *_CHILD_TABLES)),
+    )),
+    (2, (  # site calibrations per design (issue 7); ``data`` is the calibration as JSON
+        ("CREATE TABLE calibrations (id INTEGER PRIMARY KEY, design TEXT NOT NULL,"
+         " fingerprint TEXT NOT NULL, data TEXT NOT NULL, sources TEXT NOT NULL DEFAULT '[]',"
+         " created TEXT NOT NULL)"),
+        "CREATE INDEX calibrations_design ON calibrations (design, fingerprint)",
+        _NO_DELETE.format(t="calibrations"),
     )),
 )
 SCHEMA_VERSION: int = MIGRATIONS[-1][0]
@@ -190,18 +195,6 @@ class SyncReport:
     archived: tuple[str, ...] = ()
     restored: tuple[str, ...] = ()
     kept_cut: tuple[str, ...] = ()
-
-
-@dataclass(frozen=True)
-class ImportReport:
-    """Counts of rows added by :func:`import_json`; exact duplicates are skipped."""
-
-    elements: int = 0
-    measurements: int = 0
-    trims: int = 0
-    prints: int = 0
-    skipped: int = 0
-    conflicts: tuple[str, ...] = field(default_factory=tuple)
 
 
 @dataclass(frozen=True)
@@ -625,105 +618,66 @@ def element_history(store: RecordStore, element_id: str) -> ElementHistory:
     return load_histories(store, [element_id])[0]
 
 
-# --------------------------------------------------------------------------- export / import
-
-_TABLES: dict[str, tuple[str, ...]] = {
-    "measurements": ("element_id", "time", "dip_hz", "swr", "note"),
-    "trims": ("element_id", "leg", "delta_m", "time", "note"),
-    "prints": ("revision", "element_id", "kind", "hash", "file", "time"),
-}
+# --------------------------------------------------------------------------- calibrations
 
 
-def export_json(store: RecordStore) -> dict[str, Any]:
-    """The whole store as plain JSON-ready data (a readable backup), read in one snapshot."""
-    conn = store.conn
-    try:
-        conn.execute("BEGIN")
-        try:
-            out: dict[str, Any] = {"format": EXPORT_FORMAT, "schema_version": SCHEMA_VERSION}
-            out["elements"] = [{**asdict(e), "partners": list(e.partners)} for e in map(
-                _element, conn.execute(f"SELECT {_ELEMENT_COLS} FROM elements ORDER BY id"))]
-            for table, cols in _TABLES.items():
-                out[table] = [dict(zip(cols, r)) for r in conn.execute(
-                    f"SELECT {', '.join(cols)} FROM {table} ORDER BY id")]
-        finally:
-            conn.execute("COMMIT")
-    except sqlite3.DatabaseError as exc:
-        raise _corrupt(store.path, exc) from exc
-    return out
+@dataclass(frozen=True)
+class CalibrationRecord:
+    """A stored site calibration of one design (``data``: the calibration as JSON data)."""
+
+    id: int
+    design: str
+    fingerprint: str
+    data: dict[str, Any]
+    sources: tuple[str, ...]
+    created: str
 
 
-def _check_export(data: Any) -> Mapping[str, Any]:
-    if not isinstance(data, Mapping) or data.get("format") != EXPORT_FORMAT:
-        raise RecordError(f"not a buildsheet records export (expected format {EXPORT_FORMAT!r})")
-    version = data.get("schema_version")
-    if not isinstance(version, int) or version > SCHEMA_VERSION:
-        raise RecordError(f"export schema_version {version!r} is not readable by this buildsheet "
-                          f"(reads up to {SCHEMA_VERSION})")
-    for table in ("elements", *_TABLES):
-        if not isinstance(data.get(table, []), list):
-            raise RecordError(f"export: {table!r} must be a list")
-    return data
+def _calibration(r: Sequence[Any]) -> CalibrationRecord:
+    return CalibrationRecord(r[0], r[1], r[2], json.loads(r[3]), tuple(json.loads(r[4])), r[5])
 
 
-_NUMBER_FIELDS = ("design_frequency_hz", "band_low_hz", "band_high_hz", "predicted_leg_m",
-                  "cut_leg_m", "slope_m_per_hz")
-
-
-def _element_from_export(item: Any, i: int) -> ElementRow:
-    names = {f.name for f in fields(ElementRow)}
-    if not isinstance(item, Mapping) or set(item) != names:
-        raise RecordError(f"export: elements[{i}] must have exactly the keys "
-                          f"{', '.join(sorted(names))}")
-    bad = [k for k in _NUMBER_FIELDS if isinstance(item[k], bool)
-           or not isinstance(item[k], (int, float)) or not math.isfinite(item[k])]
-    bad += [k for k in ("id", "kit", "design", "key", "status", "created", "updated")
-            if not isinstance(item[k], str)]
-    if not isinstance(item["partners"], list) or not all(isinstance(p, str)
-                                                          for p in item["partners"]):
-        bad.append("partners")
-    if bad:
-        raise RecordError(f"export: elements[{i}] has bad values for {', '.join(bad)}")
-    return ElementRow(**{**item, "partners": tuple(item["partners"])})
-
-
-def import_json(store: RecordStore, data: Any) -> ImportReport:
-    """Restore an :func:`export_json` backup into the store, in one transaction.
-
-    Merges: missing elements and rows are added, exact duplicates skipped, so importing the same
-    backup twice changes nothing. An element that exists with different values keeps the store's
-    values and is listed in ``conflicts``. Bad data raises RecordError and changes nothing.
-    """
-    data = _check_export(data)
-    counts = {"elements": 0, "measurements": 0, "trims": 0, "prints": 0, "skipped": 0}
-    conflicts: list[str] = []
+def save_calibration(store: RecordStore, design_key: str, fingerprint: str,
+                     data: Mapping[str, Any], source_ids: Sequence[str],
+                     now: datetime) -> CalibrationRecord:
+    """Store a calibration of ``design_key`` fitted for geometry ``fingerprint`` (kept forever;
+    the latest one per design and fingerprint applies)."""
+    if not design_key or not fingerprint:
+        raise RecordError("a calibration needs a design key and a geometry fingerprint")
+    stamp = iso_time(now)
+    text, sources = json.dumps(dict(data), sort_keys=True), json.dumps(list(source_ids))
     with _write(store) as conn:
-        for i, item in enumerate(data.get("elements", [])):
-            row = _element_from_export(item, i)
-            found = conn.execute(f"SELECT {_ELEMENT_COLS} FROM elements WHERE id = ?",
-                                 (row.id,)).fetchone()
-            if found is None:
-                conn.execute(f"INSERT INTO elements ({_ELEMENT_COLS}) VALUES "
-                             f"({', '.join('?' * 15)})", _element_params(row))
-                counts["elements"] += 1
-            elif _element(found) == row:
-                counts["skipped"] += 1
-            else:
-                conflicts.append(row.id)
-        for table, cols in _TABLES.items():
-            for i, item in enumerate(data.get(table, [])):
-                if not isinstance(item, Mapping) or set(item) != set(cols):
-                    raise RecordError(f"export: {table}[{i}] must have exactly the keys "
-                                      f"{', '.join(cols)}")
-                values = [item[c] for c in cols]
-                if not all(v is None or isinstance(v, (str, int, float)) for v in values):
-                    raise RecordError(f"export: {table}[{i}] values must be text or numbers")
-                match = " AND ".join(f"{c} IS ?" for c in cols)
-                if conn.execute(f"SELECT 1 FROM {table} WHERE {match}", values).fetchone():
-                    counts["skipped"] += 1
-                    continue
-                conn.execute(f"INSERT INTO {table} ({', '.join(cols)}) VALUES "
-                             f"({', '.join('?' * len(cols))})", values)
-                counts[table] += 1
-    return ImportReport(counts["elements"], counts["measurements"], counts["trims"],
-                        counts["prints"], counts["skipped"], tuple(conflicts))
+        cur = conn.execute("INSERT INTO calibrations (design, fingerprint, data, sources, created)"
+                           " VALUES (?, ?, ?, ?, ?)", (design_key, fingerprint, text, sources, stamp))
+        return CalibrationRecord(int(cur.lastrowid or 0), design_key, fingerprint,
+                                 json.loads(text), tuple(source_ids), stamp)
+
+
+def latest_calibration(store: RecordStore, design_key: str,
+                       fingerprint: str) -> CalibrationRecord | None:
+    """The newest calibration of ``design_key`` made for this exact geometry fingerprint, or
+    None (a calibration of another geometry or wire never applies)."""
+    rows = _read(store, "SELECT id, design, fingerprint, data, sources, created FROM calibrations"
+                 " WHERE design = ? AND fingerprint = ? ORDER BY created DESC, id DESC LIMIT 1",
+                 (design_key, fingerprint))
+    return _calibration(rows[0]) if rows else None
+
+
+def list_calibrations(store: RecordStore, design_key: str | None = None) -> list[CalibrationRecord]:
+    """Every stored calibration (or those of one design), oldest first."""
+    where = "" if design_key is None else " WHERE design = ?"
+    return [_calibration(r) for r in _read(
+        store, f"SELECT id, design, fingerprint, data, sources, created FROM calibrations{where}"
+        " ORDER BY created, id", () if design_key is None else (design_key,))]
+
+
+_IO_NAMES = frozenset({"EXPORT_FORMAT", "ImportReport", "export_json", "import_json"})
+
+
+def __getattr__(name: str) -> Any:
+    """Export/import names, moved to :mod:`buildsheet.records_io`, still reachable from here."""
+    if name in _IO_NAMES:
+        from buildsheet import records_io
+
+        return getattr(records_io, name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
