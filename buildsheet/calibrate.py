@@ -91,7 +91,7 @@ class Observation:
         if self.kit:
             return self.kit
         suffix = "-" + self.element_key
-        return self.element_id[: -len(suffix)] if self.element_id.endswith(suffix) else self.element_id
+        return self.element_id.removesuffix(suffix)
 
 
 @dataclass(frozen=True)

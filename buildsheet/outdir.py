@@ -6,6 +6,7 @@ import os
 import shutil
 import tempfile
 from pathlib import Path
+from typing import BinaryIO
 
 from buildsheet.errors import BuildError, Problem
 
@@ -29,6 +30,21 @@ def write_atomic(path: Path, data: bytes) -> None:
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
         raise
+
+
+def write_output(data: bytes, out: str | os.PathLike[str] | BinaryIO) -> None:
+    """Write a rendered document to a binary stream, or atomically to a path.
+
+    Raises BuildError naming the path when it cannot be written.
+    """
+    if hasattr(out, "write"):
+        out.write(data)  # type: ignore[union-attr]
+        return
+    path = Path(out)  # type: ignore[arg-type]
+    try:
+        write_atomic(path, data)
+    except OSError as exc:
+        raise BuildError([Problem(str(path), f"cannot write: {exc.strerror or exc}")]) from None
 
 
 def _backup_name(out_dir: Path) -> Path:
@@ -76,7 +92,8 @@ def prepare_staging(out_dir: Path) -> Path:
         recover(out_dir)
         if out_dir.exists() and not out_dir.is_dir():
             raise BuildError([Problem(str(out_dir), "exists and is not a folder; choose another -o")])
-        staging = Path(tempfile.mkdtemp(dir=out_dir.parent, prefix=f"{_staging_prefix(out_dir)}{os.getpid()}-"))
+        prefix = f"{_staging_prefix(out_dir)}{os.getpid()}-"  # the pid lets recover() clean up
+        staging = Path(tempfile.mkdtemp(dir=out_dir.parent, prefix=prefix))
         staging.chmod(0o777 & ~_umask())
         return staging
     except OSError as exc:

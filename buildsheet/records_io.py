@@ -6,7 +6,6 @@ table; importing merges, skipping exact duplicates, in one transaction.
 
 from __future__ import annotations
 
-import json
 import math
 import sqlite3
 from collections.abc import Mapping

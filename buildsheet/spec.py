@@ -21,7 +21,7 @@ from buildsheet.model import (
     Allowances, AntennaDesign, Design, ElementSpec, Event, ExposureSettings, Kit, LabelSettings,
     Site, SpoolSpec,
 )
-from buildsheet.units import FREQUENCY_HELP, LENGTH_HELP, parse_frequency, parse_length
+from buildsheet.units import parse_frequency, parse_length
 from buildsheet.wire import BUILTIN_WIRES, MATERIALS, WireType, awg_diameter
 
 _TOP_KEYS = ("event", "site", "wires", "designs", "kits", "labels", "exposure", "stock")
@@ -317,10 +317,16 @@ def read_spec_text(text: str, source: str = "spec.toml") -> Design:
     layout = r.choice(ev.get("layout", "per_kit"), "event.layout", ("per_kit", "per_design"))
     url = ev.get("record_url")
     if url is not None:
-        unknown = set(re.findall(r"{([^}]*)}", str(url))) - {"kit", "element", "leg"}
-        if unknown or not str(url).startswith(("http://", "https://")):
-            r.bad("event.record_url", f"{url!r}: must start with http:// or https:// and may use "
-                  "only the placeholders {kit}, {element}, {leg}")
+        from buildsheet.labels import record_url
+
+        where = f"{source}: event.record_url"
+        if not str(url).startswith(("http://", "https://")):
+            r.bad("event.record_url", f"{url!r}: must start with http:// or https://")
+        else:
+            try:
+                record_url(str(url), "K01", "K01-40m", "K01-40m-A", where=where)
+            except SpecError as exc:
+                r.problems.extend(exc.problems)
     event = Event(str(ev.get("name", "Build day")), str(ev.get("club", "")),
                   str(ev.get("date", "")), region, units or "metric", paper or "a4",
                   url, layout or "per_kit")

@@ -109,3 +109,32 @@ def test_same_spec_gives_identical_pdfs(tmp_path, demo_spec):
     b = build(demo_spec, tmp_path / "b", built_at="2027-01-01T00:00:00Z", model="closed_form")
     for name in ("sheets.pdf", "labels.pdf"):
         assert (a.out_dir / name).read_bytes() == (b.out_dir / name).read_bytes()
+
+
+def test_record_commands_are_registered(capsys):
+    """measure, trim, export and import are subcommands of the one entry point (argparse)."""
+    for command in ("measure", "trim", "export", "import"):
+        with pytest.raises(SystemExit) as info:
+            main([command, "--help"])
+        assert info.value.code == 0
+        assert f"usage: buildsheet {command}" in capsys.readouterr().out
+
+
+def test_packet_prints_changes_and_keeps_the_store_beside_the_spec(tmp_path, demo_spec, capsys):
+    spec = tmp_path / "club.toml"
+    spec.write_text(demo_spec.read_text(), encoding="utf-8")
+    out = tmp_path / "out"
+    assert main(["packet", str(spec), "-o", str(out), "--model", "closed_form"]) == 0
+    first = capsys.readouterr().out
+    assert "packet revision 1" in first and "K01-40m" in first and "new" in first
+    assert (tmp_path / "club.records.sqlite").is_file()
+    assert not list(out.rglob("*.sqlite"))
+    assert (out / "site" / "index.html").is_file()
+    other = tmp_path / "elsewhere.sqlite"
+    assert main(["packet", str(spec), "-o", str(out), "--model", "closed_form",
+                 "--store", str(other), "--changed-only"]) == 0
+    second = capsys.readouterr().out
+    assert other.is_file() and "revision 1 (previous 1)" in second
+    assert "nothing new or changed" in second
+    assert sorted(p.name for p in out.iterdir()) == ["labels.pdf", "manifest.json", "sheets.pdf",
+                                                     "site"]

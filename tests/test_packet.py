@@ -71,3 +71,21 @@ def test_sheets_carry_coverage_swr_and_exposure(demo_packet):
                   "Height advice", "Measurement log: kit K13", "Cutting station", "Spool cut plan",
                   "Bill of materials for the day", "What to bring", "Local regulations", "Screening estimate"):
         assert words in text, words
+
+
+def test_per_design_layout_imperial_and_icnirp(tmp_path, demo_spec):
+    from buildsheet.build import build
+    from buildsheet.units import format_imperial
+
+    text = (demo_spec.read_text().replace('layout = "per_kit"', 'layout = "per_design"')
+            .replace('units = "metric"', 'units = "imperial"')
+            .replace('regime = "fcc"', 'regime = "both"'))
+    spec = tmp_path / "club.toml"
+    spec.write_text(text)
+    result = build(spec, tmp_path / "out", built_at="2027-01-01T00:00:00Z", model="closed_form")
+    text = " ".join(" ".join(p.extract_text().split())
+                    for p in PdfReader(result.out_dir / "sheets.pdf").pages)
+    assert "Design phonefan" in text and "Kit roster" in text and "Kit K01:" not in text
+    assert "ICNIRP" in text and "FCC uncontrolled" in text
+    cut = result.packet.entries[0].cut.cut_leg_m
+    assert f"{format_imperial(cut)} (" in text  # imperial first, metric in brackets

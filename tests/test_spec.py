@@ -108,3 +108,12 @@ permittivity = 2.3
     # ASTM B258: AWG 18 is 1.024 mm.
     assert w.conductor_diameter_m == pytest.approx(1.0237e-3, rel=1e-3)
     assert w.insulation_eps_r == 2.3
+
+
+@pytest.mark.parametrize("url, words", [
+    ("ftp://x.example/{element}", "must start with http"),
+    ("https://x.example/{elemnt}.html", "allowed: {kit}, {element}, {leg}"),
+])
+def test_record_url_template_checked(url, words):
+    msg = _errors(GOOD.replace('paper = "letter"', f'paper = "letter"\nrecord_url = "{url}"'))
+    assert "event.record_url" in msg and words in msg

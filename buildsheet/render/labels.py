@@ -9,10 +9,8 @@ from __future__ import annotations
 
 import io
 import os
-import tempfile
 from collections.abc import Sequence
 from dataclasses import dataclass
-from pathlib import Path
 from typing import BinaryIO
 
 from reportlab.lib.units import mm
@@ -20,6 +18,7 @@ from reportlab.pdfbase.pdfmetrics import getFont, stringWidth
 from reportlab.pdfgen.canvas import Canvas
 
 from buildsheet.errors import BuildError, Problem, SpecError
+from buildsheet.outdir import write_output
 from buildsheet.labels import (
     LEADING,
     MIN_BAND_PT,
@@ -262,27 +261,8 @@ def render_labels(
         cell += 1
     canvas.showPage()
     canvas.save()
-    _write(buf.getvalue(), out)
+    write_output(buf.getvalue(), out)
     return pages_needed(stock, len(labels), start_cell)
-
-
-def _write(data: bytes, out: str | os.PathLike[str] | BinaryIO) -> None:
-    """Write bytes to a binary stream, or atomically to a path (temp file, then os.replace)."""
-    if hasattr(out, "write"):
-        out.write(data)  # type: ignore[union-attr]
-        return
-    path = Path(out)  # type: ignore[arg-type]
-    try:
-        fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    except OSError as exc:
-        raise BuildError([Problem(str(path), f"cannot write labels: {exc.strerror}")]) from None
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
 
 
 __all__ = ["SetLine", "label_lines", "render_labels", "set_text", "symbol_rects"]

@@ -20,9 +20,10 @@ from reportlab.platypus import (
     Paragraph, Spacer, Table, TableStyle,
 )
 
-from buildsheet.cuts import DesignCuts, ElementCut
+from buildsheet.cuts import DesignCuts
 from buildsheet.model import Kit
 from buildsheet.packet import SAFETY_CAUTIONS, Packet
+from buildsheet.outdir import write_output
 from buildsheet.performance import DesignPerformance
 from buildsheet.render import buildday, charts, drawings
 from buildsheet.units import format_both, format_frequency, format_length
@@ -443,8 +444,4 @@ def render_sheets(packet: Packet, out: str | Path | BinaryIO, story: list[Flowab
     buf.seek(0)
     buf.truncate()
     doc.build(_with_contents(make(), contents_table(entries, pages)))
-    data = buf.getvalue()
-    if isinstance(out, (str, Path)):
-        Path(out).write_bytes(data)
-    else:
-        out.write(data)
+    write_output(buf.getvalue(), out)
