@@ -40,9 +40,9 @@ def small_spec(folder: Path, *, record_url: str | None = None, sixty_in_fan: boo
     """The demo spec cut down to two fan kits and one 60 m kit (same designs, fewer kits)."""
     text = demo_spec_text()
     text = re.sub(r"count = 10\nbuilders = \[.*?\]", 'count = 2\nbuilders = ["Ada", "Ben"]',
-                  text, flags=re.S)
+                  text, flags=re.DOTALL)
     text = re.sub(r"count = 3\nbuilders = \[.*?\]", 'count = 1\nbuilders = ["Kim"]',
-                  text, flags=re.S)
+                  text, flags=re.DOTALL)
     assert 'builders = ["Ada", "Ben"]' in text and 'builders = ["Kim"]' in text
     if record_url:
         text = text.replace("# record_url = ", "record_url = ", 1)

@@ -325,11 +325,40 @@ def outline_entries(story: list[Flowable]) -> list[tuple[int, str]]:
             if isinstance(f, Paragraph) and f.style.name in _OUTLINE_LEVELS]
 
 
-def contents_table(entries: list[tuple[int, str]], pages: list[int] | None) -> Table:
-    """Contents with one row per heading; page numbers blank-padded in the first pass so the
-    layout (and so every page number) is the same in both passes."""
-    rows = [[("    " * level) + text, f"{pages[i]}" if pages else "000"]
-            for i, (level, text) in enumerate(entries)]
+class _PageNumber(Flowable):
+    """A contents page number that is not known yet: drawn as a PDF form XObject that
+    :class:`_PageNumberForms` defines once the heading has been placed (single pass)."""
+
+    def __init__(self, index: int):
+        super().__init__()
+        self.name = f"contents-page-{index}"
+
+    def wrap(self, available_width: float, available_height: float) -> tuple[float, float]:
+        self.width = available_width
+        return available_width, 8
+
+    def draw(self) -> None:
+        self.canv.doForm(self.name)
+
+
+class _PageNumberForms(Flowable):
+    """Last flowable of the document: defines the page-number forms from the headings placed."""
+
+    def wrap(self, available_width: float, available_height: float) -> tuple[float, float]:
+        return 0, 0
+
+    def draw(self) -> None:
+        doc = self.canv._doctemplate
+        for i, (_, _, page) in enumerate(doc.headings):
+            self.canv.beginForm(f"contents-page-{i}", 0, 0, 50, 8)
+            self.canv.setFont("Helvetica", 8)
+            self.canv.drawRightString(48, 1, str(page))
+            self.canv.endForm()
+
+
+def contents_table(entries: list[tuple[int, str]]) -> Table:
+    """Contents with one row per heading; the page numbers are filled in at the end."""
+    rows = [[("    " * level) + text, _PageNumber(i)] for i, (level, text) in enumerate(entries)]
     t = Table(rows, colWidths=[440, 50], rowHeights=11)
     t.setStyle(TableStyle([("FONT", (0, 0), (-1, -1), "Helvetica", 8),
                            ("ALIGN", (1, 0), (1, -1), "RIGHT"),
@@ -435,13 +464,7 @@ def render_sheets(packet: Packet, out: str | Path | BinaryIO, story: list[Flowab
     buf = io.BytesIO()
     doc = SheetDoc(buf, pagesize=pagesize, footer=footer_text(packet),
                    title=f"{packet.design.event.name} build sheets")
-    make = (lambda: list(story)) if story is not None else (lambda: sheet_story(packet))
-    first = make()
-    entries = outline_entries(first)
-    # Two passes: the first finds the page of every heading, the second prints them.
-    doc.build(_with_contents(first, contents_table(entries, None)))
-    pages = [page for _, _, page in doc.headings]
-    buf.seek(0)
-    buf.truncate()
-    doc.build(_with_contents(make(), contents_table(entries, pages)))
+    flowables = list(story) if story is not None else sheet_story(packet)
+    contents = contents_table(outline_entries(flowables))
+    doc.build(_with_contents(flowables, contents) + [_PageNumberForms()])
     write_output(buf.getvalue(), out)
