@@ -8,6 +8,7 @@ another assumed ground (medium dry), as on a real build day.
 
 from __future__ import annotations
 
+import sqlite3
 from dataclasses import replace
 from datetime import UTC, datetime
 from pathlib import Path
@@ -223,8 +224,8 @@ def test_store_keeps_every_calibration_and_returns_the_latest(tmp_path: Path) ->
         rec.save_calibration(store, "d", "fp", {"n": 2}, ["K02-40m"], T0.replace(hour=11))
         latest = rec.latest_calibration(store, "d", "fp")
         assert latest is not None and latest.data == {"n": 2} and latest.sources == ("K02-40m",)
-        assert [c.id for c in rec.list_calibrations(store, "d")][0] == first.id
-        with pytest.raises(Exception, match="never deleted"):
+        assert [c.id for c in rec.list_calibrations(store, "d")] == [first.id, first.id + 1]
+        with pytest.raises(sqlite3.IntegrityError, match="never deleted"):
             store.conn.execute("DELETE FROM calibrations")
         data = rec.export_json(store)
     assert len(data["calibrations"]) == 2

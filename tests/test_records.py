@@ -309,13 +309,14 @@ def test_fifty_concurrent_measure_processes(store_path: Path) -> None:
 
 def test_migration_adds_a_table_and_keeps_the_data(store_path: Path,
                                                    monkeypatch: pytest.MonkeyPatch) -> None:
-    """A later schema (e.g. per-design calibrations, issue 7) migrates an existing store."""
-    v2 = (*rec.MIGRATIONS, (2, (("CREATE TABLE calibrations (design TEXT PRIMARY KEY, "
-                                "ratio REAL NOT NULL)"),)))
-    monkeypatch.setattr(rec, "MIGRATIONS", v2)
-    monkeypatch.setattr(rec, "SCHEMA_VERSION", 2)
+    """A later schema version migrates an existing store and keeps its data."""
+    nxt = rec.SCHEMA_VERSION + 1
+    later = (*rec.MIGRATIONS, (nxt, ("CREATE TABLE later_notes (design TEXT PRIMARY KEY, "
+                                     "ratio REAL NOT NULL)",)))
+    monkeypatch.setattr(rec, "MIGRATIONS", later)
+    monkeypatch.setattr(rec, "SCHEMA_VERSION", nxt)
     with rec.open_store(store_path) as store:
-        assert store.conn.execute("PRAGMA user_version").fetchone()[0] == 2
-        store.conn.execute("INSERT INTO calibrations VALUES ('nvis-fan', 0.99)")
+        assert store.conn.execute("PRAGMA user_version").fetchone()[0] == nxt
+        store.conn.execute("INSERT INTO later_notes VALUES ('nvis-fan', 0.99)")
         assert [e.id for e in rec.list_elements(store)] == ["K03-40m", "K03-80m"]
         assert rec.integrity_check(store) == ["ok"]

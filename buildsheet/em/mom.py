@@ -37,7 +37,7 @@ import numpy as np
 from buildsheet.constants import C0, ETA0
 from buildsheet.em.currents import SegmentCurrents
 from buildsheet.em.deployed import DeployedAntenna, Structure, build_structure, highest_frequency
-from buildsheet.em.ground import complex_permittivity, fresnel_horizontal, fresnel_vertical
+from buildsheet.em.ground import complex_permittivity
 from buildsheet.em.loading import conductor_impedance_per_m, series_impedance_per_m
 from buildsheet.errors import BuildError
 
@@ -56,8 +56,15 @@ class Mesh:
     (column 2i + e is the linear shape of segment i peaking at end e, along t_i); D: (Nb, N)
     divergence of each basis on each segment, 1/m; port_basis: (P,) basis index of each port.
     cols, signs, segs, divs: (Nb, 2) the same as T and D for the two halves of every basis.
-    static / static_img: (2, 2, N, N) analytic-static integrals int int w_a w_b / R, m;
-    dist / dist_img: (N, Q, N, Q) reduced-kernel distances between smooth quadrature points, m.
+    static / static_img: (2, 2, N, N) analytic-static integrals int int w_a w_b / R, m (free
+    space / image source); dist / dist_img: (Q, Q, N, N) reduced-kernel distances between the
+    smooth quadrature points (p on the test segment i, q on the source segment j), m.
+    Ground-independent caches (the fill needs only these and the image arrays per frequency):
+    static_galerkin: (2, Nb, Nb) Galerkin sums of the free-space static integrals, vector part
+    (with t_i . t_j) and scalar part, divided by 4 pi, m and 1/m; pair: (5, N, N) per segment
+    pair t_i . t_j, horizontal and vertical parts of it, sin and cos^2 of the specular elevation
+    angle between segment centres; loading_pattern: (rows, cols, weight, segment) of the
+    Galerkin sum int z' f_m . f_n dl over the segments two basis functions share.
     """
 
     structure: Structure
@@ -78,6 +85,9 @@ class Mesh:
     dist: np.ndarray
     static_img: np.ndarray | None
     dist_img: np.ndarray | None
+    static_galerkin: np.ndarray
+    pair: np.ndarray
+    loading_pattern: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
 
     @property
     def n_segments(self) -> int:
@@ -149,10 +159,13 @@ def _basis(structure: Structure, length: np.ndarray) -> tuple[np.ndarray, ...]:
     return T, D, np.array(port_basis, dtype=int), cols, signs, segs, divs
 
 
+@lru_cache(maxsize=8)
 def _gauss(n: int) -> tuple[np.ndarray, np.ndarray]:
-    """Gauss-Legendre nodes and weights on [0, 1]."""
+    """Gauss-Legendre nodes and weights on [0, 1] (cached; read-only arrays)."""
     x, w = np.polynomial.legendre.leggauss(n)
-    return (x + 1.0) / 2.0, w / 2.0
+    x, w = (x + 1.0) / 2.0, w / 2.0
+    x.flags.writeable = w.flags.writeable = False
+    return x, w
 
 
 def _static_integrals(p0: np.ndarray, t: np.ndarray, length: np.ndarray, a2: np.ndarray,
@@ -180,12 +193,60 @@ def _static_integrals(p0: np.ndarray, t: np.ndarray, length: np.ndarray, a2: np.
 
 def _smooth_distances(p0: np.ndarray, t: np.ndarray, length: np.ndarray, a2: np.ndarray,
                       q0: np.ndarray, qt: np.ndarray) -> np.ndarray:
-    """Reduced-kernel distances between smooth quadrature points, (N, Q, N, Q), m."""
+    """Reduced-kernel distances between smooth quadrature points, (Q, Q, N, N), m."""
     x, _ = _gauss(SMOOTH_POINTS)
     obs = p0[:, None, :] + (length[:, None] * x[None, :])[:, :, None] * t[:, None, :]
     src = q0[:, None, :] + (length[:, None] * x[None, :])[:, :, None] * qt[:, None, :]
-    diff = obs[:, :, None, None, :] - src[None, None, :, :, :]
-    return np.sqrt(np.einsum("ipjqk,ipjqk->ipjq", diff, diff) + a2[:, None, :, None])
+    diff = obs.transpose(1, 0, 2)[:, None, :, None, :] - src.transpose(1, 0, 2)[None, :, None, :, :]
+    return np.sqrt(np.einsum("pqijk,pqijk->pqij", diff, diff) + a2[None, None])
+
+
+def _galerkin(idx: np.ndarray, coef: np.ndarray, M: np.ndarray) -> np.ndarray:
+    """sum over the two halves of m and of n: coef_m coef_n M[idx_m, idx_n] (= T M T^T).
+
+    Rows first, then columns: two gathers of (Nb, 2N) and two of (Nb, Nb) elements.
+    """
+    rows = coef[:, 0, None] * M[idx[:, 0]] + coef[:, 1, None] * M[idx[:, 1]]
+    return rows[:, idx[:, 0]] * coef[None, :, 0] + rows[:, idx[:, 1]] * coef[None, :, 1]
+
+
+def _by_end(P: np.ndarray) -> np.ndarray:
+    """(2, 2, N, N) pair integrals [a, b, i, j] as a (2N, 2N) matrix indexed 2i + a, 2j + b."""
+    n = P.shape[-1]
+    return P.transpose(2, 0, 3, 1).reshape(2 * n, 2 * n)
+
+
+def _pair_geometry(p0: np.ndarray, p1: np.ndarray, t: np.ndarray) -> np.ndarray:
+    """(5, N, N): t_i . t_j, its horizontal and vertical parts, sin psi and cos^2 psi.
+
+    psi is the elevation angle of the specular ray between segment centres over a flat ground
+    at z = 0 (image theory geometry: tan psi = (z_i + z_j) / rho_ij).
+    """
+    horiz = t[:, None, 0] * t[None, :, 0] + t[:, None, 1] * t[None, :, 1]
+    vert = t[:, None, 2] * t[None, :, 2]
+    c = (p0 + p1) / 2.0
+    rho = np.hypot(c[:, None, 0] - c[None, :, 0], c[:, None, 1] - c[None, :, 1])
+    psi = np.arctan2(c[:, None, 2] + c[None, :, 2], rho)
+    return np.stack([t @ t.T, horiz, vert, np.sin(psi), np.cos(psi) ** 2])
+
+
+def _loading_pattern(cols: np.ndarray, signs: np.ndarray,
+                     segs: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Entries of int z' f_m . f_n dl: (row, col, weight, segment), Z_mn += weight z'_seg D_seg.
+
+    Two halves on the same segment with shapes peaking at ends e, e' give
+    int w_e w_e' du = D (1/3 if e = e' else 1/6) (linear shapes on a segment of length D).
+    """
+    blk = np.array([[1.0 / 3.0, 1.0 / 6.0], [1.0 / 6.0, 1.0 / 3.0]])
+    ends = cols % 2
+    parts = []
+    for h in (0, 1):
+        for g in (0, 1):
+            m, n = np.nonzero(segs[:, h, None] == segs[None, :, g])
+            parts.append((m, n, signs[m, h] * signs[n, g] * blk[ends[m, h], ends[n, g]],
+                          segs[m, h]))
+    r, c, w, s = (np.concatenate(v) for v in zip(*parts, strict=True))
+    return r, c, w, s
 
 
 def build_mesh(structure: Structure) -> Mesh:
@@ -200,56 +261,54 @@ def build_mesh(structure: Structure) -> Mesh:
         mirror = np.array([1.0, 1.0, -1.0])
         static_img = _static_integrals(p0, t, length, a2, p0 * mirror, t * mirror)
         dist_img = _smooth_distances(p0, t, length, a2, p0 * mirror, t * mirror)
+    pair = _pair_geometry(p0, p1, t)
+    static_galerkin = np.stack([_galerkin(cols, signs, _by_end(static * pair[0])),
+                                _galerkin(segs, divs, static.sum(axis=(0, 1)))]) / (4.0 * math.pi)
     return Mesh(structure, p0, p1, t, length, radius, owner, T, D, ports, cols, signs, segs, divs,
-                static, dist,
-                static_img, dist_img)
+                static, dist, static_img, dist_img, static_galerkin, pair,
+                _loading_pattern(cols, signs, segs))
 
 
-def _kernel_integrals(static: np.ndarray, dist: np.ndarray, length: np.ndarray,
-                      k: float) -> np.ndarray:
-    """int int w_a w_b G for all pairs at wavenumber k, (2, 2, N, N) complex, m."""
+def _smooth_kernel(dist: np.ndarray, k: float) -> np.ndarray:
+    """(exp(-jkR) - 1) / R at the smooth quadrature points, 1/m (cos and sin, no complex exp)."""
+    kd = k * dist
+    return (np.cos(kd) - 1.0 - 1j * np.sin(kd)) / dist
+
+
+def _smooth_pairs(g: np.ndarray, length: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Shape-weighted Gauss-Legendre sums of the pair kernel g (Q, Q, N, N).
+
+    Returns the four shape pairings int int w_a w_b g (2, 2, N, N) and their sum over a and b
+    (the same with constant weights, w_0 + w_1 = 1), both times D_i D_j, m.
+    """
     x, w = _gauss(SMOOTH_POINTS)
-    g = (np.exp(-1j * k * dist) - 1.0) / dist                      # smooth part, 1/m
-    shape = np.stack([1.0 - x, x]) * w[None, :]                    # (2, Q)
-    lw = length[:, None, None] * shape[None, :, :]                 # (N, 2, Q)
-    smooth = np.einsum("iap,ipjq,jbq->abij", lw, g, lw, optimize=True)
-    return (static + smooth) / (4.0 * math.pi)
-
-
-def _galerkin(idx: np.ndarray, coef: np.ndarray, M: np.ndarray) -> np.ndarray:
-    """sum over the two halves of m and of n: coef_m coef_n M[idx_m, idx_n] (= T M T^T)."""
-    return sum((coef[:, h, None] * coef[None, :, g]) * M[np.ix_(idx[:, h], idx[:, g])]
-               for h in (0, 1) for g in (0, 1))
-
-
-def _assemble(mesh: Mesh, P: np.ndarray, vec_factor: np.ndarray, scal_factor: np.ndarray | float,
-              k: float) -> np.ndarray:
-    """Vector- and scalar-potential parts of Z from pair integrals P (2, 2, N, N)."""
-    n = mesh.n_segments
-    pv = (P * vec_factor[None, None]).transpose(2, 0, 3, 1).reshape(2 * n, 2 * n)
-    s = P.sum(axis=(0, 1)) * scal_factor
-    return (1j * k * ETA0 * _galerkin(mesh.cols, mesh.signs, pv)
-            - 1j * (ETA0 / k) * _galerkin(mesh.segs, mesh.divs, s))
+    shape = np.stack([1.0 - x, x]) * w[None, :]                    # (2, Q): w_a at each point
+    q, n = g.shape[0], g.shape[-1]
+    ll = length[:, None] * length[None, :]
+    left = (shape @ g.reshape(q, -1)).reshape(2, q, n, n)          # [a, q, i, j]
+    both = np.einsum("bq,aqij->abij", shape, left) * ll
+    total = np.einsum("p,q,pqij->ij", w, w, g) * ll
+    return both, total
 
 
 def _image_factors(mesh: Mesh, frequency_hz: float) -> tuple[np.ndarray, np.ndarray]:
     """Weights of the image current (per pair) for the vector and scalar potentials.
 
     Perfect ground: Gamma_h = -1, Gamma_v = +1. Real ground: Fresnel coefficients (Balanis,
-    Antenna Theory, section 4.8) at the specular elevation angle between segment centres.
+    Antenna Theory, section 4.8, as in :func:`buildsheet.em.ground.fresnel_horizontal` and
+    :func:`~buildsheet.em.ground.fresnel_vertical`) at the specular elevation angle between
+    segment centres: Gamma_h = (sin psi - r) / (sin psi + r),
+    Gamma_v = (eps_c sin psi - r) / (eps_c sin psi + r), r = sqrt(eps_c - cos^2 psi).
     """
-    t = mesh.t
-    horiz = t[:, None, 0] * t[None, :, 0] + t[:, None, 1] * t[None, :, 1]
-    vert = t[:, None, 2] * t[None, :, 2]
+    _, horiz, vert, sin_psi, cos2_psi = mesh.pair
     ground = mesh.structure.ground
     if ground.kind == "perfect":
         return vert - horiz, np.full(horiz.shape, -1.0)
     assert ground.ground_class is not None
-    c = (mesh.p0 + mesh.p1) / 2.0
-    rho = np.hypot(c[:, None, 0] - c[None, :, 0], c[:, None, 1] - c[None, :, 1])
-    psi = np.arctan2(c[:, None, 2] + c[None, :, 2], rho)
     eps_c = complex_permittivity(ground.ground_class, frequency_hz)
-    gh, gv = fresnel_horizontal(eps_c, psi), fresnel_vertical(eps_c, psi)
+    root = np.sqrt(eps_c - cos2_psi + 0j)
+    gh = (sin_psi - root) / (sin_psi + root)
+    gv = (eps_c * sin_psi - root) / (eps_c * sin_psi + root)
     return gh * horiz + gv * vert, gh
 
 
@@ -260,20 +319,32 @@ def _loading(mesh: Mesh, frequency_hz: float, *, loss_only: bool = False) -> np.
                     else series_impedance_per_m(w.wire, frequency_hz))
                    for w in mesh.structure.wires])
     zs = zw[mesh.wire_of] * mesh.length
-    blk = np.array([[1.0 / 3.0, 1.0 / 6.0], [1.0 / 6.0, 1.0 / 3.0]])  # int w_a w_b du / D
-    L = np.kron(np.diag(zs), blk)
-    return _galerkin(mesh.cols, mesh.signs, L)
+    r, c, weight, seg = mesh.loading_pattern
+    out = np.zeros((mesh.n_unknowns, mesh.n_unknowns), dtype=complex)
+    np.add.at(out, (r, c), weight * zs[seg])
+    return out
 
 
 def impedance_matrix(mesh: Mesh, frequency_hz: float) -> np.ndarray:
-    """Galerkin impedance matrix Z (Nb x Nb, ohm) of ``mesh`` at ``frequency_hz``."""
+    """Galerkin impedance matrix Z (Nb x Nb, ohm) of ``mesh`` at ``frequency_hz``.
+
+    Z = j k eta (A_static + A_smooth) - j (eta / k) (S_static + S_smooth) + loading, the free-space
+    static parts precomputed per mesh (``static_galerkin``); per frequency only the smooth kernel,
+    the image (with its frequency-dependent Fresnel weights) and the loading are formed.
+    """
     k = 2.0 * math.pi * frequency_hz / C0
-    tt = mesh.t @ mesh.t.T
-    Z = _assemble(mesh, _kernel_integrals(mesh.static, mesh.dist, mesh.length, k), tt, 1.0, k)
+    tt = mesh.pair[0]
+    vec, scal = _smooth_pairs(_smooth_kernel(mesh.dist, k), mesh.length)
+    vec = vec * tt
     if mesh.static_img is not None and mesh.dist_img is not None:
-        vec, scal = _image_factors(mesh, frequency_hz)
-        P_img = _kernel_integrals(mesh.static_img, mesh.dist_img, mesh.length, k)
-        Z = Z + _assemble(mesh, P_img, vec, scal, k)
+        w_vec, w_scal = _image_factors(mesh, frequency_hz)
+        v_img, s_img = _smooth_pairs(_smooth_kernel(mesh.dist_img, k), mesh.length)
+        vec = vec + (v_img + mesh.static_img) * w_vec
+        scal = scal + (s_img + mesh.static_img.sum(axis=(0, 1))) * w_scal
+    a_static, s_static = mesh.static_galerkin
+    c_vec, c_scal = 1j * k * ETA0, -1j * ETA0 / k
+    Z = (c_vec * (_galerkin(mesh.cols, mesh.signs, _by_end(vec)) / (4.0 * math.pi) + a_static)
+         + c_scal * (_galerkin(mesh.segs, mesh.divs, scal) / (4.0 * math.pi) + s_static))
     return Z + _loading(mesh, frequency_hz)
 
 
