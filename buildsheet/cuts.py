@@ -36,6 +36,8 @@ class ElementCut:
     spread_fraction: float | None  # model spread across grounds (None without a band)
     legs: tuple[LegGeometry, LegGeometry]
     included_angle_deg: float
+    calibrated: bool = False  # predicted_leg_m comes from a site calibration
+    uncalibrated_leg_m: float | None = None  # the model's leg before calibration, if calibrated
 
     @property
     def tuning_m_per_100khz(self) -> float:
@@ -55,25 +57,30 @@ class DesignCuts:
     warnings: tuple[str, ...]
 
 
-def trim_fraction_for(design: AntennaDesign, spread: float | None) -> float:
+def trim_fraction_for(design: AntennaDesign, spread: float | None, calibrated: bool = False) -> float:
     """Trim allowance as a fraction of the leg.
 
-    An explicit spec value wins. Otherwise the model spread across ground models is covered
-    (never below the spec's minimum); without a spread the default (3 %) applies.
+    A calibrated design's allowance is its residual uncertainty (never below the spec's
+    minimum). Otherwise an explicit spec value wins, then the model spread across ground models
+    (never below the minimum); without a spread the default (3 %) applies.
     """
     a = design.allowances
+    if calibrated and spread is not None:
+        return max(a.min_trim_fraction, spread)
     if a.trim_explicit or spread is None:
         return a.trim_fraction if a.trim_fraction is not None else 0.0
     return max(a.min_trim_fraction, spread)
 
 
 def element_cut(design: AntennaDesign, element: ElementSpec, prediction: ElementPrediction,
-                closed: ElementPrediction, spread: float | None, model: str) -> ElementCut:
+                closed: ElementPrediction, spread: float | None, model: str,
+                calibrated: bool = False, uncalibrated_leg_m: float | None = None) -> ElementCut:
     """Cut length and geometry of one element from its predicted resonant leg length."""
     a = design.allowances
     leg = prediction.leg_length_m
-    fraction = trim_fraction_for(design, spread)
-    trim = a.trim_m if (a.trim_explicit and a.trim_m is not None) else fraction * leg
+    fraction = trim_fraction_for(design, spread, calibrated)
+    trim = (a.trim_m if (a.trim_explicit and a.trim_m is not None and not calibrated)
+            else fraction * leg)
     cut = leg + trim + a.termination_m + a.feed_m
     legs = tuple(
         leg_geometry(side, element.bearing_deg + (0.0 if side == "A" else 180.0), leg,
@@ -84,18 +91,36 @@ def element_cut(design: AntennaDesign, element: ElementSpec, prediction: Element
     angle = included_angle_deg(leg, design.apex_height_m - element.end_height_m)
     return ElementCut(element, closed_form.rule_468_length(element.frequency_hz) / 2.0,
                       closed.leg_length_m, leg, model, trim / leg, trim, a.termination_m, a.feed_m,
-                      cut, prediction, spread, legs, angle)  # type: ignore[arg-type]
+                      cut, prediction, spread, legs, angle,  # type: ignore[arg-type]
+                      calibrated, uncalibrated_leg_m)
+
+
+def expected_dip_hz(cut: ElementCut, *, uncalibrated: bool = False) -> float:
+    """Where the element as cut (long by its trim allowance) should first dip, Hz.
+
+    First order in the model's tuning slope: f = f_design + (leg as cut - resonant leg) / slope.
+    With ``uncalibrated`` the resonant leg is the model's before any site calibration.
+    """
+    as_cut = cut.predicted_leg_m + cut.trim_m
+    ref = cut.uncalibrated_leg_m if (uncalibrated and cut.uncalibrated_leg_m) else cut.predicted_leg_m
+    return cut.element.frequency_hz + (as_cut - ref) / cut.prediction.slope_m_per_hz
 
 
 def design_cuts(design: AntennaDesign, prediction: DesignPrediction,
-                closed: DesignPrediction) -> DesignCuts:
-    """All element cuts of ``design``; geometry problems raise ValueError with the element."""
+                closed: DesignPrediction, uncalibrated: DesignPrediction | None = None) -> DesignCuts:
+    """All element cuts of ``design``; geometry problems raise ValueError with the element.
+
+    ``uncalibrated`` is the model's prediction before a site calibration (when ``prediction``
+    is calibrated), kept for the expected dips on the log forms.
+    """
     cuts, warnings = [], list(prediction.notes)
     for i, e in enumerate(design.elements):
         p = prediction.element(e.key)
         spread = prediction.spread[i] if prediction.spread else None
         try:
-            cut = element_cut(design, e, p, closed.element(e.key), spread, prediction.model)
+            cut = element_cut(design, e, p, closed.element(e.key), spread, prediction.model,
+                              bool(prediction.calibrated_from),
+                              uncalibrated.element(e.key).leg_length_m if uncalibrated else None)
         except ValueError as exc:
             raise ValueError(f"designs.{design.key}.elements[{i}] ({e.key}): {exc}") from None
         cuts.append(cut)

@@ -8,8 +8,12 @@ from __future__ import annotations
 
 import hashlib
 import json
-from dataclasses import dataclass
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
 
+from buildsheet.calibrate import (
+    BatchTrim, Calibration, CutElement, batch_trims, calibrated_prediction, design_fingerprint,
+)
 from buildsheet.cuts import DesignCuts, ElementCut, design_cuts
 from buildsheet.em.predict import ModelName, predict
 from buildsheet.errors import BuildError, Problem
@@ -63,6 +67,8 @@ class Packet:
     day_bom: tuple[BomLine, ...]  # totals over all kits
     spool_plan: SpoolPlan
     performance: tuple[DesignPerformance, ...]  # per design, same order as cuts
+    calibrations: dict[str, Calibration] = field(default_factory=dict)  # by design key
+    batch_trims: tuple[BatchTrim, ...] = ()  # for elements already cut, when calibrated
 
     def performance_for(self, design_key: str) -> DesignPerformance:
         return next(p for c, p in zip(self.cuts, self.performance) if c.design.key == design_key)
@@ -82,20 +88,41 @@ def element_id(kit: Kit, element_key: str) -> str:
     return f"{kit.kit_id}-{element_key}"
 
 
-def solve_design(design: AntennaDesign, spec: Design, model: ModelName) -> DesignCuts:
-    """Predict and cut one design (cached by the model layer on the design's geometry)."""
+def solve_design(design: AntennaDesign, spec: Design, model: ModelName,
+                 calibration: Calibration | None = None) -> DesignCuts:
+    """Predict and cut one design (cached by the model layer on the design's geometry).
+
+    With a site calibration for the design, the calibrated prediction replaces the model's
+    and the trim allowance shrinks to the calibration's residual uncertainty.
+    """
     closed = predict(design, spec.site.ground, "closed_form")
-    prediction = closed if model == "closed_form" else predict(design, spec.site.ground, model)
+    model_prediction = closed if model == "closed_form" else predict(design, spec.site.ground, model)
+    prediction = (calibrated_prediction(design, calibration) if calibration is not None
+                  else model_prediction)
     try:
-        return design_cuts(design, prediction, closed)
+        return design_cuts(design, prediction, closed,
+                           model_prediction if calibration is not None else None)
     except ValueError as exc:
         raise BuildError([Problem(spec.source, str(exc))]) from None
 
 
-def build_packet(spec: Design, *, built_at: str, revision: int = 1,
-                 model: ModelName = "mom") -> Packet:
-    """Compute everything to print for ``spec``. Raises BuildError for an unbuildable design."""
-    cuts = tuple(solve_design(d, spec, model) for d in spec.designs)
+def usable_calibrations(spec: Design, calibrations: Mapping[str, Calibration]) -> dict[str, Calibration]:
+    """The calibrations that apply: same design key and the same geometry and wire."""
+    return {d.key: calibrations[d.key] for d in spec.designs
+            if d.key in calibrations and calibrations[d.key].fingerprint == design_fingerprint(d)}
+
+
+def build_packet(spec: Design, *, built_at: str, revision: int = 1, model: ModelName = "mom",
+                 calibrations: Mapping[str, Calibration] | None = None,
+                 cut_elements: Sequence[CutElement] = ()) -> Packet:
+    """Compute everything to print for ``spec``. Raises BuildError for an unbuildable design.
+
+    ``calibrations`` (by design key) come from the record store; ``cut_elements`` are the
+    elements already cut (current physical legs), which get a batch trim list when their
+    design is calibrated.
+    """
+    cals = usable_calibrations(spec, calibrations or {})
+    cuts = tuple(solve_design(d, spec, model, cals.get(d.key)) for d in spec.designs)
     by_key = {c.design.key: c for c in cuts}
     entries = tuple(
         ElementEntry(element_id(kit, cut.element.key), kit, cut)
@@ -108,8 +135,17 @@ def build_packet(spec: Design, *, built_at: str, revision: int = 1,
         warnings.append(f"not enough {buy.material} on hand: {buy.short_m:.1f} m short ({what}); "
                         "see the spool cut plan")
     performance = tuple(design_performance(c, spec.site.ground, spec.exposure) for c in cuts)
+    trims: list[BatchTrim] = []
+    for c in cuts:
+        if c.design.key in cals:
+            mine = [e for e in cut_elements
+                    if e.element_id in {x.element_id for x in entries if x.kit.design_key == c.design.key}]
+            trims += batch_trims(c.design, c.prediction, mine)
+    for key in set(calibrations or {}) - set(cals):
+        warnings.append(f"the stored calibration of design {key} no longer applies (its geometry "
+                        "or wire changed); cut lengths are uncalibrated")
     return Packet(spec, built_at, revision, model, cuts, entries, tuple(warnings), kit_boms,
-                  day_bom, plan, performance)
+                  day_bom, plan, performance, cals, tuple(trims))
 
 
 def entry_fingerprint(packet: Packet, entry: ElementEntry) -> str:

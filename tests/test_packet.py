@@ -89,3 +89,61 @@ def test_per_design_layout_imperial_and_icnirp(tmp_path, demo_spec):
     assert "ICNIRP" in text and "FCC uncontrolled" in text
     cut = result.packet.entries[0].cut.cut_leg_m
     assert f"{format_imperial(cut)} (" in text  # imperial first, metric in brackets
+
+
+def test_calibrated_packet_cuts_and_batch_trims(tmp_path, demo_spec):
+    """With a stored site calibration the packet prints calibrated cuts, a smaller trim
+    allowance, and batch trims that bring cut legs to the calibrated prediction (issue 7:
+    consistent to within a millimetre)."""
+    from buildsheet import calibrate as cal
+    from buildsheet.em.ground import GROUND_CLASSES
+    from buildsheet.packet import build_packet
+    from buildsheet.render.sheets import render_sheets
+    from buildsheet.spec import load_spec
+
+    spec = load_spec(demo_spec)
+    fan = spec.design("phonefan")
+    plain = build_packet(spec, built_at="t")
+    # A calibration as the store would hand it over: the site behaves like wet ground.
+    calibration = cal.Calibration(
+        "phonefan", cal.design_fingerprint(fan), GROUND_CLASSES["wet"], "wet", (), "medium dry",
+        (), (), 0.004, ("K01-75m", "K01-40m"), ())
+    k01 = [e for e in plain.entries if e.kit.kit_id == "K01"]
+    cut = [cal.CutElement(e.element_id, e.cut.element.key, e.cut.cut_leg_m, e.cut.cut_leg_m - 0.02)
+           for e in k01]
+    packet = build_packet(spec, built_at="t", calibrations={"phonefan": calibration},
+                          cut_elements=cut)
+    fan_cuts = packet.cuts_for("phonefan")
+    assert fan_cuts.prediction.calibrated_from == ("K01-75m", "K01-40m")
+    for c, before in zip(fan_cuts.elements, plain.cuts_for("phonefan").elements):
+        assert c.calibrated and c.trim_fraction == pytest.approx(max(0.01, 0.004))
+        assert c.trim_fraction < before.trim_fraction
+        assert c.predicted_leg_m != pytest.approx(before.predicted_leg_m, abs=1e-3)
+    a = fan.allowances
+    assert {t.element_id for t in packet.batch_trims} == {e.element_id for e in k01}
+    for t, c in zip(packet.batch_trims, fan_cuts.elements):
+        after_a = t.leg_a_m - t.remove_a_m - a.termination_m - a.feed_m
+        after_b = t.leg_b_m - t.remove_b_m - a.termination_m - a.feed_m
+        assert after_a == pytest.approx(c.predicted_leg_m, abs=1e-3)
+        assert after_b == pytest.approx(c.predicted_leg_m, abs=1e-3)
+    # The sixty design has no calibration and keeps its cuts.
+    assert packet.cuts_for("sixty").elements[0].cut_leg_m == plain.cuts_for("sixty").elements[0].cut_leg_m
+    out = tmp_path / "s.pdf"
+    render_sheets(packet, out)
+    text = " ".join(" ".join(p.extract_text().split()) for p in PdfReader(out).pages)
+    assert "CALIBRATED" in text and "Batch trims for kits already cut" in text
+    assert "cal. " in text  # calibrated expected dip on the log forms
+
+
+def test_stale_calibration_is_not_applied(demo_spec):
+    from buildsheet import calibrate as cal
+    from buildsheet.em.ground import GROUND_CLASSES
+    from buildsheet.packet import build_packet
+    from buildsheet.spec import load_spec
+
+    spec = load_spec(demo_spec)
+    stale = cal.Calibration("phonefan", "0" * 64, GROUND_CLASSES["wet"], "wet", (), "medium dry",
+                            (), (), 0.004, ("K01-75m",), ())
+    packet = build_packet(spec, built_at="t", calibrations={"phonefan": stale})
+    assert not packet.cuts_for("phonefan").prediction.calibrated_from
+    assert any("no longer applies" in w for w in packet.warnings)

@@ -47,6 +47,7 @@ class DesignPrediction:
     spread: tuple[float, ...] = ()  # per element, fractional spread across ground models
     band_legs_m: tuple[tuple[float, float], ...] = ()  # per element, (min, max) leg length
     notes: tuple[str, ...] = ()
+    calibrated_from: tuple[str, ...] = ()  # element IDs of the site calibration, if any
 
     def element(self, key: str) -> ElementPrediction:
         return next(e for e in self.elements if e.key == key)

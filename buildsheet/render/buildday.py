@@ -268,6 +268,8 @@ class LogRow:
     element_id: str
     band: str
     design_frequency_hz: float
+    expected_dip_hz: float | None = None  # the model's first dip of the element as cut
+    calibrated_dip_hz: float | None = None  # the same from the site calibration, if any
 
 
 def default_mhz(hz: float) -> str:
@@ -291,15 +293,23 @@ def log_form_flowables(kit_id: str, builder: str, rows: Sequence[LogRow], *, pas
            "of the computed amount per step, staying on the long (low-frequency) side.", _BODY),
         Spacer(1, 3 * mm),
     ]
-    data: list[list[object]] = [["Element", "Band", "Design freq.", "Dip freq. (MHz)",
-                                 "SWR at dip", "Trim made (each leg)", "Initials"]]
+    data: list[list[object]] = [["Element", "Band", "Design freq.", "Expected dip",
+                                 "Measured dip (MHz)", "SWR at dip", "Trim made (each leg)",
+                                 "Initials"]]
     for r in rows:
+        expected = fmt_freq(r.expected_dip_hz) if r.expected_dip_hz else ""
+        if r.calibrated_dip_hz:
+            expected += f"\ncal. {fmt_freq(r.calibrated_dip_hz)}"
         for k in range(max(1, passes)):
             first = k == 0
             data.append([_p(r.element_id if first else "", _BIG_BOLD), r.band if first else "",
-                         fmt_freq(r.design_frequency_hz) if first else "", "", "", "", ""])
-    out.append(_grid(data, [w * width for w in (0.17, 0.08, 0.15, 0.16, 0.11, 0.21, 0.12)],
+                         fmt_freq(r.design_frequency_hz) if first else "",
+                         expected if first else "", "", "", "", ""])
+    out.append(_grid(data, [w * width for w in (0.15, 0.08, 0.13, 0.14, 0.14, 0.09, 0.17, 0.10)],
                      font_size=9, row_height=11 * mm))
+    out.append(_p("Expected dip: where the model puts the first dip of the element as cut "
+                  "(long by the trim allowance), so the first reading should land near it; "
+                  "\"cal.\" is the same from the site calibration.", _SMALL))
     out.append(Spacer(1, 3 * mm))
     out.append(_grid([["Notes"], [""]], [width], font_size=9, row_height=25 * mm))
     if safety:

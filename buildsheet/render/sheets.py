@@ -20,7 +20,7 @@ from reportlab.platypus import (
     Paragraph, Spacer, Table, TableStyle,
 )
 
-from buildsheet.cuts import DesignCuts
+from buildsheet.cuts import DesignCuts, expected_dip_hz
 from buildsheet.model import Kit
 from buildsheet.packet import SAFETY_CAUTIONS, Packet
 from buildsheet.outdir import write_output
@@ -274,6 +274,8 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...],
     else:
         heading = f"Design {d.key}: {d.title} ({len(kits)} kits)"
     story: list[Flowable] = [_p(heading, "h1")]
+    if cuts.prediction.calibrated_from:
+        story.append(_p(f"<b>CALIBRATED</b> cut lengths: {cuts.prediction.model_note}", "body"))
     story.append(_p(
         f"{ev.name} - {ev.date}. {d.kind} ({len(d.elements)} element"
         f"{'s' if len(d.elements) > 1 else ''}) on one 1:1 balun, {d.mount.replace('_', ' ')}, "
@@ -422,11 +424,35 @@ def logistics_pages(packet: Packet) -> list[Flowable]:
     return story + [PageBreak()]
 
 
+def batch_trim_pages(packet: Packet) -> list[Flowable]:
+    """For kits already cut when a site calibration exists: what to remove from each leg."""
+    if not packet.batch_trims:
+        return []
+    units = packet.design.event.units
+    rows = [["Element", "Legs now (A / B)", "Target leg", "Remove from A", "Remove from B",
+             "Action"]]
+    for t in packet.batch_trims:
+        rows.append([t.element_id, f"{format_length(t.leg_a_m, units)} / {format_length(t.leg_b_m, units)}",
+                     _two_line(t.target_leg_m, units), _two_line(t.remove_a_m, units),
+                     _two_line(t.remove_b_m, units), t.action])
+    sources = "; ".join(f"{k}: calibrated from {', '.join(c.source_ids)}, site like "
+                        f"{c.site_like_title}, residual {c.uncertainty:.1%}"
+                        for k, c in packet.calibrations.items())
+    return [_p("Batch trims for kits already cut", "h1"),
+            _p("The site calibration moves the predicted resonance of every element of its "
+               f"design. Before raising a kit already cut, trim each leg as listed ({sources}). "
+               "Negative values mean add wire back. Trim both legs equally and re-check on the "
+               "analyzer.", "body"), Spacer(1, 4),
+            _table(rows, [80, 110, 72, 76, 76, 60], bold_cols=(3, 4)), PageBreak()]
+
+
 def log_forms(packet: Packet) -> list[Flowable]:
     """One measurement log form per kit, a row per element, to fill in by hand."""
     story: list[Flowable] = []
     for kit in packet.design.kits:
-        rows = [buildday.LogRow(e.element_id, e.cut.element.band_label, e.cut.element.frequency_hz)
+        rows = [buildday.LogRow(e.element_id, e.cut.element.band_label, e.cut.element.frequency_hz,
+                                expected_dip_hz(e.cut, uncalibrated=True),
+                                expected_dip_hz(e.cut) if e.cut.calibrated else None)
                 for e in packet.kit_entries(kit.kit_id)]
         story += buildday.log_form_flowables(kit.kit_id, kit.builder, rows, passes=3,
                                              fmt_freq=format_frequency, safety=False)
@@ -436,7 +462,7 @@ def log_forms(packet: Packet) -> list[Flowable]:
 
 def sheet_story(packet: Packet, extras: tuple[Extra, ...] = ()) -> list[Flowable]:
     """The whole sheets document: cover, logistics, build sheets, then the log forms."""
-    story = cover(packet) + logistics_pages(packet)
+    story = cover(packet) + logistics_pages(packet) + batch_trim_pages(packet)
     for c in packet.cuts:
         kits = packet.kits_of(c.design.key)
         story += coverage_page(packet, c)
