@@ -79,7 +79,7 @@ def test_killed_builds_leave_the_previous_packet_intact(tmp_path: Path) -> None:
                 killed_midway += 1
                 proc.send_signal(signal.SIGKILL)
         finally:
-            proc.wait(timeout=120, check=False)
+            proc.wait(timeout=120)
         recover(out)  # what the next build does first
         assert_complete_packet(out, store)
         leftovers = [p.name for p in folder.iterdir() if p.name.startswith(".out.")]

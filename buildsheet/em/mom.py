@@ -176,19 +176,33 @@ def _static_integrals(p0: np.ndarray, t: np.ndarray, length: np.ndarray, a2: np.
     analytic (shared REFERENCES.md section 5.1): with xi the projection of the observation point
     on the source axis and b^2 = rho^2 + a^2, I0 = asinh((D - xi)/b) + asinh(xi/b) and
     I1 = int u'/R = R(D) - R(0) + xi I0. The test integral is Gauss-Legendre.
+
+    The observation point p0_i + u t_i is never formed: with Delta = p0_i - q0_j,
+    xi = Delta . t'_j + u t_i . t'_j and rho = |Delta_perp + u t_perp| (components across the
+    source axis), so only (N, N) pair quantities and one (Q, N, N) array per term are needed,
+    and rho of collinear segments is exactly zero up to rounding of the perpendicular parts.
     """
     x, w = _gauss(STATIC_POINTS)
-    obs = p0[:, None, :] + (length[:, None] * x[None, :])[:, :, None] * t[:, None, :]  # (N,Q,3)
-    d = obs[:, :, None, :] - q0[None, None, :, :]                                      # (N,Q,N,3)
-    xi = np.einsum("ipjk,jk->ipj", d, qt)
-    b2 = np.maximum(np.einsum("ipjk,ipjk->ipj", d, d) - xi**2, 0.0) + a2[:, None, :]
+    delta = p0[:, None, :] - q0[None, :, :]                        # (N, N, 3)
+    along = np.einsum("ijk,jk->ij", delta, qt)                     # Delta . t'_j
+    cos = t @ qt.T                                                 # t_i . t'_j
+    d_perp = delta - along[:, :, None] * qt[None, :, :]
+    t_perp = t[:, None, :] - cos[:, :, None] * qt[None, :, :]
+    c0 = np.einsum("ijk,ijk->ij", d_perp, d_perp)
+    c1 = 2.0 * np.einsum("ijk,ijk->ij", d_perp, t_perp)
+    c2 = np.einsum("ijk,ijk->ij", t_perp, t_perp)
+    u = (x[:, None] * length[None, :])[:, :, None]                 # (Q, N, 1): point on test i
+    xi = along + u * cos                                           # (Q, N, N)
+    b2 = np.maximum(c0 + u * (c1 + u * c2), 0.0) + a2
     b = np.sqrt(b2)
     dj = length[None, None, :]
     i0 = np.arcsinh((dj - xi) / b) + np.arcsinh(xi / b)
-    i1 = np.sqrt((dj - xi) ** 2 + b2) - np.sqrt(xi**2 + b2) + xi * i0
-    inner = np.stack([i0 - i1 / dj, i1 / dj])                      # (b, N, Q, N): shapes w_0, w_1
-    outer = np.stack([1.0 - x, x]) * w[None, :]                    # (a, Q)
-    return np.einsum("ap,bipj,i->abij", outer, inner, length)
+    i1 = (np.sqrt((dj - xi) ** 2 + b2) - np.sqrt(xi**2 + b2) + xi * i0) / dj
+    outer = np.stack([1.0 - x, x]) * w[None, :]                    # (a, Q): test shape x weight
+    q, n = x.size, length.size
+    j0 = (outer @ i0.reshape(q, -1)).reshape(2, n, n) * length[:, None]
+    j1 = (outer @ i1.reshape(q, -1)).reshape(2, n, n) * length[:, None]
+    return np.stack([j0 - j1, j1], axis=1)                         # [a, b]: w_0 = 1 - u'/D, w_1
 
 
 def _smooth_distances(p0: np.ndarray, t: np.ndarray, length: np.ndarray, a2: np.ndarray,
@@ -275,20 +289,21 @@ def _smooth_kernel(dist: np.ndarray, k: float) -> np.ndarray:
     return (np.cos(kd) - 1.0 - 1j * np.sin(kd)) / dist
 
 
-def _smooth_pairs(g: np.ndarray, length: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Shape-weighted Gauss-Legendre sums of the pair kernel g (Q, Q, N, N).
+def _smooth_pairs(g: np.ndarray, w_vec: np.ndarray | float,
+                  w_scal: np.ndarray | float) -> tuple[np.ndarray, np.ndarray]:
+    """Shape-weighted Gauss-Legendre sums of the pair kernel g (Q, Q, N, N), per unit lengths.
 
-    Returns the four shape pairings int int w_a w_b g (2, 2, N, N) and their sum over a and b
-    (the same with constant weights, w_0 + w_1 = 1), both times D_i D_j, m.
+    Returns the four shape pairings sum_pq w_a(p) w_b(q) g (2, 2, N, N) times the per-pair
+    weight ``w_vec``, and the plain sum sum_pq w_p w_q g (= the same with w_0 + w_1 = 1) times
+    ``w_scal`` (N, N). The callers fold the segment lengths D_i D_j into the weights.
     """
     x, w = _gauss(SMOOTH_POINTS)
     shape = np.stack([1.0 - x, x]) * w[None, :]                    # (2, Q): w_a at each point
     q, n = g.shape[0], g.shape[-1]
-    ll = length[:, None] * length[None, :]
-    left = (shape @ g.reshape(q, -1)).reshape(2, q, n, n)          # [a, q, i, j]
-    both = np.einsum("bq,aqij->abij", shape, left) * ll
-    total = np.einsum("p,q,pqij->ij", w, w, g) * ll
-    return both, total
+    left = (shape @ g.reshape(q, -1)).reshape(2, q, n * n)         # [a, q, ij]
+    both = (shape @ left).reshape(2, 2, n, n)                      # [a, b, i, j]
+    total = (w @ (w @ g.reshape(q, -1)).reshape(q, -1)).reshape(n, n)
+    return both * w_vec, total * w_scal
 
 
 def _image_factors(mesh: Mesh, frequency_hz: float) -> tuple[np.ndarray, np.ndarray]:
@@ -333,14 +348,13 @@ def impedance_matrix(mesh: Mesh, frequency_hz: float) -> np.ndarray:
     the image (with its frequency-dependent Fresnel weights) and the loading are formed.
     """
     k = 2.0 * math.pi * frequency_hz / C0
-    tt = mesh.pair[0]
-    vec, scal = _smooth_pairs(_smooth_kernel(mesh.dist, k), mesh.length)
-    vec = vec * tt
+    ll = mesh.length[:, None] * mesh.length[None, :]
+    vec, scal = _smooth_pairs(_smooth_kernel(mesh.dist, k), mesh.pair[0] * ll, ll)
     if mesh.static_img is not None and mesh.dist_img is not None:
         w_vec, w_scal = _image_factors(mesh, frequency_hz)
-        v_img, s_img = _smooth_pairs(_smooth_kernel(mesh.dist_img, k), mesh.length)
-        vec = vec + (v_img + mesh.static_img) * w_vec
-        scal = scal + (s_img + mesh.static_img.sum(axis=(0, 1))) * w_scal
+        v_img, s_img = _smooth_pairs(_smooth_kernel(mesh.dist_img, k), w_vec * ll, w_scal * ll)
+        vec = vec + v_img + mesh.static_img * w_vec
+        scal = scal + s_img + mesh.static_img.sum(axis=(0, 1)) * w_scal
     a_static, s_static = mesh.static_galerkin
     c_vec, c_scal = 1j * k * ETA0, -1j * ETA0 / k
     Z = (c_vec * (_galerkin(mesh.cols, mesh.signs, _by_end(vec)) / (4.0 * math.pi) + a_static)

@@ -4,9 +4,17 @@ All leg lengths are moved together until the feed reactance is zero at each elem
 frequency, every element seeing the others (a multi-dimensional root of X_e(L_1..L_M) = 0).
 Iteration: a Newton step per element whose first slope dX/dL comes from the model's own
 dX/df on the same mesh (electrical length ~ f L, so dX/dL ~ (f/L) dX/df), then secant slopes
-from the model's successive iterates. The mesh is held fixed while lengths move and rebuilt by
-the segmentation rule at the end (re-solving if the counts change), so the answer equals what
-:func:`buildsheet.em.mom.feed_impedance` gives for the solved antenna.
+from the model's successive iterates. The segment counts are held fixed while lengths move and
+checked against the segmentation rule at the end (re-solving if the counts change), so the
+answer equals what :func:`buildsheet.em.mom.feed_impedance` gives for the solved antenna. The
+solved lengths are the last iterate evaluated (its Newton step is below the tolerance), so its
+mesh and feed impedances are the answer's, with no further fill.
+
+Cost (issue 3 targets, bench/em.py): every direct solve is one impedance-matrix fill, so the
+SWR curve uses a Chebyshev interpolant with as few nodes as its coefficient tail allows, the
+2:1 edges start from the interpolant (extrapolated a little beyond the band) and are polished
+by secant steps on direct solves, and dX/df for the tuning slope is the interpolant's
+derivative.
 """
 
 from __future__ import annotations
@@ -16,7 +24,7 @@ from dataclasses import dataclass, replace
 from functools import lru_cache
 
 import numpy as np
-from numpy.polynomial.chebyshev import chebval
+from numpy.polynomial.chebyshev import chebder, chebfit, chebval
 from scipy.optimize import brentq
 
 from buildsheet.em.deployed import (
@@ -37,8 +45,20 @@ LEG_RANGE_WAVELENGTHS: tuple[float, float] = (0.12, 0.32)
 #: Relative length tolerance of the resonance solve.
 LENGTH_TOL: float = 1e-6
 MAX_ITERATIONS: int = 40
-#: Direct solves per band for the SWR curve (Chebyshev nodes; the curve is interpolated).
+#: Most direct solves per band for the SWR curve (Chebyshev-Lobatto nodes, nested 5 -> 9; the
+#: curve is interpolated).
 CURVE_NODES: int = 9
+#: Fewest nodes tried first; the node count doubles (less one) while the error estimate (the
+#: next Chebyshev coefficient, extrapolated geometrically from the last two) exceeds CURVE_TOL
+#: times the largest |Z|.
+CURVE_NODES_FIRST: int = 5
+CURVE_TOL: float = 1e-6
+#: The 2:1 edges are looked for on the interpolant up to this fraction of the band width beyond
+#: each band edge (a start for the direct solves, which decide).
+EDGE_EXTRAPOLATION: float = 0.5
+#: Secant steps on direct solves for a 2:1 edge, and the step that ends them, Hz.
+EDGE_ITERATIONS: int = 8
+EDGE_XTOL_HZ: float = 1.0
 
 
 def swr(z: np.ndarray | complex, z0: float = 50.0) -> np.ndarray:
@@ -102,15 +122,18 @@ class PredictionBand:
     own: AntennaSolution
 
 
-def _reactances(mesh: Mesh, freqs: np.ndarray) -> np.ndarray:
-    """Feed reactance of element e at its own frequency freqs[e], ohm."""
-    return port_impedances(mesh, freqs)[:, 0, 0].imag
-
-
 def _mesh(antenna: DeployedAntenna, lengths: np.ndarray, f_seg: float,
-          counts: tuple[int, ...]) -> Mesh:
-    return build_mesh(build_structure(with_leg_lengths(antenna, lengths), f_seg,
-                                      segment_counts=counts))
+          counts: tuple[int, ...], *, cache: bool = True) -> Mesh:
+    """Mesh of ``antenna`` with ``lengths`` on ``counts`` segments per leg.
+
+    Where the segmentation rule gives the same counts (the usual case) the mesh comes from the
+    cache of :func:`buildsheet.em.mom.mesh_for`, so the solved antenna's mesh is built once and
+    reused by later calls (feed impedance, currents) on that antenna.
+    """
+    trial = with_leg_lengths(antenna, lengths)
+    if cache and element_segment_counts(trial, f_seg) == counts:
+        return mesh_for(trial, f_seg)
+    return build_mesh(build_structure(trial, f_seg, segment_counts=counts))
 
 
 def _no_resonance(antenna: DeployedAntenna, e: int, lo: float, hi: float, x: float) -> BuildError:
@@ -122,8 +145,13 @@ def _no_resonance(antenna: DeployedAntenna, e: int, lo: float, hi: float, x: flo
 
 
 def _solve_lengths(antenna: DeployedAntenna, start: np.ndarray, f_seg: float,
-                   counts: tuple[int, ...]) -> tuple[np.ndarray, int]:
-    """Leg lengths giving X = 0 at every design frequency, on a fixed segmentation."""
+                   counts: tuple[int, ...]) -> tuple[np.ndarray, int, Mesh, np.ndarray]:
+    """Leg lengths giving X = 0 at every design frequency, on a fixed segmentation.
+
+    Returns the lengths, the iterations, and the mesh and feed impedances (ohm, one per element
+    at its design frequency) of those lengths: the last iterate, whose Newton step to the root
+    is within LENGTH_TOL of its length.
+    """
     f = np.array([e.design_frequency_hz for e in antenna.elements])
     drop = np.array([abs(antenna.feed_height_m - e.end_height_m) for e in antenna.elements])
     lam = wavelength(1.0) / f
@@ -136,9 +164,10 @@ def _solve_lengths(antenna: DeployedAntenna, start: np.ndarray, f_seg: float,
     pinned = np.zeros(f.size, dtype=int)
     for it in range(1, MAX_ITERATIONS + 1):
         mesh = _mesh(antenna, L, f_seg, counts)
-        x = _reactances(mesh, f)
+        z = port_impedances(mesh, f)[:, 0, 0]
+        x = z.imag
         if slope is None:
-            dxdf = (_reactances(mesh, f * (1 + 1e-4)) - x) / (f * 1e-4)
+            dxdf = (port_impedances(mesh, f * (1 + 1e-4))[:, 0, 0].imag - x) / (f * 1e-4)
             slope = np.where(dxdf > 0, dxdf * f / L, np.nan)
             slope = np.where(np.isnan(slope), np.nanmax(np.append(slope, 1.0)), slope)
         else:
@@ -148,42 +177,107 @@ def _solve_lengths(antenna: DeployedAntenna, start: np.ndarray, f_seg: float,
             slope = np.where(sec > 0, sec, slope)
         step = np.clip(-x / slope, -0.1 * L, 0.1 * L)
         new = np.clip(L + step, lo, hi)
+        if np.all(np.abs(new - L) <= LENGTH_TOL * L):
+            return L, it, mesh, z
         at_bound = (new == lo) & (x > 0) & (L == lo) | (new == hi) & (x < 0) & (L == hi)
         pinned = np.where(at_bound, pinned + 1, 0)
         if np.any(pinned >= 2):
             e = int(np.argmax(pinned))
             raise _no_resonance(antenna, e, lo[e], hi[e], x[e])
         x_prev, l_prev, L = x, L, new
-        if np.all(np.abs(L - l_prev) <= LENGTH_TOL * L):
-            return L, it
     e = int(np.argmax(np.abs(x)))
     raise BuildError(f"element {antenna.elements[e].key!r}: the resonance solve did not converge "
                      f"in {MAX_ITERATIONS} iterations (leg {lo[e]:.3f}-{hi[e]:.3f} m tried)")
 
 
-def _interpolant(mesh: Mesh, lo: float, hi: float, n: int) -> Callable[[np.ndarray], np.ndarray]:
-    """Feed impedance on [lo, hi] interpolated through n Chebyshev nodes (direct MoM solves).
+@dataclass(frozen=True, eq=False)
+class _Curve:
+    """Chebyshev interpolant of the feed impedance on [lo, hi] (Hz) through direct MoM solves."""
 
-    Z(f) of a dipole is smooth across one band; a degree n - 1 Chebyshev interpolant is exact
-    at the nodes (tests check it against direct solves between them).
+    lo: float
+    hi: float
+    coef: np.ndarray          # complex Chebyshev coefficients in u = (2f - lo - hi)/(hi - lo)
+    nodes: int                # direct solves used
+
+    def z(self, f: np.ndarray | float) -> np.ndarray:
+        """Interpolated feed impedance at f (Hz), ohm; a short extrapolation outside is allowed."""
+        return chebval((2 * np.asarray(f, dtype=float) - self.lo - self.hi) / (self.hi - self.lo),
+                       self.coef)
+
+    def dz_df(self, f: np.ndarray | float) -> np.ndarray:
+        """Derivative of the interpolant, ohm/Hz."""
+        u = (2 * np.asarray(f, dtype=float) - self.lo - self.hi) / (self.hi - self.lo)
+        return chebval(u, chebder(self.coef)) * 2.0 / (self.hi - self.lo)
+
+
+def _interpolant(mesh: Mesh, lo: float, hi: float, n_max: int) -> _Curve:
+    """Feed impedance on [lo, hi] interpolated through Chebyshev-Lobatto nodes (direct solves).
+
+    Z(f) of a dipole is smooth across one band: its Chebyshev coefficients fall geometrically,
+    faster the narrower the band. Start with CURVE_NODES_FIRST nodes and refine on the nested
+    grid (n -> 2n - 1, the old nodes kept) while the next coefficient, extrapolated from the last
+    two (|c_n| ~ |c_{n-1}|^2 / |c_{n-2}|), exceeds CURVE_TOL times max |Z|, up to n_max nodes (Trefethen, Approximation Theory and Approximation Practice,
+    ch. 3-4 and 8: Chebyshev-Lobatto interpolation, coefficient decay as error estimate).
+    Tests check the curve against direct solves between the nodes.
     """
-    x = np.cos(np.pi * (np.arange(n) + 0.5) / n)
-    z = port_impedances(mesh, (lo + hi) / 2 + (hi - lo) / 2 * x)[:, 0, 0]
-    cr = np.polynomial.chebyshev.chebfit(x, z.real, n - 1)
-    ci = np.polynomial.chebyshev.chebfit(x, z.imag, n - 1)
+    n = min(CURVE_NODES_FIRST, n_max)
+    u = np.cos(np.pi * np.arange(n) / (n - 1))
+    z = port_impedances(mesh, (lo + hi) / 2 + (hi - lo) / 2 * u)[:, 0, 0]
+    while True:
+        coef = chebfit(u, z.real, n - 1) + 1j * chebfit(u, z.imag, n - 1)
+        last, before = np.abs(coef[-1]), np.abs(coef[-2])
+        tail = last * last / max(last, before)       # the next coefficient, extrapolated
+        if tail <= CURVE_TOL * np.abs(z).max() or 2 * n - 1 > n_max:
+            return _Curve(lo, hi, coef, n)
+        n = 2 * n - 1
+        fine = np.cos(np.pi * np.arange(n) / (n - 1))
+        z_new = port_impedances(mesh, (lo + hi) / 2 + (hi - lo) / 2 * fine[1::2])[:, 0, 0]
+        z_all = np.empty(n, dtype=complex)
+        z_all[0::2], z_all[1::2] = z, z_new
+        u, z = fine, z_all
 
-    def z_of(f: np.ndarray) -> np.ndarray:
-        u = (2 * np.asarray(f, dtype=float) - lo - hi) / (hi - lo)
-        return chebval(u, cr) + 1j * chebval(u, ci)
-    return z_of
+
+def _edge_by_bracket(direct: Callable[[float], float], f0: float, end: float, side: int) -> float:
+    """A 2:1 edge beyond ``end`` (side -1 below f0, +1 above) by stepping outward with direct
+    solves, then Brent's method, Hz."""
+    a, step = end, (end - f0) if end != f0 else side * f0 * 1e-3
+    b = a + step
+    while direct(b) < 0:
+        a, b = b, b + step
+        if abs(b - f0) > 0.3 * f0:
+            raise BuildError(f"2:1 SWR edge not found within 30 % of {f0 / 1e6:.4f} MHz")
+    if direct(a) >= 0:
+        a = f0
+    return float(brentq(direct, min(a, b), max(a, b), xtol=EDGE_XTOL_HZ))
 
 
-def _bandwidth(mesh: Mesh, f0: float, lo: float, hi: float, z_fit: Callable[[np.ndarray], np.ndarray],
-               z0: float, s0: float) -> tuple[float, float] | None:
+def _polish(direct: Callable[[float], float], f: float, slope: float) -> float | None:
+    """Root of SWR - 2 near ``f`` by secant steps on direct solves (first slope given), Hz.
+
+    None when it does not settle within EDGE_ITERATIONS solves (the caller then brackets).
+    """
+    s = direct(f)
+    for _ in range(EDGE_ITERATIONS):
+        if not (np.isfinite(slope) and slope != 0.0):
+            return None
+        step = -s / slope
+        if abs(step) <= EDGE_XTOL_HZ:
+            return f + step
+        f_new = f + step
+        s_new = direct(f_new)
+        slope = (s_new - s) / (f_new - f)
+        f, s = f_new, s_new
+    return None
+
+
+def _bandwidth(mesh: Mesh, f0: float, lo: float, hi: float, curve: _Curve, z0: float,
+               s0: float) -> tuple[float, float] | None:
     """Frequencies where SWR = 2 on each side of f0, Hz; None if SWR >= 2 at f0.
 
-    Each edge is bracketed on the interpolated curve, the bracket confirmed with two direct
-    solves, then located on the interpolant (or by direct solves outside the band).
+    Each edge is first found on the interpolated curve (extended EDGE_EXTRAPOLATION band widths
+    beyond the band), then settled by secant steps on direct solves starting with the curve's
+    slope: one solve when the curve was right, a few when it was extrapolated. Where the curve
+    shows no edge, or the steps do not settle, the edge is bracketed by direct solves.
     """
     if not s0 < 2.0:
         return None
@@ -191,24 +285,23 @@ def _bandwidth(mesh: Mesh, f0: float, lo: float, hi: float, z_fit: Callable[[np.
     def direct(fr: float) -> float:
         return float(swr(port_impedances(mesh, fr)[0, 0, 0], z0)) - 2.0
 
+    def fitted(fr: float | np.ndarray) -> np.ndarray:
+        return swr(curve.z(fr), z0) - 2.0
+
     edges = []
-    for end in (lo, hi):
-        grid = np.linspace(f0, end, 401)
-        over = np.flatnonzero(swr(z_fit(grid), z0) >= 2.0)
-        if over.size and direct(grid[over[0]]) >= 0 > direct(grid[over[0] - 1]):
+    for end, side in ((lo, -1), (hi, 1)):
+        grid = np.linspace(f0, end + side * EDGE_EXTRAPOLATION * (hi - lo), 801)
+        over = np.flatnonzero(fitted(grid) >= 0.0)
+        edge = None
+        if over.size and over[0] > 0:
             a, b = grid[over[0] - 1], grid[over[0]]
-            edges.append(brentq(lambda fr: float(swr(z_fit(fr), z0)) - 2.0,
-                                min(a, b), max(a, b), xtol=0.5))
-            continue
-        a, step = end, (end - f0) if end != f0 else f0 * 1e-3
-        b = a + step
-        while direct(b) < 0:
-            a, b = b, b + step
-            if abs(b - f0) > 0.3 * f0:
-                raise BuildError(f"2:1 SWR edge not found within 30 % of {f0 / 1e6:.4f} MHz")
-        if direct(a) >= 0:
-            a = f0
-        edges.append(brentq(direct, min(a, b), max(a, b), xtol=1.0))
+            guess = float(brentq(lambda fr: float(fitted(fr)), min(a, b), max(a, b), xtol=0.5))
+            h = 1e-6 * f0
+            slope = float(fitted(guess + h) - fitted(guess - h)) / (2 * h)
+            edge = _polish(direct, guess, slope)
+            if edge is not None and not 0 < side * (edge - f0) <= 0.3 * f0:
+                edge = None
+        edges.append(edge if edge is not None else _edge_by_bracket(direct, f0, end, side))
     return edges[0], edges[1]
 
 
@@ -226,39 +319,44 @@ def solve_resonance(antenna: DeployedAntenna, *, z0: float = 50.0,
     counts = element_segment_counts(antenna, f_seg)
     iterations = 0
     for _ in range(4):
-        L, it = _solve_lengths(antenna, L, f_seg, counts)
+        L, it, mesh, z_design = _solve_lengths(antenna, L, f_seg, counts)
         iterations += it
         new_counts = element_segment_counts(with_leg_lengths(antenna, L), f_seg)
         if new_counts == counts:
             break
         counts = new_counts
+    else:
+        mesh = mesh_for(with_leg_lengths(antenna, L), f_seg)
+        z_design = port_impedances(mesh, np.array([e.design_frequency_hz
+                                                   for e in antenna.elements]))[:, 0, 0]
     solved = with_leg_lengths(antenna, L)
-    mesh = mesh_for(solved, f_seg)
     f = np.array([e.design_frequency_hz for e in antenna.elements])
-    z_design = port_impedances(mesh, f)[:, 0, 0]
-    # Model tuning slope dL/df_r = -(dX/df)/(dX/dL), both by finite differences of the model.
-    dxdf = (port_impedances(mesh, f * (1 + 1e-4))[:, 0, 0].imag - z_design.imag) / (f * 1e-4)
+    # Model tuning slope dL/df_r = -(dX/df)/(dX/dL): dX/df from the band's interpolant (below),
+    # dX/dL by a forward difference of the model moving that element alone.
     dxdl = np.empty_like(f)
     for e in range(f.size):
         dl = np.zeros_like(L)
-        dl[e] = 1e-3 * L[e]
-        x = port_impedances(_mesh(antenna, L + dl, f_seg, counts), f[e])[0, 0, 0].imag
+        dl[e] = 1e-5 * L[e]
+        x = port_impedances(_mesh(antenna, L + dl, f_seg, counts, cache=False),
+                            f[e])[0, 0, 0].imag
         dxdl[e] = (x - z_design[e].imag) / dl[e]
     results = []
     notes = list(mesh.structure.notes)
     for e, el in enumerate(solved.elements):
         freqs = np.linspace(el.band_low_hz, el.band_high_hz, n_swr_points)
         lo, hi = min(el.band_low_hz, f[e]), max(el.band_high_hz, f[e])
-        z_fit = _interpolant(mesh, lo, hi, min(n_swr_points, CURVE_NODES))
-        s = swr(z_fit(freqs), z0)
+        curve = _interpolant(mesh, lo, hi, min(n_swr_points, CURVE_NODES))
+        s = swr(curve.z(freqs), z0)
         s0 = float(swr(z_design[e], z0))
+        dxdf = float(curve.dz_df(f[e]).imag)
         if s0 > 2.0:
             notes.append(f"element {el.key!r}: SWR {s0:.1f}:1 on {z0:.0f} ohm at resonance "
                          f"(feed resistance {z_design[e].real:.1f} ohm)")
         results.append(ElementSolution(
             key=el.key, leg_length_m=float(L[e]), z_feed=complex(z_design[e]),
-            frequencies_hz=freqs, swr=s, bandwidth_2to1_hz=_bandwidth(mesh, f[e], lo, hi, z_fit, z0, s0),
-            slope_m_per_hz=float(-dxdf[e] / dxdl[e]), swr_at_design=s0))
+            frequencies_hz=freqs, swr=s,
+            bandwidth_2to1_hz=_bandwidth(mesh, f[e], lo, hi, curve, z0, s0),
+            slope_m_per_hz=float(-dxdf / dxdl[e]), swr_at_design=s0))
     return AntennaSolution(solved, tuple(results), antenna.ground, tuple(notes), describe(mesh),
                            z0, iterations)
 

@@ -152,3 +152,53 @@ def test_deterministic():
     s1 = solve_resonance.__wrapped__(a)
     s2 = solve_resonance.__wrapped__(a)
     assert [e.leg_length_m for e in s1.elements] == [e.leg_length_m for e in s2.elements]
+
+
+def test_edges_and_slope_against_direct_solves(monkeypatch):
+    # The 2:1 edges (60 m ones lie outside its band, found from the extrapolated curve) against
+    # direct solves, and against the bracketing search by direct solves alone (Brent's method).
+    from buildsheet.em import resonance
+    from buildsheet.em.deployed import with_leg_lengths
+
+    ant = fan(real_ground("medium_dry"))
+    sol = solve_resonance.__wrapped__(ant)
+    e60 = sol.element("60m")
+    assert e60.bandwidth_2to1_hz[0] < 5.33e6 and e60.bandwidth_2to1_hz[1] > 5.41e6
+    for el in sol.elements:
+        np.testing.assert_allclose(swr(feed_impedance(sol.antenna, el.bandwidth_2to1_hz)), 2.0,
+                                   atol=1e-5)
+    monkeypatch.setattr(resonance, "EDGE_EXTRAPOLATION", 0.0)
+    bracketed = solve_resonance.__wrapped__(ant).element("60m").bandwidth_2to1_hz
+    np.testing.assert_allclose(e60.bandwidth_2to1_hz, bracketed, atol=5.0)  # Hz
+    # Tuning slope -(dX/df)/(dX/dL) by central differences of direct solves, each element
+    # moved alone (the definition), within 0.05 %.
+    L = np.array([e.leg_length_m for e in sol.elements])
+    for i, el in enumerate(sol.elements):
+        f = el_f(ant, el.key)
+        df, dl = 20.0, 1e-4 * L[i]
+        dxdf = np.diff(feed_impedance(sol.antenna, [f - df, f + df]).imag)[0] / (2 * df)
+        up, down = L.copy(), L.copy()
+        up[i] += dl
+        down[i] -= dl
+        dxdl = (feed_impedance(with_leg_lengths(ant, up), f)[0].imag
+                - feed_impedance(with_leg_lengths(ant, down), f)[0].imag) / (2 * dl)
+        assert abs(el.slope_m_per_hz / (-dxdf / dxdl) - 1) < 5e-4, el.key
+
+
+def test_curve_nodes_follow_band_width():
+    # Chebyshev interpolation (Trefethen, ATAP ch. 8): a narrow band needs fewer nodes for the
+    # same accuracy. Check against direct solves between the nodes.
+    from buildsheet.em.mom import mesh_for, port_impedances
+    from buildsheet.em.resonance import CURVE_NODES, _interpolant
+
+    sol = solve_resonance(fan(real_ground("medium_dry")))
+    mesh = mesh_for(sol.antenna)
+    nodes = {}
+    for el in sol.antenna.elements:
+        lo, hi = el.band_low_hz, el.band_high_hz
+        curve = _interpolant(mesh, lo, hi, CURVE_NODES)
+        fr = np.linspace(lo, hi, 13)
+        z = port_impedances(mesh, fr)[:, 0, 0]
+        assert np.abs(curve.z(fr) - z).max() < 1e-5 * np.abs(z).max()
+        nodes[el.key] = curve.nodes
+    assert nodes["60m"] < nodes["75m"] == CURVE_NODES
