@@ -101,6 +101,33 @@ def current_legs(packet: Packet, histories: Iterable[ElementHistory]) -> dict[st
     return out
 
 
+def stored_calibrations(store, spec) -> dict:  # noqa: ANN001 - RecordStore, Design
+    """The newest stored site calibration per design: one made for the design's current
+    geometry and wire if there is one, else the newest of any (build_packet then warns that it
+    no longer applies)."""
+    from buildsheet.calibrate import calibration_from_json, design_fingerprint
+    from buildsheet.records import latest_calibration, list_calibrations
+
+    out = {}
+    for d in spec.designs:
+        record = latest_calibration(store, d.key, design_fingerprint(d))
+        if record is None:
+            older = list_calibrations(store, d.key)
+            record = older[-1] if older else None
+        if record is not None:
+            out[d.key] = calibration_from_json(record.data)
+    return out
+
+
+def cut_elements(histories: Iterable[ElementHistory]) -> list:
+    """Elements known to be cut (they have measurements or trims), with their current legs."""
+    from buildsheet.calibrate import CutElement
+
+    return [CutElement(h.element.id, h.element.key, h.current_leg_m("A"), h.current_leg_m("B"))
+            for h in histories
+            if h.element.status == "active" and (h.measurements or h.trims)]
+
+
 def label_contents(packet: Packet, current: Mapping[str, Legs] | None = None,
                    only: Collection[str] | None = None) -> list:
     """One LabelContent per leg, sorted by kit then element then leg.
@@ -316,9 +343,11 @@ def build(spec_path: str | Path, out_dir: str | Path, *, built_at: str,
     except OSError:
         pass  # prepare_staging reports an unwritable folder with its location
     previous = read_manifest(out / MANIFEST_JSON) if out.is_dir() else None
-    draft = build_packet(spec, built_at=built_at, model=model)
     with open_store(store_file, verify=True) as store:
         before = {h.element.id: h for h in load_histories(store)}
+        draft = build_packet(spec, built_at=built_at, model=model,
+                             calibrations=stored_calibrations(store, spec),
+                             cut_elements=cut_elements(before.values()))
         current = current_legs(draft, before.values())
         hashes = element_hashes(draft, current)
         packet = replace(draft, revision=next_revision(previous, spec.spec_hash, hashes))

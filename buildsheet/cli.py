@@ -98,9 +98,11 @@ def make_parser() -> argparse.ArgumentParser:
     model_option(p)
     p.set_defaults(handler=_cmd_demo)
 
+    from buildsheet.calibrate_cli import register as register_calibrate
     from buildsheet.record_cli import register
 
     register(sub)  # measure, trim, export, import
+    register_calibrate(sub)  # calibrate
     return parser
 
 
