@@ -279,6 +279,29 @@ def render_documents(packet: Packet, current: Mapping[str, Legs],
                      dict.fromkeys(changed, labels_name))
 
 
+def comparisons(packet: Packet, histories: Iterable[ElementHistory]) -> dict[str, tuple]:
+    """Per element, the model's and the calibration's predictions beside the latest measured
+    dip: (label, text) rows for the record page."""
+    from buildsheet.cuts import expected_dip_hz
+    from buildsheet.units import format_frequency, format_length
+
+    latest = {h.element.id: h.measurements[-1].dip_hz for h in histories if h.measurements}
+    out = {}
+    for e in packet.entries:
+        c = e.cut
+        rows = [("Resonant leg, model" + (" before calibration" if c.calibrated else ""),
+                 format_length(c.uncalibrated_leg_m if c.calibrated else c.predicted_leg_m))]
+        rows.append(("First dip expected as cut, model", format_frequency(
+            expected_dip_hz(c, uncalibrated=True))))
+        if c.calibrated:
+            rows += [("Resonant leg, calibrated", format_length(c.predicted_leg_m)),
+                     ("First dip expected as cut, calibrated", format_frequency(expected_dip_hz(c)))]
+        if e.element_id in latest:
+            rows.append(("Latest measured dip", format_frequency(latest[e.element_id])))
+        out[e.element_id] = tuple(rows)
+    return out
+
+
 def site_pages(packet: Packet, histories: list[ElementHistory], docs: Documents,
                previous: Manifest | None) -> dict[str, str]:
     """The record pages ({file name: HTML}); with a record URL that names the leg, each leg
@@ -293,7 +316,8 @@ def site_pages(packet: Packet, histories: list[ElementHistory], docs: Documents,
                 sheet_files[eid] = old[0]
     hrefs = {eid: f"../{name}" for eid, name in sheet_files.items()}
     pages = render_site(histories, packet.built_at, sheet_files, hrefs,
-                        title=f"{packet.design.event.name}: element records")
+                        title=f"{packet.design.event.name}: element records",
+                        comparisons=comparisons(packet, histories))
     url = packet.design.event.record_url or ""
     if "{leg}" in url:
         for e in packet.entries:

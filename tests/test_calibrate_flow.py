@@ -40,3 +40,7 @@ def test_measure_calibrate_and_repacket(tmp_path, capsys, monkeypatch):
     assert k01[0].element_id in text
     # The log forms show the model's expected dip beside the calibrated one.
     assert "Expected dip" in text and "cal. " in text
+    page = (out / "site" / f"{k01[0].element_id}.html").read_text(encoding="utf-8")
+    for label in ("Resonant leg, model before calibration", "Resonant leg, calibrated",
+                  "First dip expected as cut, calibrated", "Latest measured dip"):
+        assert label in page

@@ -97,6 +97,7 @@ class ElementPage:
     caution: str
     built_at: str
     index_href: str
+    comparison: tuple[tuple[str, str], ...] = ()  # predicted / calibrated / measured, side by side
 
 
 @dataclass(frozen=True)
@@ -159,7 +160,7 @@ def _time(iso: str) -> str:
 
 
 def element_page(h: ElementHistory, built_at: str, sheet_file: str = "",
-                 sheet_href: str = "") -> ElementPage:
+                 sheet_href: str = "", comparison: tuple[tuple[str, str], ...] = ()) -> ElementPage:
     """The typed context of one element page."""
     e = h.element
     f0 = e.design_frequency_hz
@@ -185,7 +186,7 @@ def element_page(h: ElementHistory, built_at: str, sheet_file: str = "",
         measurements=ms, trims=ts, prints=ps,
         partners=tuple(PartnerLink(p, page_name(p)) for p in e.partners),
         sheet_file=sheet_file, sheet_href=sheet_href, caution=CAUTION, built_at=built_at,
-        index_href=INDEX_NAME)
+        index_href=INDEX_NAME, comparison=comparison)
 
 
 def index_page(histories: Sequence[ElementHistory], built_at: str,
@@ -219,9 +220,13 @@ def render_site(histories: Sequence[ElementHistory], built_at: str,
                 sheet_files: Mapping[str, str] | None = None,
                 sheet_hrefs: Mapping[str, str] | None = None,
                 title: str = "Element records",
-                env: jinja2.Environment | None = None) -> dict[str, str]:
+                env: jinja2.Environment | None = None,
+                comparisons: Mapping[str, tuple[tuple[str, str], ...]] | None = None,
+                ) -> dict[str, str]:
     """All pages as {file name: HTML text}. ``sheet_files`` / ``sheet_hrefs`` map element IDs to
-    the build sheet's name and a relative link to it (optional)."""
+    the build sheet's name and a relative link to it (optional); ``comparisons`` holds per
+    element the (label, value) rows of predicted, calibrated and measured values."""
+    comparisons = comparisons or {}
     env = env or environment()
     sheet_files = sheet_files or {}
     sheet_hrefs = sheet_hrefs or {}
@@ -234,7 +239,8 @@ def render_site(histories: Sequence[ElementHistory], built_at: str,
         if name in pages:
             raise BuildError(f"element IDs {eid!r} and another give the same page name {name}")
         pages[name] = element_t.render(page=element_page(
-            h, built_at, sheet_files.get(eid, ""), sheet_hrefs.get(eid, "")))
+            h, built_at, sheet_files.get(eid, ""), sheet_hrefs.get(eid, ""),
+            comparisons.get(eid, ())))
     return pages
 
 
