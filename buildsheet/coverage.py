@@ -483,6 +483,14 @@ def compromise_height(
     hi = 0.35 * max(lams) if high_m is None else high_m
     h = np.arange(lo, hi + step_m / 2, step_m)
     g = np.stack([zenith_sweep(src, ground, h) for src in sources])
+    return compromise_from_sweeps(h, g, frequencies_hz, tolerance_db)
+
+
+def compromise_from_sweeps(heights_m: np.ndarray, gains_dbi: np.ndarray,
+                           frequencies_hz: Sequence[float], tolerance_db: float = 1.0) -> CompromiseHeight:
+    """The compromise rule of :func:`compromise_height` applied to zenith-gain sweeps already
+    computed on one common grid: ``gains_dbi`` has one row per band over ``heights_m``."""
+    h, g = np.asarray(heights_m, dtype=float), np.asarray(gains_dbi, dtype=float)
     short = np.max(g, axis=1, keepdims=True) - g
     worst = np.max(short, axis=0)
     i_mm = int(np.argmin(worst))

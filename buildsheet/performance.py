@@ -8,6 +8,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 from functools import lru_cache
 
+import numpy as np
+
 from buildsheet import coverage, exposure, feedline
 from buildsheet.cuts import DesignCuts
 from buildsheet.em.ground import Ground
@@ -66,30 +68,31 @@ def design_performance(cuts: DesignCuts, ground: Ground, settings: ExposureSetti
     legs = tuple(c.predicted_leg_m for c in cuts.elements)
     antenna = deployed_antenna(d, ground, legs)
     cable = feedline.coax(d.coax_type)
-    bands, sources = [], []
+    bands = []
     for c in cuts.elements:
         e = c.element
         sc = mom.segment_currents(antenna, e.frequency_hz)
         source = _sweep_source(d.apex_height_m, e.end_height_m, c.predicted_leg_m, e.bearing_deg,
                                e.frequency_hz, d.wire.radius_m, ground)
-        sources.append(source)
         loss = feedline.matched_loss_db(cable, d.coax_length_m, e.frequency_hz)
         bands.append(BandPerformance(
             e.key, e.band_label, coverage.nvis_figures(sc, ground, az_step_deg=10.0),
             coverage.elevation_cuts(sc, ground, e.bearing_deg, step_deg=2.0),
-            coverage.height_advice(source, ground, e.frequency_hz, steps=16),
+            coverage.height_advice(source, ground, e.frequency_hz, steps=21),
             exposure.screen(e.frequency_hz, settings.power_w, settings.mode,
                             settings.transmit_fraction, SCREEN_GAIN_DBI, loss, settings.regime),
             loss))
     freqs = [c.element.frequency_hz for c in cuts.elements]
     compromise = None
     if len(bands) > 1:
-        # The compromise lies between the lowest "within 1 dB" height and the highest best
-        # height of the bands; sweeping only that span keeps the cost down.
-        low = min(b.height.range_low_m for b in bands)
-        high = max(b.height.best_height_m for b in bands)
-        compromise = coverage.compromise_height(sources, ground, freqs, low_m=low, high_m=high,
-                                                step_m=0.5)
+        # Each band's own sweep, interpolated onto one grid where all sweeps overlap (the
+        # curves are smooth, so no new field evaluations are needed).
+        low = max(b.height.heights_m[0] for b in bands)
+        high = min(b.height.heights_m[-1] for b in bands)
+        grid = np.linspace(low, high, 81)
+        gains = np.stack([np.interp(grid, b.height.heights_m, b.height.zenith_gain_dbi)
+                          for b in bands])
+        compromise = coverage.compromise_from_sweeps(grid, gains, freqs)
     note = ("NVIS figures and patterns from the method-of-moments currents over "
             f"{ground.title} by the reflection-coefficient method (Fresnel coefficients; an "
             "approximation that omits near-field ground loss). Height sweep with sinusoidal "

@@ -231,50 +231,52 @@ def test_static_integrals_vs_scipy():
                 assert abs(got[wa, wb, i, j] - ref) < tol * abs(ref), (i, j, wa, wb)
 
 
+def _dense_z(m, f):
+    """Textbook dense form of the formulation (REFERENCES 5.1), for the fill test below."""
+    from buildsheet.constants import C0, ETA0
+    from buildsheet.em.ground import complex_permittivity, fresnel_horizontal, fresnel_vertical
+    from buildsheet.em.loading import series_impedance_per_m
+
+    k = 2 * np.pi * f / C0
+    x, w = np.polynomial.legendre.leggauss(mom.SMOOTH_POINTS)
+    x, w = (x + 1) / 2, w / 2
+    lw = m.length[:, None, None] * (np.stack([1 - x, x]) * w)[None]
+    n = m.n_segments
+
+    def part(static, dist, vec_w, scal_w):
+        gk = (np.exp(-1j * k * dist) - 1) / dist                     # (Q, Q, N, N)
+        P = (static + np.einsum("iap,pqij,jbq->abij", lw, gk, lw)) / (4 * np.pi)
+        pv = (P * vec_w).transpose(2, 0, 3, 1).reshape(2 * n, 2 * n)
+        return (1j * k * ETA0 * m.T @ pv @ m.T.T
+                - 1j * ETA0 / k * m.D @ (P.sum(axis=(0, 1)) * scal_w) @ m.D.T)
+
+    Z = part(m.static, m.dist, m.t @ m.t.T, 1.0)
+    g = m.structure.ground
+    if g.kind != "free_space":
+        t = m.t
+        horiz = np.outer(t[:, 0], t[:, 0]) + np.outer(t[:, 1], t[:, 1])
+        vert = np.outer(t[:, 2], t[:, 2])
+        c = (m.p0 + m.p1) / 2
+        psi = np.arctan2(c[:, None, 2] + c[None, :, 2],
+                         np.hypot(c[:, None, 0] - c[None, :, 0], c[:, None, 1] - c[None, :, 1]))
+        if g.kind == "perfect":
+            gh, gv = -np.ones_like(psi), np.ones_like(psi)
+        else:
+            eps = complex_permittivity(g.ground_class, f)
+            gh, gv = fresnel_horizontal(eps, psi), fresnel_vertical(eps, psi)
+        Z = Z + part(m.static_img, m.dist_img, gh * horiz + gv * vert, gh)
+    zs = np.array([series_impedance_per_m(wi.wire, f) for wi in m.structure.wires])
+    load = np.kron(np.diag(zs[m.wire_of] * m.length), [[1 / 3, 1 / 6], [1 / 6, 1 / 3]])
+    return Z + m.T @ load @ m.T.T
+
+
 def test_fill_matches_dense_formulation():
     # The fill (precomputed static Galerkin sums, gathered projections, cos/sin kernel, inline
     # Fresnel weights) against the textbook dense form of the same formulation (REFERENCES 5.1):
     # Z = jk eta T (P o tt) T^T - j (eta/k) D (sum_ab P) D^T + loading, with complex exp, the
     # ground module's Fresnel functions (Balanis 4.8) and T, D as dense matrices.
-    from buildsheet.constants import C0, ETA0
-    from buildsheet.em.ground import complex_permittivity, fresnel_horizontal, fresnel_vertical
-    from buildsheet.em.loading import series_impedance_per_m
-
     for g in (FREE_SPACE, PERFECT_GROUND, real_ground("wet")):
         m = mom.mesh_for(_fan(g))
-        f = 5.357e6
-        k = 2 * np.pi * f / C0
-        x, w = np.polynomial.legendre.leggauss(mom.SMOOTH_POINTS)
-        x, w = (x + 1) / 2, w / 2
-        shape = np.stack([1 - x, x]) * w
-        lw = m.length[:, None, None] * shape[None]
-
-        def pairs(static, dist):
-            gk = (np.exp(-1j * k * dist) - 1) / dist                 # (Q, Q, N, N)
-            return (static + np.einsum("iap,pqij,jbq->abij", lw, gk, lw)) / (4 * np.pi)
-
-        def dense(P, vec_w, scal_w):
-            n = m.n_segments
-            pv = (P * vec_w).transpose(2, 0, 3, 1).reshape(2 * n, 2 * n)
-            return (1j * k * ETA0 * m.T @ pv @ m.T.T
-                    - 1j * ETA0 / k * m.D @ (P.sum(axis=(0, 1)) * scal_w) @ m.D.T)
-
-        Z = dense(pairs(m.static, m.dist), m.t @ m.t.T, 1.0)
-        if g.kind != "free_space":
-            t = m.t
-            horiz = np.outer(t[:, 0], t[:, 0]) + np.outer(t[:, 1], t[:, 1])
-            vert = np.outer(t[:, 2], t[:, 2])
-            c = (m.p0 + m.p1) / 2
-            psi = np.arctan2(c[:, None, 2] + c[None, :, 2],
-                             np.hypot(c[:, None, 0] - c[None, :, 0], c[:, None, 1] - c[None, :, 1]))
-            if g.kind == "perfect":
-                gh, gv = -np.ones_like(psi), np.ones_like(psi)
-            else:
-                eps = complex_permittivity(g.ground_class, f)
-                gh, gv = fresnel_horizontal(eps, psi), fresnel_vertical(eps, psi)
-            Z = Z + dense(pairs(m.static_img, m.dist_img), gh * horiz + gv * vert, gh)
-        zs = np.array([series_impedance_per_m(wi.wire, f) for wi in m.structure.wires])
-        load = np.kron(np.diag(zs[m.wire_of] * m.length), [[1 / 3, 1 / 6], [1 / 6, 1 / 3]])
-        Z = Z + m.T @ load @ m.T.T
-        got = mom.impedance_matrix(m, f)
+        Z = _dense_z(m, 5.357e6)
+        got = mom.impedance_matrix(m, 5.357e6)
         assert np.abs(got - Z).max() < 1e-10 * np.abs(Z).max(), g.kind
