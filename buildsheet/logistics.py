@@ -8,7 +8,8 @@ from collections.abc import Iterable
 from buildsheet.cuts import DesignCuts
 from buildsheet.feedline import coax
 from buildsheet.model import Design, Kit
-from buildsheet.stock import BomLine, Cut, KitNeeds, SpoolPlan, StockItem, WireNeed, day_bom, kit_bom, plan_spools
+from buildsheet.bom import BomLine, KitNeeds, WireNeed, day_bom, kit_bom
+from buildsheet.stock import Cut, SpoolPlan, StockItem, plan_spools
 
 #: Material key for tie-off cord in the spec's [[stock]] tables.
 CORD = "cord"

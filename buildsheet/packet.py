@@ -20,7 +20,8 @@ from buildsheet.errors import BuildError, Problem
 from buildsheet.logistics import logistics
 from buildsheet.model import AntennaDesign, Design, Kit
 from buildsheet.performance import DesignPerformance, design_performance
-from buildsheet.stock import BomLine, SpoolPlan
+from buildsheet.bom import BomLine
+from buildsheet.stock import SpoolPlan
 from buildsheet.units import format_both, format_frequency
 
 SAFETY_CAUTIONS: tuple[str, ...] = (

@@ -14,7 +14,7 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any, TextIO
 
-from buildsheet.errors import BuildsheetError, RecordError
+from buildsheet.errors import RecordError
 
 STORE_SUFFIX = ".records.sqlite"
 
@@ -210,15 +210,11 @@ def register(subparsers: Any) -> None:
 
 
 def run(argv: list[str] | None = None) -> int:
-    """Stand-alone entry for the record commands (used by tests and ``python -m``)."""
-    parser = argparse.ArgumentParser(prog="buildsheet")
-    register(parser.add_subparsers(dest="command", required=True))
-    args = parser.parse_args(argv)
-    try:
-        return int(args.handler(args))
-    except BuildsheetError as exc:
-        print(exc, file=sys.stderr)
-        return 1
+    """Stand-alone entry (tests, ``python -m``): the same parser and error handling as
+    ``buildsheet`` itself."""
+    from buildsheet.cli import main
+
+    return main(argv)
 
 
 if __name__ == "__main__":

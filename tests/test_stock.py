@@ -15,18 +15,12 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from buildsheet.errors import BuildError, SpecError
+from buildsheet.bom import BomLine, KitNeeds, WireNeed, bom_from_csv, bom_to_csv, day_bom, kit_bom
 from buildsheet.stock import (
     EXACT_MAX_CUTS,
-    BomLine,
     Cut,
-    KitNeeds,
     SpoolPlan,
     StockItem,
-    WireNeed,
-    bom_from_csv,
-    bom_to_csv,
-    day_bom,
-    kit_bom,
     lower_bound,
     natural_key,
     plan_spools,

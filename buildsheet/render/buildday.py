@@ -28,7 +28,8 @@ from reportlab.platypus import (
 )
 
 from ..constants import INCH
-from ..stock import BomLine, SpoolPlan, SpoolUse
+from ..bom import BomLine
+from ..stock import SpoolPlan, SpoolUse
 
 LengthFormat = Callable[[float], str]
 
