@@ -149,18 +149,19 @@ def label_contents(packet: Packet, current: Mapping[str, Legs] | None = None,
         freq = format_frequency(cut.element.frequency_hz)
         for i, (leg_id, leg) in enumerate(zip(entry.leg_ids, ("A", "B"))):
             length = length_text(cut.cut_leg_m, ev.units)
-            short = length
+            short, now_text = length, ""
             if entry.element_id in current:
                 now = current[entry.element_id][i]
-                length = f"{format_length(cut.cut_leg_m, ev.units)}, NOW {length_text(now, ev.units)}"
-                short = f"{format_length(cut.cut_leg_m, ev.units)} now {length_text(now, ev.units)}"
+                now_text = length_text(now, ev.units)
+                short = f"{format_length(cut.cut_leg_m, ev.units)} now {now_text}"
             if ev.record_url:
                 payload = record_url(ev.record_url, entry.kit.kit_id, entry.element_id, leg_id)
             else:
                 payload = offline_record(leg_id, cut.element.band_label, freq, short,
                                          entry.kit.kit_id, packet.revision)
             out.append(LabelContent(entry.kit.kit_id, entry.element_id, leg_id, leg,
-                                    cut.element.band_label, freq, length, payload))
+                                    cut.element.band_label, freq, length, payload,
+                                    current_length_text=now_text))
     return out
 
 
@@ -168,7 +169,7 @@ def element_hashes(packet: Packet, current: Mapping[str, Legs]) -> dict[str, str
     """Per element: hash of everything printed for it (sheet row fingerprint, label texts)."""
     texts: dict[str, list[str]] = {}
     for label in label_contents(packet, current):
-        texts.setdefault(label.element_id, []).append(label.cut_length_text)
+        texts.setdefault(label.element_id, []).append(label.cut_length_text + label.current_length_text)
     return {e.element_id: content_hash({"entry": entry_fingerprint(packet, e),
                                         "labels": texts.get(e.element_id, [])})
             for e in packet.entries}

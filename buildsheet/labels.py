@@ -114,6 +114,7 @@ class LabelContent:
     cut_length_text: str  # "10.43 m / 34 ft 2 5/8 in"
     payload: str  # what the QR code holds (record URL or offline record)
     extra: tuple[str, ...] = ()  # further small lines, e.g. the club name
+    current_length_text: str = ""  # after recorded trims, when it differs from the cut
 
     def __post_init__(self) -> None:
         if self.leg not in ("A", "B"):

@@ -64,7 +64,10 @@ def label_lines(label: LabelContent) -> list[_Line]:
         _Line(label.band_name, BOLD, 24.0, MIN_BAND_PT),
         _Line(f"LEG {label.leg}", BOLD, 12.0),
         _Line(label.frequency_text, REGULAR, 10.0),
-        _Line(f"CUT {label.cut_length_text}", BOLD, 11.0, wrap=True),
+        *((_Line(f"NOW {label.current_length_text}", BOLD, 11.0, wrap=True),
+           _Line(f"cut {label.cut_length_text.split(' / ')[0]}", REGULAR, 7.0))
+          if label.current_length_text else
+          (_Line(f"CUT {label.cut_length_text}", BOLD, 11.0, wrap=True),)),
         _Line(label.leg_id, BOLD, 9.0),
         _Line(f"KIT {label.kit_id}", REGULAR, 8.0),
     ]
