@@ -136,13 +136,13 @@ def build_packet(spec: Design, *, built_at: str, revision: int = 1, model: Model
         warnings.append(f"not enough {buy.material} on hand: {buy.short_m:.1f} m short ({what}); "
                         "see the spool cut plan")
     performance = tuple(design_performance(c, spec.site.ground, spec.exposure) for c in cuts)
+    design_of = {e.element_id: e.kit.design_key for e in entries}
     trims: list[BatchTrim] = []
     for c in cuts:
         if c.design.key in cals:
-            mine = [e for e in cut_elements
-                    if e.element_id in {x.element_id for x in entries if x.kit.design_key == c.design.key}]
+            mine = [e for e in cut_elements if design_of.get(e.element_id) == c.design.key]
             trims += batch_trims(c.design, c.prediction, mine)
-    for key in set(calibrations or {}) - set(cals):
+    for key in sorted(set(calibrations or {}) - set(cals)):
         warnings.append(f"the stored calibration of design {key} no longer applies (its geometry "
                         "or wire changed); cut lengths are uncalibrated")
     return Packet(spec, built_at, revision, model, cuts, entries, tuple(warnings), kit_boms,
