@@ -147,3 +147,11 @@ def test_stale_calibration_is_not_applied(demo_spec):
     packet = build_packet(spec, built_at="t", calibrations={"phonefan": stale})
     assert not packet.cuts_for("phonefan").prediction.calibrated_from
     assert any("no longer applies" in w for w in packet.warnings)
+
+
+def test_no_blank_pages(demo_packet):
+    # Every page of the sheets carries more than its footer (a blank last page wastes paper).
+    reader = PdfReader(demo_packet.out_dir / "sheets.pdf")
+    footer_only = [i for i, p in enumerate(reader.pages)
+                   if len(" ".join(p.extract_text().split())) < 200]
+    assert footer_only == []

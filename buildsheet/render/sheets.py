@@ -491,6 +491,8 @@ def render_sheets(packet: Packet, out: str | Path | BinaryIO, story: list[Flowab
     doc = SheetDoc(buf, pagesize=pagesize, footer=footer_text(packet),
                    title=f"{packet.design.event.name} build sheets")
     flowables = list(story) if story is not None else sheet_story(packet)
+    while flowables and isinstance(flowables[-1], PageBreak):
+        flowables.pop()  # no blank last page
     contents = contents_table(outline_entries(flowables))
     doc.build(_with_contents(flowables, contents) + [_PageNumberForms()])
     write_output(buf.getvalue(), out)
