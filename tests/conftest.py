@@ -5,8 +5,14 @@ from __future__ import annotations
 from pathlib import Path
 
 import pytest
+from hypothesis import settings
 
 from buildsheet.cli import demo_spec_text
+
+# CI machines vary in speed: no per-example deadline, and a fixed example sequence so a run is
+# repeatable (property tests still cover many generated cases).
+settings.register_profile("buildsheet", deadline=None, derandomize=True)
+settings.load_profile("buildsheet")
 
 
 @pytest.fixture(scope="session")
