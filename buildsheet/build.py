@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import hashlib
 import io
-import json
 from collections.abc import Collection, Iterable, Mapping
 from dataclasses import dataclass, replace
 from datetime import datetime
@@ -18,6 +17,7 @@ from pathlib import Path
 
 from buildsheet.em.predict import ModelName
 from buildsheet.manifest import (
+    json_bytes,
     RECHECK_TOLERANCE,
     Manifest,
     ManifestDiff,
@@ -31,7 +31,7 @@ from buildsheet.manifest import (
 )
 from buildsheet.outdir import discard, prepare_staging, recover, swap_in, write_atomic
 from buildsheet.packet import Packet, build_packet, entry_fingerprint
-from buildsheet.records import ElementHistory, ElementRow, SyncReport
+from buildsheet.records import ElementHistory, ElementRow, SyncReport, default_store
 from buildsheet.spec import load_spec
 
 SHEETS_PDF = "sheets.pdf"
@@ -39,8 +39,6 @@ LABELS_PDF = "labels.pdf"
 MANIFEST_JSON = "manifest.json"
 SITE_DIR = "site"
 #: The default record store sits beside the spec: "<spec stem>.records.sqlite".
-STORE_SUFFIX = ".records.sqlite"
-
 Legs = tuple[float, float]
 
 
@@ -68,12 +66,6 @@ class Documents:
 
 
 # --------------------------------------------------------------------------- pure
-
-
-def default_store(spec_path: str | Path) -> Path:
-    """The record store beside the spec: ``club.toml`` -> ``club.records.sqlite``."""
-    spec = Path(spec_path)
-    return spec.with_name(spec.stem + STORE_SUFFIX)
 
 
 def length_text(metres: float, units: str) -> str:
@@ -406,7 +398,7 @@ def build(spec_path: str | Path, out_dir: str | Path, *, built_at: str,
         for name, text in pages.items():
             write_atomic(staging / SITE_DIR / name, text.encode())
         write_atomic(staging / MANIFEST_JSON,
-                     (json.dumps(manifest_to_dict(manifest), indent=1) + "\n").encode())
+                     json_bytes(manifest_to_dict(manifest)))
         swap_in(staging, out, keep=tuple(carried))
     except BaseException:
         discard(staging)

@@ -15,15 +15,7 @@ from pathlib import Path
 from typing import Any, TextIO
 
 from buildsheet.errors import BuildError, RecordError
-
-STORE_SUFFIX = ".records.sqlite"
-
-
-def default_store(spec_path: str | Path) -> Path:
-    """The record store beside the spec: ``club.toml`` -> ``club.records.sqlite``."""
-    spec = Path(spec_path)
-    return spec.with_name(spec.stem + STORE_SUFFIX)
-
+from buildsheet.records import default_store
 
 def _mm(metres: float) -> str:
     return f"{metres * 1000:+.0f} mm"

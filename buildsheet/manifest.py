@@ -18,14 +18,13 @@ from __future__ import annotations
 import hashlib
 import json
 import math
-import os
-import tempfile
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 from buildsheet.errors import BuildError
+from buildsheet.outdir import write_atomic
 
 MANIFEST_FORMAT = "buildsheet-manifest/1"
 #: Default re-check tolerance: fractional move of an element's predicted resonance (0.3 %).
@@ -231,21 +230,14 @@ def file_sha256(path: str | Path) -> str:
     return digest.hexdigest()
 
 
+def json_bytes(data: Any) -> bytes:
+    """The JSON text every manifest and export is written as (UTF-8, indent 1, no NaN)."""
+    return (json.dumps(data, indent=1, ensure_ascii=False, allow_nan=False) + "\n").encode()
+
+
 def write_json_atomic(path: str | Path, data: Any) -> None:
-    """Write JSON to ``path`` via a temporary file in the same folder, fsync, ``os.replace``."""
-    path = Path(path)
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            json.dump(data, fh, indent=1, ensure_ascii=False, allow_nan=False)
-            fh.write("\n")
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    """Write JSON to ``path`` atomically (temporary file in the same folder, then replace)."""
+    write_atomic(Path(path), json_bytes(data))
 
 
 def write_manifest(path: str | Path, manifest: Manifest) -> None:

@@ -15,9 +15,7 @@ from pathlib import Path
 from typing import Any, TextIO
 
 from buildsheet.errors import RecordError
-
-STORE_SUFFIX = ".records.sqlite"
-
+from buildsheet.records import STORE_SUFFIX
 
 def find_store(folder: Path) -> Path:
     """The single ``*.records.sqlite`` file in ``folder``; RecordError naming the candidates."""

@@ -89,6 +89,16 @@ SCHEMA_VERSION: int = MIGRATIONS[-1][0]
 # --------------------------------------------------------------------------- data
 
 
+#: File name suffix of a record store: ``club.toml`` keeps its records in ``club.records.sqlite``.
+STORE_SUFFIX = ".records.sqlite"
+
+
+def default_store(spec_path: str | Path) -> Path:
+    """The record store beside the spec: ``club.toml`` -> ``club.records.sqlite``."""
+    spec = Path(spec_path)
+    return spec.with_name(spec.stem + STORE_SUFFIX)
+
+
 @dataclass(frozen=True)
 class ElementRow:
     """One element (a dipole on one band of a kit). Lengths are per leg in metres.

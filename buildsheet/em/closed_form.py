@@ -101,7 +101,12 @@ def resonance_slope(frequency_hz: float, radius_m: float, wire: WireType | None 
     return (up - down) / (2 * df)
 
 
-def swr(z: complex | np.ndarray, z0: float = 50.0) -> np.ndarray:
-    """Voltage standing-wave ratio of load ``z`` on a line of characteristic impedance ``z0``."""
-    gamma = np.abs((np.asarray(z) - z0) / (np.asarray(z) + z0))
-    return (1 + gamma) / (1 - gamma)
+def swr(z: np.ndarray | complex, z0: float = 50.0) -> np.ndarray:
+    """Voltage standing-wave ratio of load ``z`` (ohm) on a line of real impedance ``z0`` (ohm).
+
+    |Gamma| = |z - z0| / |z + z0|, SWR = (1 + |Gamma|) / (1 - |Gamma|) (standard
+    transmission-line result, e.g. Pozar, Microwave Engineering, sec. 2.3).
+    """
+    g = np.abs((np.asarray(z) - z0) / (np.asarray(z) + z0))
+    with np.errstate(divide="ignore"):
+        return np.where(g < 1.0, (1.0 + g) / np.maximum(1.0 - g, 1e-300), np.inf)

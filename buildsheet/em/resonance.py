@@ -27,6 +27,7 @@ import numpy as np
 from numpy.polynomial.chebyshev import chebder, chebfit, chebval
 from scipy.optimize import brentq
 
+from buildsheet.em.closed_form import swr  # noqa: F401  (one SWR formula; re-exported)
 from buildsheet.em.deployed import (
     DeployedAntenna,
     build_structure,
@@ -59,17 +60,6 @@ EDGE_EXTRAPOLATION: float = 0.5
 #: Secant steps on direct solves for a 2:1 edge, and the step that ends them, Hz.
 EDGE_ITERATIONS: int = 8
 EDGE_XTOL_HZ: float = 1.0
-
-
-def swr(z: np.ndarray | complex, z0: float = 50.0) -> np.ndarray:
-    """Voltage standing-wave ratio of load ``z`` (ohm) on a line of real impedance ``z0`` (ohm).
-
-    |Gamma| = |z - z0| / |z + z0|, SWR = (1 + |Gamma|) / (1 - |Gamma|) (standard
-    transmission-line result, e.g. Pozar, Microwave Engineering, sec. 2.3).
-    """
-    g = np.abs((np.asarray(z) - z0) / (np.asarray(z) + z0))
-    with np.errstate(divide="ignore"):
-        return np.where(g < 1.0, (1.0 + g) / np.maximum(1.0 - g, 1e-300), np.inf)
 
 
 @dataclass(frozen=True, eq=False)

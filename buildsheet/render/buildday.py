@@ -11,6 +11,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
+from fractions import Fraction
 from xml.sax.saxutils import escape
 
 from reportlab.lib import colors
@@ -27,7 +28,7 @@ from reportlab.platypus import (
     TableStyle,
 )
 
-from ..constants import INCH
+from ..units import feet_inches_eighths, format_metric
 from ..bom import BomLine
 from ..stock import SpoolPlan, SpoolUse
 
@@ -61,26 +62,18 @@ _BIG_BOLD = ParagraphStyle("bd-bigb", parent=_BIG, fontName="Helvetica-Bold")
 # --------------------------------------------------------------------------- formatting
 
 
-def default_metric(m: float) -> str:
-    """Metric length: "20.36 m", or "235 mm" below 1 m (input in m)."""
-    if abs(m) < 1.0:
-        return f"{m * 1000:.0f} mm"
-    return f"{m:.2f} m"
+#: Metric length, "20.36 m" or "235 mm" (the one formatter in buildsheet.units).
+default_metric = format_metric
 
 
 def default_feet_inches(m: float) -> str:
-    """Feet and inches to the nearest 1/8 in, e.g. "66 ft 9 1/8 in" (input in m)."""
-    eighths = round(abs(m) / INCH * 8)
-    feet, rest = divmod(eighths, 96)
-    inches, frac = divmod(rest, 8)
-    sign = "-" if m < 0 and eighths else ""
-    num, den = frac, 8
-    while num and num % 2 == 0:
-        num, den = num // 2, den // 2
-    inch_text = f"{inches} {num}/{den}" if num else f"{inches}"
-    if feet == 0:
-        return f"{sign}{inch_text} in"
-    return f"{sign}{feet} ft {inch_text} in"
+    """Feet and inches to the nearest 1/8 in, always with an inch part ("1 ft 0 in"), for
+    mark columns that read down evenly (input in m; split by buildsheet.units)."""
+    sign, feet, inches, eighth = feet_inches_eighths(m)
+    frac = str(Fraction(eighth, 8)) if eighth else ""
+    inch_text = f"{inches} {frac}" if frac else f"{inches}"
+    text = f"{feet} ft {inch_text} in" if feet else f"{inch_text} in"
+    return ("-" if sign < 0 and (feet or inches or eighth) else "") + text
 
 
 def _p(text: str, style: ParagraphStyle = _CELL) -> Paragraph:

@@ -259,11 +259,7 @@ def coverage_page(packet: Packet, cuts: DesignCuts) -> list[Flowable]:
     return story
 
 
-Extra = Callable[[Packet, DesignCuts], list[Flowable]]
-
-
-def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...],
-                extras: tuple[Extra, ...] = ()) -> list[Flowable]:
+def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list[Flowable]:
     """Flowables of one build sheet for ``kits`` (one kit, or a roster for per-design layout)."""
     ev = packet.design.event
     units = ev.units
@@ -298,8 +294,6 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...],
         "shown for comparison.", "small"))
     story += tuning_lines(cuts, units)
     story += [_p("Feed point", "h2")] + feed_lines(cuts) + [swr_row(cuts)]
-    for extra in extras:
-        story += extra(packet, cuts)
     story += [CondPageBreak(120 * mm), _p("Deployment", "h2"),
               drawings.side_view(cuts, 500, 165, units), Spacer(1, 4)]
     site = packet.design.site
@@ -460,17 +454,17 @@ def log_forms(packet: Packet) -> list[Flowable]:
     return story
 
 
-def sheet_story(packet: Packet, extras: tuple[Extra, ...] = ()) -> list[Flowable]:
+def sheet_story(packet: Packet) -> list[Flowable]:
     """The whole sheets document: cover, logistics, build sheets, then the log forms."""
     story = cover(packet) + logistics_pages(packet) + batch_trim_pages(packet)
     for c in packet.cuts:
         kits = packet.kits_of(c.design.key)
         story += coverage_page(packet, c)
         if packet.design.event.layout == "per_design":
-            story += build_sheet(packet, c, kits, extras)
+            story += build_sheet(packet, c, kits)
         else:
             for k in kits:
-                story += build_sheet(packet, c, (k,), extras)
+                story += build_sheet(packet, c, (k,))
     return story + log_forms(packet)
 
 

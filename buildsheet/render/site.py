@@ -8,9 +8,7 @@ page contexts out); :func:`write_site` is the only function that touches files.
 
 from __future__ import annotations
 
-import os
 import re
-import tempfile
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
 from importlib.resources import files
@@ -19,6 +17,7 @@ from pathlib import Path
 import jinja2
 
 from buildsheet.errors import BuildError
+from buildsheet.outdir import write_atomic
 from buildsheet.records import ElementHistory
 from buildsheet.units import format_frequency, format_length
 
@@ -247,18 +246,6 @@ def render_site(histories: Sequence[ElementHistory], built_at: str,
 # --------------------------------------------------------------------------- files
 
 
-def _write_atomic(path: Path, text: str) -> None:
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-
-
 def write_site(out_dir: str | Path, histories: Iterable[ElementHistory], built_at: str,
                sheet_files: Mapping[str, str] | None = None,
                sheet_hrefs: Mapping[str, str] | None = None,
@@ -271,7 +258,7 @@ def write_site(out_dir: str | Path, histories: Iterable[ElementHistory], built_a
         folder.mkdir(parents=True, exist_ok=True)
         written = []
         for name, text in pages.items():
-            _write_atomic(folder / name, text)
+            write_atomic(folder / name, text.encode("utf-8"))
             written.append(folder / name)
     except OSError as exc:
         raise BuildError(f"{folder}: cannot write the record pages ({exc.strerror or exc})") \
