@@ -11,7 +11,7 @@ import random
 import statistics
 import time
 
-from buildsheet.stock import Cut, StockItem, plan_spools
+from buildsheet.calc.stock import Cut, StockItem, plan_spools
 
 
 def instance(seed: int = 5) -> tuple[list[Cut], list[StockItem]]:
@@ -67,11 +67,11 @@ def packet_timing(kits: int) -> float:
     from pathlib import Path
 
     from buildsheet.build import build
-    from buildsheet.cli import demo_spec_text
-    from buildsheet.em import mom_adapter, predict
-    from buildsheet import performance
+    from buildsheet.cli.main import demo_spec_text
+    from buildsheet.em import prediction, solve
+    from buildsheet.calc import performance
 
-    for cached in (mom_adapter.predict_mom, predict._closed_form, performance.design_performance):
+    for cached in (solve.predict_mom, prediction.closed_form_prediction, performance.design_performance):
         cached.cache_clear()
     text = demo_spec_text().replace("count = 10", f"count = {kits}").replace(
         "count = 5", f"count = {max(5, kits // 2)}").replace("count = 12", f"count = {kits + 4}")

@@ -12,12 +12,12 @@ import time
 
 from scipy.optimize import brentq
 
-from buildsheet import calibrate as cal
+from buildsheet.calc import calibrate as cal
 from buildsheet.em import mom, resonance
 from buildsheet.em.ground import real_ground
-from buildsheet.em.mom_adapter import deployed_antenna, predict_mom
-from buildsheet.model import Allowances, AntennaDesign, ElementSpec
-from buildsheet.wire import BUILTIN_WIRES
+from buildsheet.em.solve import deployed_antenna, predict_mom
+from buildsheet.spec.design import Allowances, AntennaDesign, ElementSpec
+from buildsheet.spec.wires import BUILTIN_WIRES
 
 TARGET_S = 2.0
 

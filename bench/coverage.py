@@ -10,7 +10,7 @@ import sys
 import time
 
 from buildsheet.constants import C0
-from buildsheet.coverage import compromise_height, height_advice, nvis_figures, sinusoidal_currents
+from buildsheet.calc.coverage import compromise_height, height_advice, nvis_figures, sinusoidal_currents
 from buildsheet.em.ground import real_ground
 
 FREQS = (3.6e6, 5.36e6, 7.1e6)

@@ -14,7 +14,7 @@ from buildsheet.em import mom
 from buildsheet.em.deployed import DeployedAntenna, ElementGeometry, Port, Structure, WireSpec
 from buildsheet.em.ground import FREE_SPACE, real_ground
 from buildsheet.em.resonance import prediction_band, solve_resonance
-from buildsheet.wire import BUILTIN_WIRES
+from buildsheet.spec.wires import BUILTIN_WIRES
 
 
 def best(fn, repeat=5):

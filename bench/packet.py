@@ -16,7 +16,7 @@ from pathlib import Path
 def main() -> None:
     t0 = time.perf_counter()
     from buildsheet.build import build
-    from buildsheet.cli import demo_spec_text
+    from buildsheet.cli.main import demo_spec_text
 
     t_import = time.perf_counter() - t0
     with tempfile.TemporaryDirectory() as tmp:

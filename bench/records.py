@@ -10,7 +10,7 @@ import time
 from datetime import UTC, datetime, timedelta
 from pathlib import Path
 
-from buildsheet import records as rec
+from buildsheet.store import ledger as rec
 from buildsheet.render.site import write_site
 
 BANDS = (("80m", 3.6e6, 3.5e6, 4.0e6), ("60m", 5.3585e6, 5.3305e6, 5.4065e6),

@@ -2,6 +2,6 @@
 
 import sys
 
-from buildsheet.cli import main
+from buildsheet.cli.main import main
 
 sys.exit(main())

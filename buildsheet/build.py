@@ -15,8 +15,8 @@ from dataclasses import dataclass, replace
 from datetime import datetime
 from pathlib import Path
 
-from buildsheet.em.predict import ModelName
-from buildsheet.manifest import (
+from buildsheet.em.prediction import ModelName
+from buildsheet.store.manifest import (
     json_bytes,
     RECHECK_TOLERANCE,
     Manifest,
@@ -29,10 +29,10 @@ from buildsheet.manifest import (
     read_manifest,
     recheck_lines,
 )
-from buildsheet.outdir import discard, prepare_staging, recover, swap_in, write_atomic
+from buildsheet.store.files import discard, prepare_staging, recover, swap_in, write_atomic
 from buildsheet.packet import Packet, build_packet, entry_fingerprint
-from buildsheet.records import ElementHistory, ElementRow, SyncReport, default_store
-from buildsheet.spec import load_spec
+from buildsheet.store.ledger import ElementHistory, ElementRow, SyncReport, default_store
+from buildsheet.spec.reader import load_spec
 
 SHEETS_PDF = "sheets.pdf"
 LABELS_PDF = "labels.pdf"
@@ -70,7 +70,7 @@ class Documents:
 
 def length_text(metres: float, units: str) -> str:
     """A label length, primary unit first: "10.43 m / 34 ft 2 5/8 in"."""
-    from buildsheet.units import format_both
+    from buildsheet.spec.units import format_both
 
     return format_both(metres, units).replace(" (", " / ").rstrip(")")  # type: ignore[arg-type]
 
@@ -97,8 +97,8 @@ def stored_calibrations(store, spec) -> dict:  # noqa: ANN001 - RecordStore, Des
     """The newest stored site calibration per design: one made for the design's current
     geometry and wire if there is one, else the newest of any (build_packet then warns that it
     no longer applies)."""
-    from buildsheet.calibrate import calibration_from_json, design_fingerprint
-    from buildsheet.records import latest_calibration, list_calibrations
+    from buildsheet.calc.calibrate import calibration_from_json, design_fingerprint
+    from buildsheet.store.ledger import latest_calibration, list_calibrations
 
     out = {}
     for d in spec.designs:
@@ -113,7 +113,7 @@ def stored_calibrations(store, spec) -> dict:  # noqa: ANN001 - RecordStore, Des
 
 def cut_elements(histories: Iterable[ElementHistory]) -> list:
     """Elements known to be cut (they have measurements or trims), with their current legs."""
-    from buildsheet.calibrate import CutElement
+    from buildsheet.calc.calibrate import CutElement
 
     return [CutElement(h.element.id, h.element.key, h.current_leg_m("A"), h.current_leg_m("B"))
             for h in histories
@@ -128,8 +128,8 @@ def label_contents(packet: Packet, current: Mapping[str, Legs] | None = None,
     label then shows the cut length and, after "NOW", the current length of its leg.
     ``only`` keeps the labels of those element IDs.
     """
-    from buildsheet.labels import LabelContent, offline_record, record_url
-    from buildsheet.units import format_frequency, format_length
+    from buildsheet.calc.labels import LabelContent, offline_record, record_url
+    from buildsheet.spec.units import format_frequency, format_length
 
     ev = packet.design.event
     current = current or {}
@@ -203,7 +203,7 @@ def filtered_packet(packet: Packet, ids: Collection[str]) -> Packet:
 def manifest_of(packet: Packet, hashes: Mapping[str, str],
                 element_files: Mapping[str, tuple[str, ...]] | None = None,
                 files: Mapping[str, str] | None = None, notes: tuple[str, ...] = ()) -> Manifest:
-    """The packet's manifest (one home for its shape: buildsheet.manifest)."""
+    """The packet's manifest (one home for its shape: buildsheet.store.manifest)."""
     element_files = element_files or {}
     elements = {e.element_id: ManifestElement(hashes[e.element_id], e.cut.predicted_leg_m,
                                               e.cut.element.frequency_hz, e.cut.cut_leg_m,
@@ -275,8 +275,8 @@ def render_documents(packet: Packet, current: Mapping[str, Legs],
 def comparisons(packet: Packet, histories: Iterable[ElementHistory]) -> dict[str, tuple]:
     """Per element, the model's and the calibration's predictions beside the latest measured
     dip: (label, text) rows for the record page."""
-    from buildsheet.cuts import expected_dip_hz
-    from buildsheet.units import format_frequency, format_length
+    from buildsheet.calc.cuts import expected_dip_hz
+    from buildsheet.spec.units import format_frequency, format_length
 
     latest = {h.element.id: h.measurements[-1].dip_hz for h in histories if h.measurements}
     out = {}
@@ -329,7 +329,7 @@ def _moment(built_at: str) -> datetime:
 
 def _record_prints(store, packet: Packet, hashes: Mapping[str, str], docs: Documents,
                    before: Mapping[str, ElementHistory], now: datetime) -> None:
-    from buildsheet.records import record_print
+    from buildsheet.store.ledger import record_print
 
     for eid in sorted(docs.sheet_of):
         done = {(p.revision, p.kind, p.hash, p.file)
@@ -349,7 +349,7 @@ def build(spec_path: str | Path, out_dir: str | Path, *, built_at: str,
     then swaps the staged folder in. ``changed_only`` writes only new and changed elements'
     sheets and labels and keeps the earlier files alongside.
     """
-    from buildsheet.records import load_histories, open_store, sync_elements
+    from buildsheet.store.ledger import load_histories, open_store, sync_elements
 
     spec = load_spec(spec_path)
     out = Path(out_dir)

@@ -11,18 +11,19 @@ import json
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 
-from buildsheet.calibrate import (
+from buildsheet.calc.calibrate import (
     BatchTrim, Calibration, CutElement, batch_trims, calibrated_prediction, design_fingerprint,
 )
-from buildsheet.cuts import DesignCuts, ElementCut, design_cuts
-from buildsheet.em.predict import ModelName, predict
+from buildsheet.calc.cuts import DesignCuts, ElementCut, design_cuts
+from buildsheet.em.prediction import ModelName
+from buildsheet.em.solve import predict
 from buildsheet.errors import BuildError, Problem
-from buildsheet.logistics import logistics
-from buildsheet.model import AntennaDesign, Design, Kit
-from buildsheet.performance import DesignPerformance, design_performance
-from buildsheet.bom import BomLine
-from buildsheet.stock import SpoolPlan
-from buildsheet.units import format_both, format_frequency
+from buildsheet.calc.logistics import logistics
+from buildsheet.spec.design import AntennaDesign, Design, Kit
+from buildsheet.calc.performance import DesignPerformance, design_performance
+from buildsheet.calc.bom import BomLine
+from buildsheet.calc.stock import SpoolPlan
+from buildsheet.spec.units import format_both, format_frequency
 
 SAFETY_CAUTIONS: tuple[str, ...] = (
     "Overhead power lines: look up before raising anything. If the mast or antenna fell, no part "

@@ -7,7 +7,7 @@ from pathlib import Path
 import pytest
 from hypothesis import settings
 
-from buildsheet.cli import demo_spec_text
+from buildsheet.cli.main import demo_spec_text
 
 # CI machines vary in speed: no per-example deadline, and a fixed example sequence so a run is
 # repeatable (property tests still cover many generated cases).

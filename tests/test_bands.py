@@ -2,7 +2,7 @@
 
 import pytest
 
-from buildsheet.bands import US_60M_CHANNELS_HZ, band_containing, band_names, get_band
+from buildsheet.spec.bands import US_60M_CHANNELS_HZ, band_containing, band_names, get_band
 
 
 @pytest.mark.parametrize("name, region, low_khz, high_khz", [

@@ -19,12 +19,12 @@ import zxingcpp
 from PIL import Image
 from pypdf import PdfReader
 
-from buildsheet import records as rec
+from buildsheet.store import ledger as rec
 from buildsheet.build import build, default_store
-from buildsheet.cli import demo_spec_text, main
-from buildsheet.manifest import read_manifest
+from buildsheet.cli.main import demo_spec_text, main
+from buildsheet.store.manifest import read_manifest
 from buildsheet.render.site import page_name
-from buildsheet.units import format_frequency, format_length
+from buildsheet.spec.units import format_frequency, format_length
 
 T1, T2, T3 = "2027-03-01T09:00:00Z", "2027-03-02T09:00:00Z", "2027-03-03T09:00:00Z"
 
@@ -189,7 +189,7 @@ def test_adding_60m_to_the_fan_flags_others_and_changed_only_writes_them(tmp_pat
 def _first_label_cell(pdf: Path) -> int:
     """Index of the first used cell on page 1 (cells numbered across, then down), from the
     decoded QR positions and the label stock's cell grid."""
-    from buildsheet.labels import resolve_stock
+    from buildsheet.calc.labels import resolve_stock
 
     stock = resolve_stock("sheet-letter", "labels.stock")
     doc = pdfium.PdfDocument(str(pdf))

@@ -2,7 +2,7 @@
 
 The "measurements" here are synthetic: dips generated from the model over a known P.527 ground
 (wet) with scipy's brentq on the feed reactance of buildsheet.em.mom.feed_impedance, a root
-finder independent of the Newton iteration inside buildsheet.calibrate. Calibration starts from
+finder independent of the Newton iteration inside buildsheet.calc.calibrate. Calibration starts from
 another assumed ground (medium dry), as on a real build day.
 """
 
@@ -17,16 +17,16 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq
 
-from buildsheet import calibrate as cal
-from buildsheet import records as rec
-from buildsheet.calibrate_cli import run
+from buildsheet.calc import calibrate as cal
+from buildsheet.store import ledger as rec
+from buildsheet.cli.main import main as run
 from buildsheet.em.ground import real_ground
 from buildsheet.em.mom import feed_impedance
-from buildsheet.em.mom_adapter import deployed_antenna, predict_mom
+from buildsheet.em.solve import deployed_antenna, predict_mom
 from buildsheet.errors import BuildError
-from buildsheet.model import AntennaDesign
-from buildsheet.spec import load_spec
-from buildsheet.wire import BUILTIN_WIRES
+from buildsheet.spec.design import AntennaDesign
+from buildsheet.spec.reader import load_spec
+from buildsheet.spec.wires import BUILTIN_WIRES
 
 T0 = datetime(2027, 3, 13, 10, 0, tzinfo=UTC)
 # A 75/60/40 m inverted-V fan at 7.5 m with 2 m ends: the widely used NVIS compromise

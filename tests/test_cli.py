@@ -10,8 +10,8 @@ from pathlib import Path
 import pytest
 from pypdf import PdfReader
 
-from buildsheet.cli import main
-from buildsheet.units import format_both
+from buildsheet.cli.main import main
+from buildsheet.spec.units import format_both
 
 
 def test_sheets_show_every_cut_length(demo_packet):

@@ -8,7 +8,7 @@ from scipy import integrate, optimize
 
 from buildsheet.constants import C0, ETA0, FOOT
 from buildsheet.em import closed_form
-from buildsheet.wire import BUILTIN_WIRES, WireType
+from buildsheet.spec.wires import BUILTIN_WIRES, WireType
 
 
 def test_half_wave_self_impedance():

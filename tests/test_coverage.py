@@ -1,4 +1,4 @@
-"""Tests for buildsheet.coverage against image theory, optics and REFERENCES.md section 7."""
+"""Tests for buildsheet.calc.coverage against image theory, optics and REFERENCES.md section 7."""
 
 from __future__ import annotations
 
@@ -10,7 +10,7 @@ from numpy.testing import assert_allclose
 from scipy import integrate, optimize
 
 from buildsheet.constants import C0, ETA0
-from buildsheet.coverage import (
+from buildsheet.calc.coverage import (
     band_guidance,
     compromise_height,
     elevation_cuts,
@@ -193,7 +193,7 @@ def test_nvis_figures_shares():
 
 def test_share_above_matches_scipy_dblquad():
     # Share above 60 degrees against scipy.integrate.dblquad of the same intensity.
-    from buildsheet.coverage import intensity
+    from buildsheet.calc.coverage import intensity
 
     sc = flat_dipole(0.15, n=11)
     fig = nvis_figures(sc, MEDIUM)

@@ -1,4 +1,4 @@
-"""Tests for buildsheet.exposure against FCC OET Bulletin 65, 47 CFR 1.1310 and ICNIRP 2020."""
+"""Tests for buildsheet.calc.exposure against FCC OET Bulletin 65, 47 CFR 1.1310 and ICNIRP 2020."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ import pytest
 from numpy.testing import assert_allclose
 
 from buildsheet.errors import BuildError
-from buildsheet.exposure import (
+from buildsheet.calc.exposure import (
     DUTY_FACTORS,
     average_power_w,
     distance_for_density,
@@ -17,7 +17,7 @@ from buildsheet.exposure import (
     power_density_w_m2,
     screen,
 )
-from buildsheet.feedline import coax, matched_loss_db
+from buildsheet.calc.feedline import coax, matched_loss_db
 
 
 def test_fcc_table_3_30_mhz():

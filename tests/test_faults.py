@@ -20,10 +20,10 @@ import pytest
 from pypdf import PdfReader
 from test_build_records import small_spec  # same small spec (tests/ is on sys.path)
 
-from buildsheet import records as rec
+from buildsheet.store import ledger as rec
 from buildsheet.build import default_store
-from buildsheet.manifest import read_manifest
-from buildsheet.outdir import recover
+from buildsheet.store.manifest import read_manifest
+from buildsheet.store.files import recover
 
 RUNS = 20
 SEED = 20270313
@@ -98,7 +98,7 @@ def test_killed_builds_leave_the_previous_packet_intact(tmp_path: Path) -> None:
 def test_recover_after_a_kill_inside_the_swap(tmp_path: Path, moment: str) -> None:
     """The two instants inside swap_in, recreated on disk: old folder moved aside but new not
     yet in place (restore the old one), and new in place with the backup left (drop it)."""
-    from buildsheet.outdir import _backup_name
+    from buildsheet.store.files import _backup_name
 
     out = tmp_path / "out"
     backup = _backup_name(out)

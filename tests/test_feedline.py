@@ -1,4 +1,4 @@
-"""Tests for buildsheet.feedline (typical published coax attenuation, from memory)."""
+"""Tests for buildsheet.calc.feedline (typical published coax attenuation, from memory)."""
 
 from __future__ import annotations
 
@@ -6,7 +6,7 @@ import pytest
 from numpy.testing import assert_allclose
 
 from buildsheet.errors import BuildError
-from buildsheet.feedline import (
+from buildsheet.calc.feedline import (
     COAX_TYPES,
     attenuation_db_per_m,
     coax,

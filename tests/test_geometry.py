@@ -4,7 +4,7 @@ import math
 
 import pytest
 
-from buildsheet.geometry import footprint, included_angle_deg, leg_geometry, leg_reach
+from buildsheet.calc.geometry import footprint, included_angle_deg, leg_geometry, leg_reach
 
 
 def test_three_four_five_leg():

@@ -20,7 +20,7 @@ from pypdf import PdfReader
 from pypdf.generic import ContentStream
 
 from buildsheet.errors import BuildError, SpecError
-from buildsheet.labels import (
+from buildsheet.calc.labels import (
     MM_PER_PT,
     STOCKS,
     LabelContent,

@@ -8,7 +8,7 @@ from pathlib import Path
 import pytest
 
 from buildsheet.errors import BuildError
-from buildsheet.manifest import (
+from buildsheet.store.manifest import (
     Manifest,
     ManifestElement,
     content_hash,

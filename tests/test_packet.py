@@ -8,7 +8,7 @@ import pytest
 from pypdf import PdfReader
 
 from buildsheet.constants import C0
-from buildsheet.logistics import CORD
+from buildsheet.calc.logistics import CORD
 
 
 def test_demo_spool_plan_within_one_of_bound(demo_packet):
@@ -75,7 +75,7 @@ def test_sheets_carry_coverage_swr_and_exposure(demo_packet):
 
 def test_per_design_layout_imperial_and_icnirp(tmp_path, demo_spec):
     from buildsheet.build import build
-    from buildsheet.units import format_imperial
+    from buildsheet.spec.units import format_imperial
 
     text = (demo_spec.read_text().replace('layout = "per_kit"', 'layout = "per_design"')
             .replace('units = "metric"', 'units = "imperial"')
@@ -95,11 +95,11 @@ def test_calibrated_packet_cuts_and_batch_trims(tmp_path, demo_spec):
     """With a stored site calibration the packet prints calibrated cuts, a smaller trim
     allowance, and batch trims that bring cut legs to the calibrated prediction (issue 7:
     consistent to within a millimetre)."""
-    from buildsheet import calibrate as cal
+    from buildsheet.calc import calibrate as cal
     from buildsheet.em.ground import GROUND_CLASSES
     from buildsheet.packet import build_packet
     from buildsheet.render.sheets import render_sheets
-    from buildsheet.spec import load_spec
+    from buildsheet.spec.reader import load_spec
 
     spec = load_spec(demo_spec)
     fan = spec.design("phonefan")
@@ -136,10 +136,10 @@ def test_calibrated_packet_cuts_and_batch_trims(tmp_path, demo_spec):
 
 
 def test_stale_calibration_is_not_applied(demo_spec):
-    from buildsheet import calibrate as cal
+    from buildsheet.calc import calibrate as cal
     from buildsheet.em.ground import GROUND_CLASSES
     from buildsheet.packet import build_packet
-    from buildsheet.spec import load_spec
+    from buildsheet.spec.reader import load_spec
 
     spec = load_spec(demo_spec)
     stale = cal.Calibration("phonefan", "0" * 64, GROUND_CLASSES["wet"], "wet", (), "medium dry",

@@ -12,9 +12,10 @@ from pathlib import Path
 
 import pytest
 
-from buildsheet import records as rec
+from buildsheet.store import ledger as rec
 from buildsheet.errors import RecordError
-from buildsheet.record_cli import find_store, run
+from buildsheet.cli.main import main as run
+from buildsheet.cli.records import find_store
 
 T0 = datetime(2024, 5, 4, 9, 30, tzinfo=UTC)
 
@@ -295,7 +296,7 @@ def test_export_and_import_commands(store_path: Path, tmp_path: Path,
 def test_fifty_concurrent_measure_processes(store_path: Path) -> None:
     """Separate processes writing at once lose nothing; sqlite's integrity_check passes."""
     procs = [subprocess.Popen(
-        [sys.executable, "-m", "buildsheet.record_cli", "measure", "K03-40m",
+        [sys.executable, "-m", "buildsheet", "measure", "K03-40m",
          "--dip", f"{7.0 + i * 0.004:.3f}MHz", "--note", f"p{i}", "--store", str(store_path)],
         stdout=subprocess.PIPE, stderr=subprocess.PIPE) for i in range(50)]
     results = [p.communicate(timeout=120) + (p.returncode,) for p in procs]

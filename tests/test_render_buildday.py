@@ -24,8 +24,8 @@ from buildsheet.render.buildday import (
     station_list_flowables,
     station_lists_flowables,
 )
-from buildsheet.bom import KitNeeds, WireNeed, day_bom, kit_bom
-from buildsheet.stock import Cut, StockItem, plan_spools
+from buildsheet.calc.bom import KitNeeds, WireNeed, day_bom, kit_bom
+from buildsheet.calc.stock import Cut, StockItem, plan_spools
 
 
 def render(flowables, pagesize=A4) -> bytes:

@@ -11,7 +11,7 @@ from pathlib import Path
 import jinja2
 import pytest
 
-from buildsheet import records as rec
+from buildsheet.store import ledger as rec
 from buildsheet.render.site import environment, page_name, render_site, write_site
 
 T0 = datetime(2024, 5, 4, 9, 30, tzinfo=UTC)

@@ -3,7 +3,7 @@
 import pytest
 
 from buildsheet.errors import SpecError
-from buildsheet.spec import read_spec_text
+from buildsheet.spec.reader import read_spec_text
 
 GOOD = """
 [event]

@@ -1,4 +1,4 @@
-"""Tests for buildsheet.stock: spool cut plan and bills of materials.
+"""Tests for buildsheet.calc.stock: spool cut plan and bills of materials.
 
 Reference checks are an independent exhaustive search written here (set partitions and
 cut-to-spool assignments), the classic first-fit-decreasing counter-example, and round trips.
@@ -15,8 +15,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from buildsheet.errors import BuildError, SpecError
-from buildsheet.bom import BomLine, KitNeeds, WireNeed, bom_from_csv, bom_to_csv, day_bom, kit_bom
-from buildsheet.stock import (
+from buildsheet.calc.bom import BomLine, KitNeeds, WireNeed, bom_from_csv, bom_to_csv, day_bom, kit_bom
+from buildsheet.calc.stock import (
     EXACT_MAX_CUTS,
     Cut,
     SpoolPlan,
@@ -250,7 +250,7 @@ def test_large_instance_near_bound_and_deterministic():
 def test_exact_search_budget_falls_back_to_heuristic(monkeypatch):
     # With a tiny node budget the exact search stops early: the plan is still valid and is
     # marked as heuristic, not proven.
-    import buildsheet.stock as stock_mod
+    import buildsheet.calc.stock as stock_mod
 
     monkeypatch.setattr(stock_mod, "EXACT_NODE_BUDGET", 3)
     cuts = [Cut(f"C{i}", "w", p - 0.01, "") for i, p in enumerate([5, 4, 3, 3, 3, 2])]

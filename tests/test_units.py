@@ -3,7 +3,7 @@
 import pytest
 from hypothesis import given, strategies as st
 
-from buildsheet.units import (
+from buildsheet.spec.units import (
     feet_inches_eighths, format_both, format_frequency, format_imperial, format_metric,
     parse_frequency, parse_length,
 )

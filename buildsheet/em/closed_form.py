@@ -17,7 +17,7 @@ from scipy.special import sici
 
 from buildsheet.constants import C0, ETA0, EULER_GAMMA, FOOT, RULE_468_FT_MHZ
 from buildsheet.em.loading import series_impedance_per_m
-from buildsheet.wire import WireType
+from buildsheet.spec.wires import WireType
 
 
 def _si(x: float) -> float:

@@ -22,7 +22,7 @@ import numpy as np
 from buildsheet.constants import C0
 from buildsheet.em.ground import Ground
 from buildsheet.errors import BuildError
-from buildsheet.wire import WireType
+from buildsheet.spec.wires import WireType
 
 #: Default largest segment, in wavelengths at the highest frequency analysed (issue 3 allows at
 #: most 0.05; 0.025 keeps the delta-gap drift of the resonant length near 0.1 %).
@@ -44,7 +44,7 @@ class ElementGeometry:
     bearing_deg: float          # compass bearing of leg A (0 = north, clockwise); leg B at +180
     end_height_m: float         # height of the leg ends (equal to feed height for a flat dipole)
     leg_length_m: float         # along the wire, feed point to end; a start value for the solver
-    wire: WireType              # from buildsheet.wire
+    wire: WireType              # from buildsheet.spec.wires
 
 
 @dataclass(frozen=True)

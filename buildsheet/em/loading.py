@@ -10,7 +10,7 @@ import math
 import numpy as np
 
 from buildsheet.constants import MU0, SIGMA_COPPER, SIGMA_STEEL
-from buildsheet.wire import WireType
+from buildsheet.spec.wires import WireType
 
 
 def coating_inductance_per_m(a: float, b: float, eps_r: float) -> float:

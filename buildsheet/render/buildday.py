@@ -3,7 +3,7 @@ station lists (one page per spool) and measurement log forms.
 
 Pure builders: data in, a list of flowables out; the packet assembler adds them to its
 document. Nothing physical is computed here. Lengths are shown through a formatter callable
-``fmt(m) -> str`` (pass ``buildsheet.units.format_length`` bound to a unit system); the small
+``fmt(m) -> str`` (pass ``buildsheet.spec.units.format_length`` bound to a unit system); the small
 defaults below are used when none is given. Black on white, text at least 8 pt.
 """
 
@@ -28,9 +28,9 @@ from reportlab.platypus import (
     TableStyle,
 )
 
-from ..units import feet_inches_eighths, format_metric
-from ..bom import BomLine
-from ..stock import SpoolPlan, SpoolUse
+from buildsheet.spec.units import feet_inches_eighths, format_metric
+from buildsheet.calc.bom import BomLine
+from buildsheet.calc.stock import SpoolPlan, SpoolUse
 
 LengthFormat = Callable[[float], str]
 
@@ -62,13 +62,13 @@ _BIG_BOLD = ParagraphStyle("bd-bigb", parent=_BIG, fontName="Helvetica-Bold")
 # --------------------------------------------------------------------------- formatting
 
 
-#: Metric length, "20.36 m" or "235 mm" (the one formatter in buildsheet.units).
+#: Metric length, "20.36 m" or "235 mm" (the one formatter in buildsheet.spec.units).
 default_metric = format_metric
 
 
 def default_feet_inches(m: float) -> str:
     """Feet and inches to the nearest 1/8 in, always with an inch part ("1 ft 0 in"), for
-    mark columns that read down evenly (input in m; split by buildsheet.units)."""
+    mark columns that read down evenly (input in m; split by buildsheet.spec.units)."""
     sign, feet, inches, eighth = feet_inches_eighths(m)
     frac = str(Fraction(eighth, 8)) if eighth else ""
     inch_text = f"{inches} {frac}" if frac else f"{inches}"

@@ -7,8 +7,8 @@ import math
 from reportlab.graphics.shapes import Circle, Drawing, Line, Polygon, Rect, String
 from reportlab.lib import colors
 
-from buildsheet.cuts import DesignCuts
-from buildsheet.units import UnitSystem, format_length
+from buildsheet.calc.cuts import DesignCuts
+from buildsheet.spec.units import UnitSystem, format_length
 
 _NICE = (1, 2, 5)
 FONT = "Helvetica"

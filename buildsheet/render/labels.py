@@ -2,7 +2,7 @@
 
 The QR symbol is drawn as filled vector rectangles (one per horizontal run of dark modules)
 from segno's matrix, so it stays sharp at any printer resolution. Geometry comes from
-``buildsheet.labels`` in mm and is converted to PDF points here.
+``buildsheet.calc.labels`` in mm and is converted to PDF points here.
 """
 
 from __future__ import annotations
@@ -18,8 +18,8 @@ from reportlab.pdfbase.pdfmetrics import getFont, stringWidth
 from reportlab.pdfgen.canvas import Canvas
 
 from buildsheet.errors import BuildError, Problem, SpecError
-from buildsheet.outdir import write_output
-from buildsheet.labels import (
+from buildsheet.store.files import write_output
+from buildsheet.calc.labels import (
     LEADING,
     MIN_BAND_PT,
     MIN_TEXT_PT,

@@ -20,13 +20,13 @@ from reportlab.platypus import (
     Paragraph, Spacer, Table, TableStyle,
 )
 
-from buildsheet.cuts import DesignCuts, expected_dip_hz
-from buildsheet.model import Kit
+from buildsheet.calc.cuts import DesignCuts, expected_dip_hz
+from buildsheet.spec.design import Kit
 from buildsheet.packet import SAFETY_CAUTIONS, Packet
-from buildsheet.outdir import write_output
-from buildsheet.performance import DesignPerformance
+from buildsheet.store.files import write_output
+from buildsheet.calc.performance import DesignPerformance
 from buildsheet.render import buildday, charts, drawings
-from buildsheet.units import format_both, format_frequency, format_length
+from buildsheet.spec.units import format_both, format_frequency, format_length
 
 _BASE = getSampleStyleSheet()
 STYLES = {

@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from buildsheet.em.mutual import parallel_mutual, side_by_side_half_wave
+from .mutual_reference import parallel_mutual, side_by_side_half_wave
 
 F = 299_792_458.0  # lambda = 1 m
 

@@ -10,7 +10,7 @@ from buildsheet.em.ground import FREE_SPACE, PERFECT_GROUND, real_ground
 from buildsheet.em.mom import feed_impedance
 from buildsheet.em.resonance import prediction_band, solve_resonance, swr
 from buildsheet.errors import BuildError
-from buildsheet.wire import BUILTIN_WIRES, WireType
+from buildsheet.spec.wires import BUILTIN_WIRES, WireType
 
 FT = 0.3048
 

@@ -15,7 +15,7 @@ from buildsheet.em import mom
 from buildsheet.em.closed_form import self_impedance
 from buildsheet.em.deployed import Port, Structure
 from buildsheet.em.ground import FREE_SPACE
-from buildsheet.em.mutual import side_by_side_half_wave
+from .mutual_reference import side_by_side_half_wave
 
 from tests.em.test_mom import F, dipole, z_in
 

@@ -11,7 +11,7 @@ Pure core: lengths in metres, no file or clock access. Two parts:
   spool by moves and swaps), and an exact branch-and-bound over set partitions when a material
   has at most ``EXACT_MAX_CUTS`` cuts (in the spirit of Martello and Toth, "Knapsack Problems",
   1990, ch. 8).
-Bills of materials live in ``buildsheet.bom``.
+Bills of materials live in ``buildsheet.calc.bom``.
 """
 
 from __future__ import annotations
@@ -22,7 +22,7 @@ from collections import Counter, defaultdict
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
-from .errors import BuildError, Problem
+from buildsheet.errors import BuildError, Problem
 
 #: Default cutting tolerance added to every cut, m (common practice: squaring the end and
 #: measuring error; builders cut long anyway).

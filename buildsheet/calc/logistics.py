@@ -1,15 +1,15 @@
 """Build-day logistics from the solved designs: per-kit needs, bills of materials, the list of
-every cut of the day and the spool cut plan (buildsheet.stock does the packing)."""
+every cut of the day and the spool cut plan (buildsheet.calc.stock does the packing)."""
 
 from __future__ import annotations
 
 from collections.abc import Iterable
 
-from buildsheet.cuts import DesignCuts
-from buildsheet.feedline import coax
-from buildsheet.model import Design, Kit
-from buildsheet.bom import BomLine, KitNeeds, WireNeed, day_bom, kit_bom
-from buildsheet.stock import Cut, SpoolPlan, StockItem, plan_spools
+from buildsheet.calc.cuts import DesignCuts
+from buildsheet.calc.feedline import coax
+from buildsheet.spec.design import Design, Kit
+from buildsheet.calc.bom import BomLine, KitNeeds, WireNeed, day_bom, kit_bom
+from buildsheet.calc.stock import Cut, SpoolPlan, StockItem, plan_spools
 
 #: Material key for tie-off cord in the spec's [[stock]] tables.
 CORD = "cord"

@@ -6,9 +6,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from buildsheet.em import closed_form
-from buildsheet.em.predict import DesignPrediction, ElementPrediction
-from buildsheet.geometry import LegGeometry, footprint, Footprint, included_angle_deg, leg_geometry
-from buildsheet.model import AntennaDesign, ElementSpec
+from buildsheet.em.prediction import DesignPrediction, ElementPrediction
+from buildsheet.calc.geometry import LegGeometry, footprint, Footprint, included_angle_deg, leg_geometry
+from buildsheet.spec.design import AntennaDesign, ElementSpec
 
 #: Frequency step of the printed tuning line, Hz.
 TUNING_STEP_HZ = 100e3

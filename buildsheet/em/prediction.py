@@ -1,4 +1,4 @@
-"""One entry point for the resonant leg length of every element, whichever model computes it.
+"""Predicted resonances (the types every model returns) and the closed-form model.
 
 ``closed_form``: each element as a straight dipole in free space by the induced-EMF method
 (insulation and conductor loss included as distributed loading), ignoring ground, droop and the
@@ -16,7 +16,7 @@ import numpy as np
 
 from buildsheet.em import closed_form
 from buildsheet.em.ground import Ground
-from buildsheet.model import AntennaDesign
+from buildsheet.spec.design import AntennaDesign
 
 ModelName = Literal["closed_form", "mom"]
 
@@ -82,7 +82,7 @@ def sweep_frequencies(low_hz: float, high_hz: float, design_hz: float, n: int = 
 
 
 @lru_cache(maxsize=256)
-def _closed_form(design: AntennaDesign) -> DesignPrediction:
+def closed_form_prediction(design: AntennaDesign) -> DesignPrediction:
     wire = design.wire
     out = []
     for e in design.elements:
@@ -98,12 +98,3 @@ def _closed_form(design: AntennaDesign) -> DesignPrediction:
                                      bandwidth_2to1(freqs, s, f), float(closed_form.swr(z0))))
     return DesignPrediction("closed_form", tuple(out),
                             "induced-EMF closed form: straight dipole in free space", "free space")
-
-
-def predict(design: AntennaDesign, ground: Ground, model: ModelName = "closed_form") -> DesignPrediction:
-    """Predicted resonant leg lengths of every element of ``design`` by ``model``."""
-    if model == "closed_form":
-        return _closed_form(design)
-    from buildsheet.em import mom_adapter
-
-    return mom_adapter.predict_mom(design, ground)

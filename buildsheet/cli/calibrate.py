@@ -1,7 +1,7 @@
 """The ``calibrate`` subcommand: fit the site from measured kits and store the calibration.
 
 ``register(subparsers)`` adds it to the main parser (``set_defaults(handler=...)``); the handler
-reads the spec and the record store, calls :mod:`buildsheet.calibrate` and prints the result.
+reads the spec and the record store, calls :mod:`buildsheet.calc.calibrate` and prints the result.
 User mistakes raise RecordError / BuildError (cli.main prints them as one line).
 """
 
@@ -15,7 +15,7 @@ from pathlib import Path
 from typing import Any, TextIO
 
 from buildsheet.errors import BuildError, RecordError
-from buildsheet.records import default_store
+from buildsheet.store.ledger import default_store
 
 def _mm(metres: float) -> str:
     return f"{metres * 1000:+.0f} mm"
@@ -24,8 +24,8 @@ def _mm(metres: float) -> str:
 def read_observations(store: Any, design: Any, ids: Sequence[str]) -> tuple[list[Any], dict[str, dict[str, float]]]:
     """Observations (latest dip of each ID) and the electrical legs of every element of the
     source kits, ``{kit: {element_key: leg}}``, from the store. RecordError for bad IDs."""
-    from buildsheet import records as rec
-    from buildsheet.calibrate import Observation, electrical_leg_m
+    from buildsheet.store import ledger as rec
+    from buildsheet.calc.calibrate import Observation, electrical_leg_m
 
     keys = [e.key for e in design.elements]
     rows = []
@@ -58,10 +58,10 @@ def read_observations(store: Any, design: Any, ids: Sequence[str]) -> tuple[list
 
 def handle_calibrate(args: argparse.Namespace, out: TextIO | None = None) -> int:
     """Fit the site ground from the latest dips of the given elements, store it, print it."""
-    from buildsheet import calibrate as cal
-    from buildsheet import records as rec
-    from buildsheet.em.mom_adapter import predict_mom
-    from buildsheet.spec import load_spec
+    from buildsheet.calc import calibrate as cal
+    from buildsheet.store import ledger as rec
+    from buildsheet.em.solve import predict_mom
+    from buildsheet.spec.reader import load_spec
 
     out = out or sys.stdout
     spec = load_spec(args.spec)
@@ -113,8 +113,8 @@ def handle_calibrate(args: argparse.Namespace, out: TextIO | None = None) -> int
 
 
 def _cut_leg(design: Any, leg_m: float, spread: float | None) -> float:
-    """Cut length of a leg as the build sheet sizes it (buildsheet.cuts.element_cut), m."""
-    from buildsheet.cuts import trim_fraction_for
+    """Cut length of a leg as the build sheet sizes it (buildsheet.calc.cuts.element_cut), m."""
+    from buildsheet.calc.cuts import trim_fraction_for
 
     a = design.allowances
     trim = (a.trim_m if (a.trim_explicit and a.trim_m is not None)
@@ -141,15 +141,3 @@ def register(subparsers: Any) -> None:
     p.add_argument("--store", metavar="PATH",
                    help="record store (default: <spec stem>.records.sqlite beside the spec)")
     p.set_defaults(handler=handle_calibrate)
-
-
-def run(argv: list[str] | None = None) -> int:
-    """Stand-alone entry (tests, ``python -m``): the same parser and error handling as
-    ``buildsheet`` itself."""
-    from buildsheet.cli import main
-
-    return main(argv)
-
-
-if __name__ == "__main__":
-    sys.exit(run())

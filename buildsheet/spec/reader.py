@@ -12,17 +12,17 @@ from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import Any
 
-from buildsheet import bands
+from buildsheet.spec import bands
 from buildsheet.em.ground import FREE_SPACE, GROUND_CLASSES, PERFECT_GROUND, real_ground
 from buildsheet.errors import Problem, SpecError
-from buildsheet.exposure import DUTY_FACTORS
-from buildsheet.feedline import COAX_TYPES
-from buildsheet.model import (
+from buildsheet.calc.exposure import DUTY_FACTORS
+from buildsheet.calc.feedline import COAX_TYPES
+from buildsheet.spec.design import (
     Allowances, AntennaDesign, Design, ElementSpec, Event, ExposureSettings, Kit, LabelSettings,
     Site, SpoolSpec,
 )
-from buildsheet.units import parse_frequency, parse_length
-from buildsheet.wire import BUILTIN_WIRES, MATERIALS, WireType, awg_diameter
+from buildsheet.spec.units import parse_frequency, parse_length
+from buildsheet.spec.wires import BUILTIN_WIRES, MATERIALS, WireType, awg_diameter
 
 _TOP_KEYS = ("event", "site", "wires", "designs", "kits", "labels", "exposure", "stock")
 _EVENT_KEYS = ("name", "club", "date", "region", "units", "paper", "record_url", "layout")
@@ -317,7 +317,7 @@ def read_spec_text(text: str, source: str = "spec.toml") -> Design:
     layout = r.choice(ev.get("layout", "per_kit"), "event.layout", ("per_kit", "per_design"))
     url = ev.get("record_url")
     if url is not None:
-        from buildsheet.labels import record_url
+        from buildsheet.calc.labels import record_url
 
         where = f"{source}: event.record_url"
         if not str(url).startswith(("http://", "https://")):
@@ -396,7 +396,7 @@ def read_spec_text(text: str, source: str = "spec.toml") -> Design:
 
 
 def _label_stock(r: _Reader, value: Any) -> object:
-    from buildsheet import labels
+    from buildsheet.calc import labels
 
     if isinstance(value, str):
         stock = r.choice(value, "labels.stock", tuple(labels.STOCKS))

@@ -24,7 +24,7 @@ from pathlib import Path
 from typing import Any
 
 from buildsheet.errors import BuildError
-from buildsheet.outdir import write_atomic
+from buildsheet.store.files import write_atomic
 
 MANIFEST_FORMAT = "buildsheet-manifest/1"
 #: Default re-check tolerance: fractional move of an element's predicted resonance (0.3 %).

@@ -1,6 +1,6 @@
 """Export and import of the element record store as JSON (a readable backup and restore).
 
-Split out of :mod:`buildsheet.records` (which re-exports these names). The export holds every
+Split out of :mod:`buildsheet.store.ledger` (which re-exports these names). The export holds every
 table; importing merges, skipping exact duplicates, in one transaction.
 """
 
@@ -12,9 +12,9 @@ from collections.abc import Mapping
 from dataclasses import asdict, dataclass, field, fields
 from typing import Any
 
-from buildsheet import records as _rec
+from buildsheet.store import ledger as _rec
 from buildsheet.errors import RecordError
-from buildsheet.records import (
+from buildsheet.store.ledger import (
     _ELEMENT_COLS,
     ElementRow,
     RecordStore,

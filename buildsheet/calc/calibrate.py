@@ -12,7 +12,7 @@ perfect ground and the P.527 extremes, widened by a margin), or a robust outlier
 more observations (modified z-score on the median absolute deviation, Iglewicz & Hoaglin 1993),
 is flagged as a probable mis-cut, wrong wire or wrong element and excluded, not averaged in.
 
-Pure: no files, no database, no clock (the CLI in :mod:`buildsheet.calibrate_cli` does I/O).
+Pure: no files, no database, no clock (the CLI in :mod:`buildsheet.cli.calibrate` does I/O).
 """
 
 from __future__ import annotations
@@ -36,10 +36,10 @@ from buildsheet.em.ground import (
     GroundClass,
 )
 from buildsheet.em.mom import Mesh, mesh_for, port_impedances
-from buildsheet.em.mom_adapter import deployed_antenna, predict_mom
-from buildsheet.em.predict import DesignPrediction
+from buildsheet.em.solve import deployed_antenna, predict_mom
+from buildsheet.em.prediction import DesignPrediction
 from buildsheet.errors import BuildError
-from buildsheet.model import AntennaDesign
+from buildsheet.spec.design import AntennaDesign
 
 #: Fitted range of the ground constants: the span of the ITU-R P.527 classes (REFERENCES 7.1).
 EPS_RANGE: tuple[float, float] = (3.0, 80.0)

@@ -1,4 +1,8 @@
-"""Bridge from an AntennaDesign to the method-of-moments core (buildsheet.em.resonance).
+"""One entry point for the resonant leg length of every element, whichever model computes it.
+
+``closed_form``: each element as a straight dipole in free space by the induced-EMF method
+(buildsheet.em.prediction). ``mom``: the thin-wire method of moments on the deployed geometry over
+the site's ground, all elements solved jointly (buildsheet.em.resonance).
 
 The design's elements become ElementGeometry (start lengths from the closed form); the joint
 resonance is solved over free space, perfect ground and the site's ground, and the site-ground
@@ -12,9 +16,9 @@ from functools import lru_cache
 from buildsheet.em import closed_form
 from buildsheet.em.deployed import DeployedAntenna, ElementGeometry
 from buildsheet.em.ground import Ground
-from buildsheet.em.predict import DesignPrediction, ElementPrediction
+from buildsheet.em.prediction import DesignPrediction, ElementPrediction, ModelName, closed_form_prediction
 from buildsheet.em.resonance import prediction_band
-from buildsheet.model import AntennaDesign
+from buildsheet.spec.design import AntennaDesign
 
 
 def deployed_antenna(design: AntennaDesign, ground: Ground,
@@ -49,3 +53,10 @@ def predict_mom(design: AntennaDesign, ground: Ground) -> DesignPrediction:
         band_legs_m=tuple((b.min_leg_m, b.max_leg_m) for b in band.elements),
         notes=tuple(dict.fromkeys(own.notes)),
     )
+
+
+def predict(design: AntennaDesign, ground: Ground, model: ModelName = "closed_form") -> DesignPrediction:
+    """Predicted resonant leg lengths of every element of ``design`` by ``model``."""
+    if model == "closed_form":
+        return closed_form_prediction(design)
+    return predict_mom(design, ground)

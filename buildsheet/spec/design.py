@@ -5,10 +5,10 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Literal
 
-from buildsheet.bands import Band
+from buildsheet.spec.bands import Band
 from buildsheet.em.ground import Ground
-from buildsheet.units import UnitSystem
-from buildsheet.wire import WireType
+from buildsheet.spec.units import UnitSystem
+from buildsheet.spec.wires import WireType
 
 Paper = Literal["a4", "letter"]
 Mount = Literal["inverted_v", "flat"]
@@ -107,7 +107,7 @@ class Kit:
 class LabelSettings:
     """Winder label stock and where to start on the first sheet."""
 
-    stock: object  # buildsheet.labels.LabelStock (kept generic to avoid an import cycle)
+    stock: object  # buildsheet.calc.labels.LabelStock (kept generic to avoid an import cycle)
     start_cell: int = 0
 
 

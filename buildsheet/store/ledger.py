@@ -8,7 +8,7 @@ transaction. Nothing is ever deleted (triggers refuse DELETE): elements dropped 
 archived. Lengths are metres, frequencies hertz, times ISO 8601 text passed in by the caller.
 
 Pure helpers (no I/O): :func:`trim_advice`, :func:`current_leg_m`, :func:`nearest_ids`.
-Export and import live in :mod:`buildsheet.records_io` (re-exported here).
+Export and import live in :mod:`buildsheet.store.exchange` (re-exported here).
 """
 
 from __future__ import annotations
@@ -685,9 +685,9 @@ _IO_NAMES = frozenset({"EXPORT_FORMAT", "ImportReport", "export_json", "import_j
 
 
 def __getattr__(name: str) -> Any:
-    """Export/import names, moved to :mod:`buildsheet.records_io`, still reachable from here."""
+    """Export/import names, moved to :mod:`buildsheet.store.exchange`, still reachable from here."""
     if name in _IO_NAMES:
-        from buildsheet import records_io
+        from buildsheet.store import exchange as records_io
 
         return getattr(records_io, name)
     raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

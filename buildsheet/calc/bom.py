@@ -12,7 +12,7 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
 from buildsheet.errors import SpecError, Problem
-from buildsheet.stock import DEFAULT_TOLERANCE_M
+from buildsheet.calc.stock import DEFAULT_TOLERANCE_M
 
 
 @dataclass(frozen=True)

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from buildsheet.packet import Packet
-from buildsheet.units import format_both, format_frequency
+from buildsheet.spec.units import format_both, format_frequency
 
 
 def _table(header: list[str], rows: list[list[str]]) -> str:

@@ -40,8 +40,8 @@ def _cmd_packet(args: argparse.Namespace) -> int:
 
 def _cmd_check(args: argparse.Namespace) -> int:
     from buildsheet.packet import build_packet
-    from buildsheet.report import cut_table
-    from buildsheet.spec import load_spec
+    from buildsheet.render.report import cut_table
+    from buildsheet.spec.reader import load_spec
 
     spec = load_spec(args.spec)
     packet = build_packet(spec, built_at=build_timestamp(), model=args.model)
@@ -53,7 +53,7 @@ def _cmd_check(args: argparse.Namespace) -> int:
 
 def _cmd_demo(args: argparse.Namespace) -> int:
     from buildsheet.build import build
-    from buildsheet.outdir import write_atomic
+    from buildsheet.store.files import write_atomic
 
     out = Path(args.output)
     out.mkdir(parents=True, exist_ok=True)
@@ -98,8 +98,8 @@ def make_parser() -> argparse.ArgumentParser:
     model_option(p)
     p.set_defaults(handler=_cmd_demo)
 
-    from buildsheet.calibrate_cli import register as register_calibrate
-    from buildsheet.record_cli import register
+    from buildsheet.cli.calibrate import register as register_calibrate
+    from buildsheet.cli.records import register
 
     register(sub)  # measure, trim, export, import
     register_calibrate(sub)  # calibrate

@@ -10,10 +10,10 @@ from functools import lru_cache
 
 import numpy as np
 
-from buildsheet import coverage, exposure, feedline
-from buildsheet.cuts import DesignCuts
+from buildsheet.calc import coverage, exposure, feedline
+from buildsheet.calc.cuts import DesignCuts
 from buildsheet.em.ground import Ground
-from buildsheet.model import ExposureSettings
+from buildsheet.spec.design import ExposureSettings
 
 #: Gain used for the exposure screen: a half-wave dipole, 2.15 dBi, together with the
 #: ground-reflection factor 2.56 (FCC OET Bulletin 65 screening practice).
@@ -62,7 +62,7 @@ def _sweep_source(apex_m: float, end_m: float, leg_m: float, bearing: float, f: 
 def design_performance(cuts: DesignCuts, ground: Ground, settings: ExposureSettings) -> DesignPerformance:
     """Coverage, height advice and exposure screen of one solved design over ``ground``."""
     from buildsheet.em import mom
-    from buildsheet.em.mom_adapter import deployed_antenna
+    from buildsheet.em.solve import deployed_antenna
 
     d = cuts.design
     legs = tuple(c.predicted_leg_m for c in cuts.elements)

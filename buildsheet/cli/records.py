@@ -2,7 +2,7 @@
 
 ``register(subparsers)`` adds them to the main parser; each handler takes the parsed namespace
 and returns an exit code, raising BuildsheetError subclasses for user mistakes (cli.main prints
-those as one line). ``python -m buildsheet.record_cli ...`` runs them on their own.
+those as one line). ``python -m buildsheet ...`` runs them too.
 """
 
 from __future__ import annotations
@@ -15,7 +15,7 @@ from pathlib import Path
 from typing import Any, TextIO
 
 from buildsheet.errors import RecordError
-from buildsheet.records import STORE_SUFFIX
+from buildsheet.store.ledger import STORE_SUFFIX
 
 def find_store(folder: Path) -> Path:
     """The single ``*.records.sqlite`` file in ``folder``; RecordError naming the candidates."""
@@ -39,7 +39,7 @@ def _now() -> datetime:
 
 
 def _frequency(text: str) -> float:
-    from buildsheet.units import parse_frequency
+    from buildsheet.spec.units import parse_frequency
 
     try:
         return parse_frequency(text)
@@ -48,7 +48,7 @@ def _frequency(text: str) -> float:
 
 
 def _length(option: str, text: str) -> float:
-    from buildsheet.units import parse_length
+    from buildsheet.spec.units import parse_length
 
     negative = text.strip().startswith("-")
     try:
@@ -63,7 +63,7 @@ def _length(option: str, text: str) -> float:
 
 def _both(metres: float, precise: bool = False) -> str:
     """Metric and feet-inches; ``precise``: metres to the millimetre (tape-measure lengths)."""
-    from buildsheet.units import format_both, format_length
+    from buildsheet.spec.units import format_both, format_length
 
     if precise:
         return f"{metres:.3f} m ({format_length(metres, 'imperial')})"
@@ -72,8 +72,8 @@ def _both(metres: float, precise: bool = False) -> str:
 
 def handle_measure(args: argparse.Namespace, out: TextIO | None = None) -> int:
     """Record an analyzer dip and print the trim advice."""
-    from buildsheet import records as rec
-    from buildsheet.units import format_frequency
+    from buildsheet.store import ledger as rec
+    from buildsheet.spec.units import format_frequency
 
     out = out or sys.stdout
     dip = _frequency(args.dip)
@@ -98,7 +98,7 @@ def handle_measure(args: argparse.Namespace, out: TextIO | None = None) -> int:
 
 def handle_trim(args: argparse.Namespace, out: TextIO | None = None) -> int:
     """Record wire removed from (or added back to) one or both legs."""
-    from buildsheet import records as rec
+    from buildsheet.store import ledger as rec
 
     out = out or sys.stdout
     if (args.removed is None) == (args.added is None):
@@ -122,8 +122,8 @@ def handle_trim(args: argparse.Namespace, out: TextIO | None = None) -> int:
 
 def handle_export(args: argparse.Namespace, out: TextIO | None = None) -> int:
     """Write the whole store as JSON to -o FILE (atomically) or to standard output."""
-    from buildsheet import records as rec
-    from buildsheet.manifest import write_json_atomic
+    from buildsheet.store import ledger as rec
+    from buildsheet.store.manifest import write_json_atomic
 
     out = out or sys.stdout
     path = _store_path(args)
@@ -145,7 +145,7 @@ def handle_export(args: argparse.Namespace, out: TextIO | None = None) -> int:
 
 def handle_import(args: argparse.Namespace, out: TextIO | None = None) -> int:
     """Restore a JSON export into the store (created when --store names a new file)."""
-    from buildsheet import records as rec
+    from buildsheet.store import ledger as rec
 
     out = out or sys.stdout
     source = Path(args.file)
@@ -205,15 +205,3 @@ def register(subparsers: Any) -> None:
     p.add_argument("file", help="a file written by `buildsheet export`")
     _add_store(p)
     p.set_defaults(handler=handle_import)
-
-
-def run(argv: list[str] | None = None) -> int:
-    """Stand-alone entry (tests, ``python -m``): the same parser and error handling as
-    ``buildsheet`` itself."""
-    from buildsheet.cli import main
-
-    return main(argv)
-
-
-if __name__ == "__main__":
-    sys.exit(run())

@@ -1,0 +1,1 @@
+"""calc stage of the buildsheet pipeline."""
