@@ -67,9 +67,9 @@ def packet_timing(kits: int) -> float:
     from pathlib import Path
 
     from buildsheet.build import build
+    from buildsheet.calc import performance
     from buildsheet.cli.main import demo_spec_text
     from buildsheet.em import prediction, solve
-    from buildsheet.calc import performance
 
     for cached in (solve.predict_mom, prediction.closed_form_prediction, performance.design_performance):
         cached.cache_clear()

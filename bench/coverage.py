@@ -9,8 +9,13 @@ from __future__ import annotations
 import sys
 import time
 
+from buildsheet.calc.coverage import (
+    compromise_height,
+    height_advice,
+    nvis_figures,
+    sinusoidal_currents,
+)
 from buildsheet.constants import C0
-from buildsheet.calc.coverage import compromise_height, height_advice, nvis_figures, sinusoidal_currents
 from buildsheet.em.ground import real_ground
 
 FREQS = (3.6e6, 5.36e6, 7.1e6)

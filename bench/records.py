@@ -10,8 +10,8 @@ import time
 from datetime import UTC, datetime, timedelta
 from pathlib import Path
 
-from buildsheet.store import ledger as rec
 from buildsheet.render.site import write_site
+from buildsheet.store import ledger as rec
 
 BANDS = (("80m", 3.6e6, 3.5e6, 4.0e6), ("60m", 5.3585e6, 5.3305e6, 5.4065e6),
          ("40m", 7.1e6, 7.0e6, 7.3e6), ("30m", 10.125e6, 10.1e6, 10.15e6))

@@ -16,8 +16,11 @@ from datetime import datetime
 from pathlib import Path
 
 from buildsheet.em.prediction import ModelName
+from buildsheet.packet import Packet, build_packet, entry_fingerprint
+from buildsheet.spec.reader import load_spec
+from buildsheet.store.files import discard, prepare_staging, recover, swap_in, write_atomic
+from buildsheet.store.ledger import ElementHistory, ElementRow, SyncReport, default_store
 from buildsheet.store.manifest import (
-    json_bytes,
     RECHECK_TOLERANCE,
     Manifest,
     ManifestDiff,
@@ -25,14 +28,11 @@ from buildsheet.store.manifest import (
     content_hash,
     diff_manifests,
     format_diff,
+    json_bytes,
     manifest_to_dict,
     read_manifest,
     recheck_lines,
 )
-from buildsheet.store.files import discard, prepare_staging, recover, swap_in, write_atomic
-from buildsheet.packet import Packet, build_packet, entry_fingerprint
-from buildsheet.store.ledger import ElementHistory, ElementRow, SyncReport, default_store
-from buildsheet.spec.reader import load_spec
 
 SHEETS_PDF = "sheets.pdf"
 LABELS_PDF = "labels.pdf"
@@ -93,7 +93,7 @@ def current_legs(packet: Packet, histories: Iterable[ElementHistory]) -> dict[st
     return out
 
 
-def stored_calibrations(store, spec) -> dict:  # noqa: ANN001 - RecordStore, Design
+def stored_calibrations(store, spec) -> dict:
     """The newest stored site calibration per design: one made for the design's current
     geometry and wire if there is one, else the newest of any (build_packet then warns that it
     no longer applies)."""

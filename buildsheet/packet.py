@@ -11,18 +11,23 @@ import json
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 
+from buildsheet.calc.bom import BomLine
 from buildsheet.calc.calibrate import (
-    BatchTrim, Calibration, CutElement, batch_trims, calibrated_prediction, design_fingerprint,
+    BatchTrim,
+    Calibration,
+    CutElement,
+    batch_trims,
+    calibrated_prediction,
+    design_fingerprint,
 )
 from buildsheet.calc.cuts import DesignCuts, ElementCut, design_cuts
+from buildsheet.calc.logistics import logistics
+from buildsheet.calc.performance import DesignPerformance, design_performance
+from buildsheet.calc.stock import SpoolPlan
 from buildsheet.em.prediction import ModelName
 from buildsheet.em.solve import predict
 from buildsheet.errors import BuildError, Problem
-from buildsheet.calc.logistics import logistics
 from buildsheet.spec.design import AntennaDesign, Design, Kit
-from buildsheet.calc.performance import DesignPerformance, design_performance
-from buildsheet.calc.bom import BomLine
-from buildsheet.calc.stock import SpoolPlan
 from buildsheet.spec.units import format_both, format_frequency
 
 SAFETY_CAUTIONS: tuple[str, ...] = (

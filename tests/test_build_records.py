@@ -19,12 +19,12 @@ import zxingcpp
 from PIL import Image
 from pypdf import PdfReader
 
-from buildsheet.store import ledger as rec
 from buildsheet.build import build, default_store
 from buildsheet.cli.main import demo_spec_text, main
-from buildsheet.store.manifest import read_manifest
 from buildsheet.render.site import page_name
 from buildsheet.spec.units import format_frequency, format_length
+from buildsheet.store import ledger as rec
+from buildsheet.store.manifest import read_manifest
 
 T1, T2, T3 = "2027-03-01T09:00:00Z", "2027-03-02T09:00:00Z", "2027-03-03T09:00:00Z"
 

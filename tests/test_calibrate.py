@@ -18,7 +18,6 @@ import pytest
 from scipy.optimize import brentq
 
 from buildsheet.calc import calibrate as cal
-from buildsheet.store import ledger as rec
 from buildsheet.cli.main import main as run
 from buildsheet.em.ground import real_ground
 from buildsheet.em.mom import feed_impedance
@@ -27,6 +26,7 @@ from buildsheet.errors import BuildError
 from buildsheet.spec.design import AntennaDesign
 from buildsheet.spec.reader import load_spec
 from buildsheet.spec.wires import BUILTIN_WIRES
+from buildsheet.store import ledger as rec
 
 T0 = datetime(2027, 3, 13, 10, 0, tzinfo=UTC)
 # A 75/60/40 m inverted-V fan at 7.5 m with 2 m ends: the widely used NVIS compromise

@@ -5,9 +5,8 @@ from __future__ import annotations
 
 from pypdf import PdfReader
 
-from buildsheet.cli.main import main
 from buildsheet.calc.cuts import expected_dip_hz
-
+from buildsheet.cli.main import main
 from tests.test_build_records import small_spec
 
 

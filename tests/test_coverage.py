@@ -9,7 +9,6 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import integrate, optimize
 
-from buildsheet.constants import C0, ETA0
 from buildsheet.calc.coverage import (
     band_guidance,
     compromise_height,
@@ -23,6 +22,7 @@ from buildsheet.calc.coverage import (
     sinusoidal_currents,
     zenith_gain_dbi,
 )
+from buildsheet.constants import C0, ETA0
 from buildsheet.em.ground import (
     FREE_SPACE,
     GROUND_CLASSES,

@@ -7,7 +7,6 @@ import math
 import pytest
 from numpy.testing import assert_allclose
 
-from buildsheet.errors import BuildError
 from buildsheet.calc.exposure import (
     DUTY_FACTORS,
     average_power_w,
@@ -18,6 +17,7 @@ from buildsheet.calc.exposure import (
     screen,
 )
 from buildsheet.calc.feedline import coax, matched_loss_db
+from buildsheet.errors import BuildError
 
 
 def test_fcc_table_3_30_mhz():

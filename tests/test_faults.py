@@ -20,10 +20,10 @@ import pytest
 from pypdf import PdfReader
 from test_build_records import small_spec  # same small spec (tests/ is on sys.path)
 
-from buildsheet.store import ledger as rec
 from buildsheet.build import default_store
-from buildsheet.store.manifest import read_manifest
+from buildsheet.store import ledger as rec
 from buildsheet.store.files import recover
+from buildsheet.store.manifest import read_manifest
 
 RUNS = 20
 SEED = 20270313

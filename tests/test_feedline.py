@@ -5,7 +5,6 @@ from __future__ import annotations
 import pytest
 from numpy.testing import assert_allclose
 
-from buildsheet.errors import BuildError
 from buildsheet.calc.feedline import (
     COAX_TYPES,
     attenuation_db_per_m,
@@ -13,6 +12,7 @@ from buildsheet.calc.feedline import (
     matched_loss_db,
     power_after_loss,
 )
+from buildsheet.errors import BuildError
 
 # Typical published matched attenuation, dB per 100 ft at 10 MHz (from memory):
 # RG-58 1.4, RG-8X 1.0, RG-213 0.6, 10 mm low-loss foam 0.4.

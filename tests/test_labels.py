@@ -19,7 +19,6 @@ import zxingcpp
 from pypdf import PdfReader
 from pypdf.generic import ContentStream
 
-from buildsheet.errors import BuildError, SpecError
 from buildsheet.calc.labels import (
     MM_PER_PT,
     STOCKS,
@@ -33,6 +32,7 @@ from buildsheet.calc.labels import (
     resolve_stock,
     stock_from_mapping,
 )
+from buildsheet.errors import BuildError, SpecError
 from buildsheet.render.labels import render_labels, symbol_rects
 
 URL_TEMPLATE = "https://club.example.org/records/{kit}/{element}/{leg}.html"

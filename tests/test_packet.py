@@ -7,8 +7,8 @@ import math
 import pytest
 from pypdf import PdfReader
 
-from buildsheet.constants import C0
 from buildsheet.calc.logistics import CORD
+from buildsheet.constants import C0
 
 
 def test_demo_spool_plan_within_one_of_bound(demo_packet):

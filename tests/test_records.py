@@ -12,10 +12,10 @@ from pathlib import Path
 
 import pytest
 
-from buildsheet.store import ledger as rec
-from buildsheet.errors import RecordError
 from buildsheet.cli.main import main as run
 from buildsheet.cli.records import find_store
+from buildsheet.errors import RecordError
+from buildsheet.store import ledger as rec
 
 T0 = datetime(2024, 5, 4, 9, 30, tzinfo=UTC)
 

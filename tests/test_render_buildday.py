@@ -13,6 +13,8 @@ from pypdf import PdfReader
 from reportlab.lib.pagesizes import A4, LETTER
 from reportlab.platypus import PageBreak, SimpleDocTemplate
 
+from buildsheet.calc.bom import KitNeeds, WireNeed, day_bom, kit_bom
+from buildsheet.calc.stock import Cut, StockItem, plan_spools
 from buildsheet.render.buildday import (
     LogRow,
     bom_flowables,
@@ -24,8 +26,6 @@ from buildsheet.render.buildday import (
     station_list_flowables,
     station_lists_flowables,
 )
-from buildsheet.calc.bom import KitNeeds, WireNeed, day_bom, kit_bom
-from buildsheet.calc.stock import Cut, StockItem, plan_spools
 
 
 def render(flowables, pagesize=A4) -> bytes:

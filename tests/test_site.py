@@ -11,8 +11,8 @@ from pathlib import Path
 import jinja2
 import pytest
 
-from buildsheet.store import ledger as rec
 from buildsheet.render.site import environment, page_name, render_site, write_site
+from buildsheet.store import ledger as rec
 
 T0 = datetime(2024, 5, 4, 9, 30, tzinfo=UTC)
 BUILT = "2024-05-04T10:00:00+00:00"

@@ -14,8 +14,15 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from buildsheet.errors import BuildError, SpecError
-from buildsheet.calc.bom import BomLine, KitNeeds, WireNeed, bom_from_csv, bom_to_csv, day_bom, kit_bom
+from buildsheet.calc.bom import (
+    BomLine,
+    KitNeeds,
+    WireNeed,
+    bom_from_csv,
+    bom_to_csv,
+    day_bom,
+    kit_bom,
+)
 from buildsheet.calc.stock import (
     EXACT_MAX_CUTS,
     Cut,
@@ -25,6 +32,7 @@ from buildsheet.calc.stock import (
     natural_key,
     plan_spools,
 )
+from buildsheet.errors import BuildError, SpecError
 
 EPS = 1e-9
 

@@ -1,11 +1,17 @@
 """Units: exact conversions (NIST SP 811: 1 ft = 0.3048 m, 1 in = 25.4 mm) and round trips."""
 
 import pytest
-from hypothesis import given, strategies as st
+from hypothesis import given
+from hypothesis import strategies as st
 
 from buildsheet.spec.units import (
-    feet_inches_eighths, format_both, format_frequency, format_imperial, format_metric,
-    parse_frequency, parse_length,
+    feet_inches_eighths,
+    format_both,
+    format_frequency,
+    format_imperial,
+    format_metric,
+    parse_frequency,
+    parse_length,
 )
 
 

@@ -11,8 +11,8 @@ import math
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
-from buildsheet.errors import SpecError, Problem
 from buildsheet.calc.stock import DEFAULT_TOLERANCE_M
+from buildsheet.errors import Problem, SpecError
 
 
 @dataclass(frozen=True)

@@ -36,8 +36,8 @@ from buildsheet.em.ground import (
     GroundClass,
 )
 from buildsheet.em.mom import Mesh, mesh_for, port_impedances
-from buildsheet.em.solve import deployed_antenna, predict_mom
 from buildsheet.em.prediction import DesignPrediction
+from buildsheet.em.solve import deployed_antenna, predict_mom
 from buildsheet.errors import BuildError
 from buildsheet.spec.design import AntennaDesign
 

@@ -5,9 +5,15 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from buildsheet.calc.geometry import (
+    Footprint,
+    LegGeometry,
+    footprint,
+    included_angle_deg,
+    leg_geometry,
+)
 from buildsheet.em import closed_form
 from buildsheet.em.prediction import DesignPrediction, ElementPrediction
-from buildsheet.calc.geometry import LegGeometry, footprint, Footprint, included_angle_deg, leg_geometry
 from buildsheet.spec.design import AntennaDesign, ElementSpec
 
 #: Frequency step of the printed tuning line, Hz.

@@ -5,11 +5,11 @@ from __future__ import annotations
 
 from collections.abc import Iterable
 
+from buildsheet.calc.bom import BomLine, KitNeeds, WireNeed, day_bom, kit_bom
 from buildsheet.calc.cuts import DesignCuts
 from buildsheet.calc.feedline import coax
-from buildsheet.spec.design import Design, Kit
-from buildsheet.calc.bom import BomLine, KitNeeds, WireNeed, day_bom, kit_bom
 from buildsheet.calc.stock import Cut, SpoolPlan, StockItem, plan_spools
+from buildsheet.spec.design import Design, Kit
 
 #: Material key for tie-off cord in the spec's [[stock]] tables.
 CORD = "cord"

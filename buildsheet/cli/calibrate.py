@@ -17,6 +17,7 @@ from typing import Any, TextIO
 from buildsheet.errors import BuildError, RecordError
 from buildsheet.store.ledger import default_store
 
+
 def _mm(metres: float) -> str:
     return f"{metres * 1000:+.0f} mm"
 
@@ -24,8 +25,8 @@ def _mm(metres: float) -> str:
 def read_observations(store: Any, design: Any, ids: Sequence[str]) -> tuple[list[Any], dict[str, dict[str, float]]]:
     """Observations (latest dip of each ID) and the electrical legs of every element of the
     source kits, ``{kit: {element_key: leg}}``, from the store. RecordError for bad IDs."""
-    from buildsheet.store import ledger as rec
     from buildsheet.calc.calibrate import Observation, electrical_leg_m
+    from buildsheet.store import ledger as rec
 
     keys = [e.key for e in design.elements]
     rows = []
@@ -59,9 +60,9 @@ def read_observations(store: Any, design: Any, ids: Sequence[str]) -> tuple[list
 def handle_calibrate(args: argparse.Namespace, out: TextIO | None = None) -> int:
     """Fit the site ground from the latest dips of the given elements, store it, print it."""
     from buildsheet.calc import calibrate as cal
-    from buildsheet.store import ledger as rec
     from buildsheet.em.solve import predict_mom
     from buildsheet.spec.reader import load_spec
+    from buildsheet.store import ledger as rec
 
     out = out or sys.stdout
     spec = load_spec(args.spec)

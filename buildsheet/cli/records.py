@@ -17,6 +17,7 @@ from typing import Any, TextIO
 from buildsheet.errors import RecordError
 from buildsheet.store.ledger import STORE_SUFFIX
 
+
 def find_store(folder: Path) -> Path:
     """The single ``*.records.sqlite`` file in ``folder``; RecordError naming the candidates."""
     found = sorted(folder.glob("*" + STORE_SUFFIX))
@@ -72,8 +73,8 @@ def _both(metres: float, precise: bool = False) -> str:
 
 def handle_measure(args: argparse.Namespace, out: TextIO | None = None) -> int:
     """Record an analyzer dip and print the trim advice."""
-    from buildsheet.store import ledger as rec
     from buildsheet.spec.units import format_frequency
+    from buildsheet.store import ledger as rec
 
     out = out or sys.stdout
     dip = _frequency(args.dip)

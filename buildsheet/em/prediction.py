@@ -15,7 +15,6 @@ from typing import Literal
 import numpy as np
 
 from buildsheet.em import closed_form
-from buildsheet.em.ground import Ground
 from buildsheet.spec.design import AntennaDesign
 
 ModelName = Literal["closed_form", "mom"]

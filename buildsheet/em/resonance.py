@@ -27,7 +27,7 @@ import numpy as np
 from numpy.polynomial.chebyshev import chebder, chebfit, chebval
 from scipy.optimize import brentq
 
-from buildsheet.em.closed_form import swr  # noqa: F401  (one SWR formula; re-exported)
+from buildsheet.em.closed_form import swr
 from buildsheet.em.deployed import (
     DeployedAntenna,
     build_structure,

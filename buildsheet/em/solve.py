@@ -16,7 +16,12 @@ from functools import lru_cache
 from buildsheet.em import closed_form
 from buildsheet.em.deployed import DeployedAntenna, ElementGeometry
 from buildsheet.em.ground import Ground
-from buildsheet.em.prediction import DesignPrediction, ElementPrediction, ModelName, closed_form_prediction
+from buildsheet.em.prediction import (
+    DesignPrediction,
+    ElementPrediction,
+    ModelName,
+    closed_form_prediction,
+)
 from buildsheet.em.resonance import prediction_band
 from buildsheet.spec.design import AntennaDesign
 

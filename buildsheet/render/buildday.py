@@ -28,9 +28,9 @@ from reportlab.platypus import (
     TableStyle,
 )
 
-from buildsheet.spec.units import feet_inches_eighths, format_metric
 from buildsheet.calc.bom import BomLine
 from buildsheet.calc.stock import SpoolPlan, SpoolUse
+from buildsheet.spec.units import feet_inches_eighths, format_metric
 
 LengthFormat = Callable[[float], str]
 

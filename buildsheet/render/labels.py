@@ -17,8 +17,6 @@ from reportlab.lib.units import mm
 from reportlab.pdfbase.pdfmetrics import getFont, stringWidth
 from reportlab.pdfgen.canvas import Canvas
 
-from buildsheet.errors import BuildError, Problem, SpecError
-from buildsheet.store.files import write_output
 from buildsheet.calc.labels import (
     LEADING,
     MIN_BAND_PT,
@@ -33,6 +31,8 @@ from buildsheet.calc.labels import (
     make_symbol,
     pages_needed,
 )
+from buildsheet.errors import BuildError, Problem, SpecError
+from buildsheet.store.files import write_output
 
 REGULAR = "Helvetica"
 BOLD = "Helvetica-Bold"

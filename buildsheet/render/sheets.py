@@ -16,17 +16,26 @@ from reportlab.lib.pagesizes import A4, LETTER
 from reportlab.lib.styles import ParagraphStyle, getSampleStyleSheet
 from reportlab.lib.units import mm
 from reportlab.platypus import (
-    BaseDocTemplate, CondPageBreak, Flowable, Frame, KeepTogether, PageBreak, PageTemplate,
-    Paragraph, Spacer, Table, TableStyle,
+    BaseDocTemplate,
+    CondPageBreak,
+    Flowable,
+    Frame,
+    KeepTogether,
+    PageBreak,
+    PageTemplate,
+    Paragraph,
+    Spacer,
+    Table,
+    TableStyle,
 )
 
 from buildsheet.calc.cuts import DesignCuts, expected_dip_hz
-from buildsheet.spec.design import Kit
-from buildsheet.packet import SAFETY_CAUTIONS, Packet
-from buildsheet.store.files import write_output
 from buildsheet.calc.performance import DesignPerformance
+from buildsheet.packet import SAFETY_CAUTIONS, Packet
 from buildsheet.render import buildday, charts, drawings
+from buildsheet.spec.design import Kit
 from buildsheet.spec.units import format_both, format_frequency, format_length
+from buildsheet.store.files import write_output
 
 _BASE = getSampleStyleSheet()
 STYLES = {
@@ -67,18 +76,18 @@ class SheetDoc(BaseDocTemplate):
         self._footer_text = footer
         self._mark = 0
 
-    def beforeDocument(self) -> None:  # noqa: N802 - reportlab API; runs once per pass
+    def beforeDocument(self) -> None:
         self._mark = 0
         self.headings: list[tuple[int, str, int]] = []
 
-    def _footer(self, canvas, doc) -> None:  # noqa: ANN001 - reportlab callback signature
+    def _footer(self, canvas, doc) -> None:
         canvas.saveState()
         canvas.setFont("Helvetica", 7.5)
         canvas.drawString(self.leftMargin, 8 * mm, self._footer_text)
         canvas.drawRightString(self.pagesize[0] - self.rightMargin, 8 * mm, f"page {doc.page}")
         canvas.restoreState()
 
-    def afterFlowable(self, flowable: Flowable) -> None:  # noqa: N802 - reportlab API
+    def afterFlowable(self, flowable: Flowable) -> None:
         if isinstance(flowable, Paragraph) and flowable.style.name in _OUTLINE_LEVELS:
             level = _OUTLINE_LEVELS[flowable.style.name]
             text = flowable.getPlainText()

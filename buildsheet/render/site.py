@@ -17,9 +17,9 @@ from pathlib import Path
 import jinja2
 
 from buildsheet.errors import BuildError
+from buildsheet.spec.units import format_frequency, format_length
 from buildsheet.store.files import write_atomic
 from buildsheet.store.ledger import ElementHistory
-from buildsheet.spec.units import format_frequency, format_length
 
 INDEX_NAME = "index.html"
 #: The caution line on every element page; it defers to local rules.

@@ -5,8 +5,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Literal
 
-from buildsheet.spec.bands import Band
 from buildsheet.em.ground import Ground
+from buildsheet.spec.bands import Band
 from buildsheet.spec.units import UnitSystem
 from buildsheet.spec.wires import WireType
 

@@ -12,14 +12,22 @@ from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import Any
 
-from buildsheet.spec import bands
-from buildsheet.em.ground import FREE_SPACE, GROUND_CLASSES, PERFECT_GROUND, real_ground
-from buildsheet.errors import Problem, SpecError
 from buildsheet.calc.exposure import DUTY_FACTORS
 from buildsheet.calc.feedline import COAX_TYPES
+from buildsheet.em.ground import FREE_SPACE, GROUND_CLASSES, PERFECT_GROUND, real_ground
+from buildsheet.errors import Problem, SpecError
+from buildsheet.spec import bands
 from buildsheet.spec.design import (
-    Allowances, AntennaDesign, Design, ElementSpec, Event, ExposureSettings, Kit, LabelSettings,
-    Site, SpoolSpec,
+    Allowances,
+    AntennaDesign,
+    Design,
+    ElementSpec,
+    Event,
+    ExposureSettings,
+    Kit,
+    LabelSettings,
+    Site,
+    SpoolSpec,
 )
 from buildsheet.spec.units import parse_frequency, parse_length
 from buildsheet.spec.wires import BUILTIN_WIRES, MATERIALS, WireType, awg_diameter

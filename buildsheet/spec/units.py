@@ -41,7 +41,7 @@ def _number(text: str) -> float:
     return total
 
 
-def parse_length(text: str | int | float) -> float:
+def parse_length(text: str | float) -> float:
     """Parse a length with units to metres. Raises ValueError naming what is allowed.
 
     Several terms add up ("6 ft 3 in" = 1.9050 m). A bare number is refused: units are required.
@@ -73,7 +73,7 @@ def parse_length(text: str | int | float) -> float:
     return -total if negative else total
 
 
-def parse_frequency(text: str | int | float) -> float:
+def parse_frequency(text: str | float) -> float:
     """Parse a frequency with units ("7.15 MHz", "7150 kHz") to hertz. Raises ValueError."""
     if not isinstance(text, str):
         raise ValueError(f"a frequency needs a unit: write e.g. \"{text} MHz\" ({FREQUENCY_HELP})")

@@ -12,8 +12,8 @@ from collections.abc import Mapping
 from dataclasses import asdict, dataclass, field, fields
 from typing import Any
 
-from buildsheet.store import ledger as _rec
 from buildsheet.errors import RecordError
+from buildsheet.store import ledger as _rec
 from buildsheet.store.ledger import (
     _ELEMENT_COLS,
     ElementRow,

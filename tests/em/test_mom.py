@@ -7,9 +7,10 @@ from scipy.optimize import brentq
 from buildsheet.em import mom
 from buildsheet.em.deployed import DeployedAntenna, ElementGeometry, Port, Structure, WireSpec
 from buildsheet.em.ground import FREE_SPACE, PERFECT_GROUND, real_ground
-from .mutual_reference import side_by_side_half_wave
 from buildsheet.errors import BuildError
 from buildsheet.spec.wires import BUILTIN_WIRES
+
+from .mutual_reference import side_by_side_half_wave
 
 F = 299_792_458.0  # 1 m wavelength
 

@@ -15,9 +15,9 @@ from buildsheet.em import mom
 from buildsheet.em.closed_form import self_impedance
 from buildsheet.em.deployed import Port, Structure
 from buildsheet.em.ground import FREE_SPACE
-from .mutual_reference import side_by_side_half_wave
-
 from tests.em.test_mom import F, dipole, z_in
+
+from .mutual_reference import side_by_side_half_wave
 
 THIN = 1e-9  # a / lambda
 
