@@ -18,7 +18,14 @@ from pathlib import Path
 from buildsheet.em.prediction import ModelName
 from buildsheet.packet import Packet, build_packet, entry_fingerprint
 from buildsheet.spec.reader import load_spec
-from buildsheet.store.files import discard, prepare_staging, recover, swap_in, write_atomic
+from buildsheet.store.files import (
+    check_output_folder,
+    discard,
+    prepare_staging,
+    recover,
+    swap_in,
+    write_atomic,
+)
 from buildsheet.store.ledger import ElementHistory, ElementRow, SyncReport, default_store
 from buildsheet.store.manifest import (
     RECHECK_TOLERANCE,
@@ -352,8 +359,8 @@ def build(spec_path: str | Path, out_dir: str | Path, *, built_at: str,
     from buildsheet.store.ledger import load_histories, open_store, sync_elements
 
     spec = load_spec(spec_path)
-    out = Path(out_dir)
     store_file = Path(store_path) if store_path is not None else default_store(spec_path)
+    out = check_output_folder(out_dir, (("spec", spec_path), ("record store", store_file)))
     now = _moment(built_at)
     try:
         recover(out)
