@@ -11,6 +11,7 @@ import json
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 
+from buildsheet.calc.advice import DesignAdvice, design_advice
 from buildsheet.calc.bom import BomLine
 from buildsheet.calc.calibrate import (
     BatchTrim,
@@ -23,6 +24,7 @@ from buildsheet.calc.calibrate import (
 from buildsheet.calc.cuts import DesignCuts, ElementCut, design_cuts
 from buildsheet.calc.logistics import logistics
 from buildsheet.calc.performance import DesignPerformance, design_performance
+from buildsheet.calc.safety import SITE_CAUTIONS
 from buildsheet.calc.stock import SpoolPlan
 from buildsheet.em.prediction import ModelName
 from buildsheet.em.solve import predict
@@ -30,20 +32,8 @@ from buildsheet.errors import BuildError, Problem
 from buildsheet.spec.design import AntennaDesign, Design, Kit
 from buildsheet.spec.units import format_both, format_frequency
 
-SAFETY_CAUTIONS: tuple[str, ...] = (
-    "Overhead power lines: look up before raising anything. If the mast or antenna fell, no part "
-    "may come within 3 m (10 ft) of a power line; utilities advise 1.5-2 times the mast-plus-"
-    "antenna height. Never raise a mast near lines.",
-    "Mast handling: raise and lower push-up masts with helpers, tape or pin the joints, guy before "
-    "extending, and keep clear of the fall zone. Do not work in high wind.",
-    "Guy lines, tie-off cords and coax are trip hazards: flag them and route them away from paths.",
-    "RF exposure: element ends carry high RF voltage; on a low antenna keep people away from the "
-    "ends and legs while transmitting. See the exposure screen; local rules govern.",
-    "Lightning and static: do not operate in thunderstorms; disconnect and ground the feed line "
-    "when not in use; a bleed resistor (about 1 megohm) across the feed drains static charge.",
-    "These notes are general guidance. Local codes, site rules and licensed practice take "
-    "precedence.",
-)
+#: The kit-sheet cautions (their one home is buildsheet.calc.safety).
+SAFETY_CAUTIONS: tuple[str, ...] = SITE_CAUTIONS
 
 
 @dataclass(frozen=True)
@@ -76,6 +66,7 @@ class Packet:
     performance: tuple[DesignPerformance, ...]  # per design, same order as cuts
     calibrations: dict[str, Calibration] = field(default_factory=dict)  # by design key
     batch_trims: tuple[BatchTrim, ...] = ()  # for elements already cut, when calibrated
+    advice: dict[str, DesignAdvice] = field(default_factory=dict)  # worded notes by design key
 
     def performance_for(self, design_key: str) -> DesignPerformance:
         return next(p for c, p in zip(self.cuts, self.performance) if c.design.key == design_key)
@@ -142,6 +133,8 @@ def build_packet(spec: Design, *, built_at: str, revision: int = 1, model: Model
         warnings.append(f"not enough {buy.material} on hand: {buy.short_m:.1f} m short ({what}); "
                         "see the spool cut plan")
     performance = tuple(design_performance(c, spec.site.ground, spec.exposure) for c in cuts)
+    advice = {c.design.key: design_advice(c, p, spec.event.units) for c, p in zip(cuts, performance)}
+    warnings += [w for a in advice.values() for w in a.warnings]
     design_of = {e.element_id: e.kit.design_key for e in entries}
     trims: list[BatchTrim] = []
     for c in cuts:
@@ -152,7 +145,7 @@ def build_packet(spec: Design, *, built_at: str, revision: int = 1, model: Model
         warnings.append(f"the stored calibration of design {key} no longer applies (its geometry "
                         "or wire changed); cut lengths are uncalibrated")
     return Packet(spec, built_at, revision, model, cuts, entries, tuple(warnings), kit_boms,
-                  day_bom, plan, performance, cals, tuple(trims))
+                  day_bom, plan, performance, cals, tuple(trims), advice)
 
 
 def entry_fingerprint(packet: Packet, entry: ElementEntry) -> str:

@@ -20,8 +20,6 @@ from buildsheet.spec.design import AntennaDesign, ElementSpec
 TUNING_STEP_HZ = 100e3
 #: Included angle below which the sheet warns (common practice: 90-120 degrees).
 MIN_INCLUDED_ANGLE_DEG = 90.0
-#: Lowest end height the sheet accepts without a caution, m (common practice: 1-2 m).
-MIN_SAFE_END_HEIGHT_M = 2.0
 
 
 @dataclass(frozen=True)
@@ -134,9 +132,6 @@ def design_cuts(design: AntennaDesign, prediction: DesignPrediction,
             warnings.append(f"{design.key} {e.key}: included angle {cut.included_angle_deg:.0f} deg "
                             "is below 90 deg: bandwidth narrows and feed resistance falls; "
                             "raise the apex or lower the ends less")
-        if e.end_height_m < MIN_SAFE_END_HEIGHT_M:
-            warnings.append(f"{design.key} {e.key}: ends at {e.end_height_m:.1f} m are within "
-                            "reach; rope them off while transmitting (high RF voltage)")
         if a_trim_short(design, cut):
             warnings.append(f"{design.key} {e.key}: the trim allowance {cut.trim_fraction:.1%} "
                             f"is less than the model spread {cut.spread_fraction:.1%}")

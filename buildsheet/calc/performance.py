@@ -80,7 +80,9 @@ def design_performance(cuts: DesignCuts, ground: Ground, settings: ExposureSetti
             coverage.elevation_cuts(sc, ground, e.bearing_deg, step_deg=2.0),
             coverage.height_advice(source, ground, e.frequency_hz, steps=21),
             exposure.screen(e.frequency_hz, settings.power_w, settings.mode,
-                            settings.transmit_fraction, SCREEN_GAIN_DBI, loss, settings.regime),
+                            settings.transmit_fraction, SCREEN_GAIN_DBI, loss, settings.regime,
+                            fraction_6min=settings.transmit_fraction_6min,
+                            fraction_30min=settings.transmit_fraction_30min),
             loss))
     freqs = [c.element.frequency_hz for c in cuts.elements]
     compromise = None

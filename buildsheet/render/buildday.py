@@ -29,6 +29,7 @@ from reportlab.platypus import (
 )
 
 from buildsheet.calc.bom import BomLine
+from buildsheet.calc.safety import STATION_CAUTIONS
 from buildsheet.calc.stock import SpoolPlan, SpoolUse
 from buildsheet.spec.units import feet_inches_eighths, format_metric
 
@@ -37,15 +38,8 @@ LengthFormat = Callable[[float], str]
 #: Usable width assumed for tables, points (fits A4 and US Letter with 25 mm margins).
 DEFAULT_WIDTH: float = 158 * mm
 
-SAFETY_LINES: tuple[str, ...] = (
-    ("Look up before raising anything: no part of a mast or antenna may come within about 3 m "
-     "(10 ft) of a power line if it falls; keep well clear of overhead lines."),
-    ("Raise masts with helpers; guy and stake as the mast maker directs; flag guy lines, tie-off "
-     "cords and feed lines (trip hazards); keep wire ends above reach or rope them off."),
-    "Stakes lean 45-60 degrees away from the load; double-stake in soft ground.",
-    ("These are common-practice reminders only: local codes, site rules, the mast maker's "
-     "instructions and licensed practice take precedence."),
-)
+#: The short caution list (its one home is buildsheet.calc.safety).
+SAFETY_LINES: tuple[str, ...] = STATION_CAUTIONS
 
 _BODY = ParagraphStyle("bd-body", fontName="Helvetica", fontSize=9, leading=11,
                        textColor=colors.black, alignment=TA_LEFT)

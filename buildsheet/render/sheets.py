@@ -31,7 +31,8 @@ from reportlab.platypus import (
 
 from buildsheet.calc.cuts import DesignCuts, expected_dip_hz
 from buildsheet.calc.performance import DesignPerformance
-from buildsheet.packet import SAFETY_CAUTIONS, Packet
+from buildsheet.calc.safety import SITE_CAUTIONS
+from buildsheet.packet import Packet
 from buildsheet.render import buildday, charts, drawings
 from buildsheet.spec.design import Kit
 from buildsheet.spec.units import format_both, format_frequency, format_length
@@ -180,7 +181,7 @@ def geometry_table(cuts: DesignCuts, units: str) -> Table:
 
 def cautions_box() -> Table:
     paras = [_p("<b>Safety cautions</b>", "body")] + [
-        Paragraph(text, STYLES["caution"], bulletText="\u2022") for text in SAFETY_CAUTIONS]
+        Paragraph(text, STYLES["caution"], bulletText="\u2022") for text in SITE_CAUTIONS]
     t = Table([[paras]], colWidths=[500])
     t.setStyle(TableStyle([("BOX", (0, 0), (-1, -1), 1.2, colors.black),
                            ("LEFTPADDING", (0, 0), (-1, -1), 6),
@@ -199,20 +200,13 @@ def swr_row(cuts: DesignCuts, width: float = 500) -> Table:
     return Table([plots], colWidths=[width / n] * n)
 
 
-def exposure_box(perf: DesignPerformance, units: str, width: float = 500) -> Table:
-    """The RF-exposure caution box: distances per band and limit, then the cautions."""
-    first = perf.bands[0].exposure
-    paras: list[Flowable] = [_p(
-        f"<b>RF exposure screen</b> ({first.pep_w:.0f} W PEP, {first.mode.upper()} duty "
-        f"{first.duty_factor:.0%}, transmitting {first.transmit_fraction:.0%} of the time, "
-        f"antenna gain {first.gain_dbi:.2f} dBi with the ground-reflection factor 2.56):", "body")]
-    for b in perf.bands:
-        x = b.exposure
-        dist = "; ".join(f"{d.limit.name} beyond {format_both(d.distance_m, units)}"
-                         for d in x.distances)
-        paras.append(_p(f"<b>{b.band_label}</b>: {x.average_power_w:.1f} W average after "
-                        f"{b.feedline_loss_db:.1f} dB feedline loss; {dist}.", "caution"))
-    paras += [Paragraph(text, STYLES["caution"], bulletText="\u2022") for text in first.cautions]
+def exposure_box(packet: Packet, design_key: str, width: float = 500) -> Table:
+    """The RF-exposure caution box: distances per band and limit, the keep-out, the cautions."""
+    a = packet.advice[design_key]
+    paras: list[Flowable] = [_p(f"<b>{a.exposure_head}</b>:", "body")]
+    paras += [_p(text, "caution") for text in a.exposure_bands]
+    paras.append(_p(f"<b>{a.keep_out}</b>", "caution"))
+    paras += [Paragraph(text, STYLES["caution"], bulletText="\u2022") for text in a.exposure_cautions]
     t = Table([[paras]], colWidths=[width])
     t.setStyle(TableStyle([("BOX", (0, 0), (-1, -1), 1.6, colors.black),
                            ("LEFTPADDING", (0, 0), (-1, -1), 6),
@@ -264,7 +258,7 @@ def coverage_page(packet: Packet, cuts: DesignCuts) -> list[Flowable]:
                  "wavelength for a separate receiving one; moist farmland beats dry sand or rock.")
     story += [_p("Height advice", "h2")] + [_p(t, "body") for t in lines]
     story += [_p("Band by time of day", "h2")] + [_p(t, "body") for t in perf.guidance]
-    story += [Spacer(1, 6), KeepTogether([exposure_box(perf, units)]), PageBreak()]
+    story += [Spacer(1, 6), KeepTogether([exposure_box(packet, d.key)]), PageBreak()]
     return story
 
 
@@ -315,7 +309,7 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list
         story += [CondPageBreak(60 * mm), _p("Kit bill of materials", "h2")]
         story += buildday.bom_flowables(packet.kit_boms[kits[0].kit_id], title="",
                                         fmt=_fmt(units), safety=False)[1:]
-    story += [Spacer(1, 6), KeepTogether([exposure_box(packet.performance_for(d.key), units)]),
+    story += [Spacer(1, 6), KeepTogether([exposure_box(packet, d.key)]),
               Spacer(1, 6), KeepTogether([cautions_box()]), PageBreak()]
     return story
 

@@ -119,6 +119,8 @@ class ExposureSettings:
     mode: str = "ssb"
     transmit_fraction: float = 0.5
     regime: ExposureRegime = "fcc"
+    transmit_fraction_6min: float | None = None  # own fraction for the 6-minute window
+    transmit_fraction_30min: float | None = None  # own fraction for the 30-minute window
 
 
 @dataclass(frozen=True)

@@ -43,7 +43,8 @@ _DESIGN_KEYS = ("title", "kind", "mount", "apex_height", "end_height", "wire", "
 _ELEMENT_KEYS = ("band", "frequency", "bearing", "end_height")
 _KIT_KEYS = ("design", "count", "builders", "first")
 _LABEL_KEYS = ("stock", "start_cell")
-_EXPOSURE_KEYS = ("power", "mode", "transmit_fraction", "regime")
+_EXPOSURE_KEYS = ("power", "mode", "transmit_fraction", "regime", "transmit_fraction_6min",
+                  "transmit_fraction_30min")
 _STOCK_KEYS = ("material", "length", "count")
 _GROUNDS = ("free_space", "perfect", *GROUND_CLASSES)
 _MODES = tuple(DUTY_FACTORS)
@@ -378,6 +379,8 @@ def read_spec_text(text: str, source: str = "spec.toml") -> Design:
         r.convert(ex.get("transmit_fraction", 0.5), "exposure.transmit_fraction",
                   _number(float, 0.0, 1.0)) or 0.5,
         r.choice(ex.get("regime", "fcc"), "exposure.regime", ("fcc", "icnirp2020", "both")) or "fcc",
+        *(r.convert(ex[k], f"exposure.{k}", _number(float, 0.0, 1.0)) if k in ex else None
+          for k in ("transmit_fraction_6min", "transmit_fraction_30min")),
     )
     spools = []
     stock_raw = raw.get("stock", [])

@@ -136,3 +136,18 @@ def format_frequency(hz: float) -> str:
     if len(text.split(".")[1]) < 3:
         text = f"{mhz:.3f}"
     return f"{text} MHz"
+
+
+def format_distance(metres: float, system: UnitSystem = "metric", *, round_up: bool = True) -> str:
+    """A distance to 0.1 m (metric) or to the whole inch (imperial), rounded up by default (safety
+    distances never shrink in print): 0.073 m -> "0.1 m"; 1.306 m -> "1.4 m" / "4 ft 4 in"."""
+    step = 0.1 if system == "metric" else INCH
+    n = abs(metres) / step
+    n = math.ceil(n - 1e-9) if round_up else math.floor(n + 0.5)
+    sign = "-" if metres < 0 and n else ""
+    if system == "metric":
+        return f"{sign}{n / 10:.1f} m"
+    feet, inches = divmod(n, 12)
+    if not feet:
+        return f"{sign}{inches} in"
+    return f"{sign}{feet} ft" + (f" {inches} in" if inches else "")
