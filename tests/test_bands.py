@@ -36,3 +36,27 @@ def test_band_containing():
     assert band_containing(7.15e6, 2).name == "40m"
     assert band_containing(7.25e6, 1) is None
     assert band_containing(6.0e6, 2) is None
+
+
+def test_us_60m_channel_table_with_dial_frequencies():
+    # 47 CFR 97.303(h) (from memory): channel centres 5332, 5348, 5358.5, 5373, 5405 kHz, 2.8 kHz
+    # wide; USB dial 1.5 kHz below the centre (common practice); 100 W PEP ERP; WRC-15 15 W EIRP.
+    from buildsheet.spec.bands import (
+        US_60M_MAX_ERP_W,
+        WRC15_60M_MAX_EIRP_W,
+        us_60m_channels,
+    )
+    chans = us_60m_channels()
+    assert [c.dial_hz / 1e3 for c in chans] == [5330.5, 5346.5, 5357.0, 5371.5, 5403.5]
+    assert {c.width_hz for c in chans} == {2.8e3}
+    assert (US_60M_MAX_ERP_W, WRC15_60M_MAX_EIRP_W) == (100.0, 15.0)
+
+
+def test_us_60m_design_frequency_checked():
+    # A channel centre or the mid-span of the five channels (common practice) passes; 5380 kHz,
+    # between channels 4 and 5, does not (issue 14, part 2).
+    from buildsheet.spec.bands import us_60m_frequency_problem
+    assert us_60m_frequency_problem(5358.5e3) is None
+    assert us_60m_frequency_problem(5405e3) is None
+    assert us_60m_frequency_problem((5332e3 + 5405e3) / 2) is None
+    assert "5380 kHz" in us_60m_frequency_problem(5380e3)

@@ -10,6 +10,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from buildsheet.calc import safety
+from buildsheet.spec import bands
 from buildsheet.calc.cuts import DesignCuts
 from buildsheet.calc.exposure import ExposureScreen
 from buildsheet.calc.performance import DesignPerformance
@@ -25,6 +26,7 @@ class DesignAdvice:
     keep_out: str
     exposure_cautions: tuple[str, ...]
     warnings: tuple[str, ...] = ()
+    band_rules: tuple[str, ...] = ()  # channel plan and power limits (60 m)
 
 
 def _pct(x: float) -> str:
@@ -68,6 +70,55 @@ def low_end_labels(cuts: DesignCuts) -> tuple[str, ...]:
                  if c.element.end_height_m < safety.REACH_HEIGHT_M)
 
 
+def _khz(hz: float) -> str:
+    return f"{hz / 1e3:.1f} kHz"
+
+
+def sixty_metre_advice(cuts: DesignCuts, screens: list[ExposureScreen]) -> tuple[
+        tuple[str, ...], tuple[str, ...]]:
+    """(lines, warnings) for the 60 m elements: channel list with USB dial frequencies, the
+    channel width and the power limits; warnings for an off-channel design frequency and for
+    exposure power above the limits (ERP with the dipole as 0 dBd, EIRP = ERP x 1.64)."""
+    lines: list[str] = []
+    warnings: list[str] = []
+    for c, x in zip(cuts.elements, screens):
+        band = c.element.band
+        if band is None or not band.name.startswith("60m"):
+            continue
+        label = f"{cuts.design.key} {c.element.key}"
+        erp = x.peak_power_w * 10.0 ** ((x.gain_dbi - 2.15) / 10.0)
+        eirp = x.peak_power_w * 10.0 ** (x.gain_dbi / 10.0)
+        wrc = (f"WRC-15 allocation {_khz(5351.5e3)}-{_khz(5366.5e3)}: "
+               f"{bands.WRC15_60M_MAX_EIRP_W:.0f} W EIRP")
+        if band.name == "60m-us":
+            chans = "; ".join(f"ch {ch.number} {_khz(ch.centre_hz)} (USB dial {_khz(ch.dial_hz)})"
+                              for ch in bands.us_60m_channels())
+            lines.append(
+                f"{c.element.band_label} channels (US, centre frequency, USB dial 1.5 kHz lower): "
+                f"{chans}; each {bands.US_60M_CHANNEL_WIDTH_HZ / 1e3:.1f} kHz wide: stay inside "
+                f"it. Power limits: US {bands.US_60M_MAX_ERP_W:.0f} W PEP ERP (a half-wave dipole "
+                f"counts as 0 dBd); {wrc}. This dipole is cut for "
+                f"{_khz(c.element.frequency_hz)}. Check the current national rules before "
+                "transmitting.")
+            problem = bands.us_60m_frequency_problem(c.element.frequency_hz)
+            if problem:
+                warnings.append(f"{label}: {problem}")
+            if erp > bands.US_60M_MAX_ERP_W:
+                warnings.append(f"{label}: the exposure power gives {erp:.0f} W PEP ERP at the "
+                                f"antenna, above the US 60 m limit of "
+                                f"{bands.US_60M_MAX_ERP_W:.0f} W PEP ERP")
+        else:
+            lines.append(f"{c.element.band_label}: {wrc} (check the national rules: some "
+                         f"administrations differ). This dipole is cut for "
+                         f"{_khz(c.element.frequency_hz)}.")
+            if eirp > bands.WRC15_60M_MAX_EIRP_W:
+                warnings.append(f"{label}: the exposure power gives {eirp:.0f} W EIRP at the "
+                                f"antenna, above the {bands.WRC15_60M_MAX_EIRP_W:.0f} W EIRP of "
+                                "the WRC-15 60 m allocation; reduce power to about "
+                                f"{bands.WRC15_60M_MAX_EIRP_W / eirp * x.pep_w:.0f} W PEP")
+    return tuple(lines), tuple(warnings)
+
+
 def design_advice(cuts: DesignCuts, perf: DesignPerformance, units: UnitSystem) -> DesignAdvice:
     """Word the advice for one solved design."""
     d = cuts.design
@@ -76,6 +127,8 @@ def design_advice(cuts: DesignCuts, perf: DesignPerformance, units: UnitSystem) 
     warnings = [w for c in cuts.elements
                 if (w := safety.end_reach_warning(d.key, c.element.key, c.element.end_height_m,
                                                   units)) is not None]
+    rules, sixty_warnings = sixty_metre_advice(cuts, screens)
+    warnings += sixty_warnings
     return DesignAdvice(
         exposure_head=exposure_head(screens[0]),
         exposure_bands=tuple(exposure_band_line(b.band_label, b.exposure, units)
@@ -83,5 +136,6 @@ def design_advice(cuts: DesignCuts, perf: DesignPerformance, units: UnitSystem) 
         keep_out=safety.keep_out_text(keep, low_end_labels(cuts), units),
         exposure_cautions=screens[0].cautions,
         warnings=tuple(warnings),
+        band_rules=rules,
     )
 

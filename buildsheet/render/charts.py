@@ -139,8 +139,10 @@ def swr_drawing(
     width_pt: float,
     height_pt: float,
     title: str,
+    channels_hz: Sequence[float] = (),
 ) -> Drawing:
-    """SWR vs frequency: 1-5 scale (clipped), dashed 2:1 line, band edges and design frequency.
+    """SWR vs frequency: 1-5 scale (clipped), dashed 2:1 line, band edges and design frequency,
+    and channel centres (thin grey lines numbered 1, 2, ... at the top) when given.
 
     Frequencies label in MHz.
     """
@@ -201,6 +203,13 @@ def swr_drawing(
                 strokeDashArray=[1, 2],
             )
         )
+    for n, fc in enumerate(channels_hz, start=1):
+        if f0 <= fc / 1e6 <= f1:
+            x = float(x_of(fc / 1e6))
+            d.add(Line(x, bottom, x, bottom + ph - 9, strokeColor=GREY, strokeWidth=THIN,
+                       strokeDashArray=[3, 1, 1, 1]))
+            d.add(String(x, bottom + ph - 7, str(n), fontName=FONT_BOLD, fontSize=TEXT_PT,
+                         textAnchor="middle"))
     d.add(Line(left, bottom, left + pw, bottom, strokeColor=colors.black, strokeWidth=THIN))
     d.add(Line(left, bottom, left, bottom + ph, strokeColor=colors.black, strokeWidth=THIN))
     for t in np.linspace(f0, f1, 5):
@@ -213,7 +222,8 @@ def swr_drawing(
         String(
             left + pw / 2,
             2,
-            "frequency, MHz (grey: band edges, dotted: design)",
+            "frequency, MHz (grey: band edges, dotted: design"
+            + (", numbered: channels)" if channels_hz else ")"),
             fontName=FONT,
             fontSize=TEXT_PT,
             textAnchor="middle",

@@ -195,7 +195,8 @@ def swr_row(cuts: DesignCuts, width: float = 500) -> Table:
     w = width / n - 6
     plots = [charts.swr_drawing(c.prediction.frequencies_hz, c.prediction.swr,
                                 c.element.frequency_hz, c.element.low_hz, c.element.high_hz,
-                                w, 120, f"{c.element.band_label} SWR on 50 ohm")
+                                w, 120, f"{c.element.band_label} SWR on 50 ohm",
+                                c.element.band.channels_hz if c.element.band else ())
              for c in cuts.elements]
     return Table([plots], colWidths=[width / n] * n)
 
@@ -296,6 +297,7 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list
         f"{cuts.prediction.ground_title}. The 468/f rule and the straight-dipole closed form are "
         "shown for comparison.", "small"))
     story += tuning_lines(cuts, units)
+    story += [_p(t, "body") for t in packet.advice[d.key].band_rules]
     story += [_p("Feed point", "h2")] + feed_lines(cuts) + [swr_row(cuts)]
     story += [CondPageBreak(120 * mm), _p("Deployment", "h2"),
               drawings.side_view(cuts, 500, 165, units), Spacer(1, 4)]

@@ -11,10 +11,50 @@ from dataclasses import dataclass
 
 REGIONS: tuple[int, ...] = (1, 2, 3)
 
-#: US 60 m channel centre frequencies, Hz (common practice; USB dial is 1.5 kHz lower).
+#: US 60 m channel centre frequencies, Hz (47 CFR 97.303(h), from memory; US rules for 60 m
+#: have been under review: this table is the one place to update).
 US_60M_CHANNELS_HZ: tuple[float, ...] = (5332.0e3, 5348.0e3, 5358.5e3, 5373.0e3, 5405.0e3)
-#: Occupied bandwidth of one US 60 m channel, Hz (2.8 kHz, common practice).
+#: Occupied bandwidth of one US 60 m channel, Hz (2.8 kHz, 47 CFR 97.303(h), from memory).
 US_60M_CHANNEL_WIDTH_HZ: float = 2.8e3
+#: USB dial (suppressed carrier) sits this far below the channel centre, Hz (common practice).
+USB_DIAL_OFFSET_HZ: float = 1.5e3
+#: US 60 m power limit: 100 W PEP ERP, a half-wave dipole counted as 0 dBd (from memory).
+US_60M_MAX_ERP_W: float = 100.0
+#: WRC-15 secondary allocation 5351.5-5366.5 kHz: 15 W EIRP in most of the world (from memory;
+#: some administrations allow less or more).
+WRC15_60M_MAX_EIRP_W: float = 15.0
+#: The usual cut for all five US channels: the middle of their span, Hz (common practice).
+US_60M_MID_SPAN_HZ: float = (US_60M_CHANNELS_HZ[0] + US_60M_CHANNELS_HZ[-1]) / 2
+#: A design frequency within this of a channel centre or the mid-span counts as on it, Hz.
+US_60M_MATCH_HZ: float = 0.5e3
+
+
+@dataclass(frozen=True)
+class Channel:
+    """One channel: its number, centre and USB dial frequency, Hz."""
+
+    number: int
+    centre_hz: float
+    dial_hz: float
+    width_hz: float
+
+
+def us_60m_channels() -> tuple[Channel, ...]:
+    """The US 60 m channels with their USB dial frequencies (centre minus 1.5 kHz)."""
+    return tuple(Channel(n, f, f - USB_DIAL_OFFSET_HZ, US_60M_CHANNEL_WIDTH_HZ)
+                 for n, f in enumerate(US_60M_CHANNELS_HZ, start=1))
+
+
+def us_60m_frequency_problem(frequency_hz: float) -> str | None:
+    """Why a 60 m design frequency is unusual for the US channels, or None when it is a channel
+    centre or the mid-span compromise (frequencies in Hz, text in kHz)."""
+    near = [c for c in US_60M_CHANNELS_HZ if abs(c - frequency_hz) <= US_60M_MATCH_HZ]
+    if near or abs(frequency_hz - US_60M_MID_SPAN_HZ) <= US_60M_MATCH_HZ:
+        return None
+    listed = ", ".join(f"{c / 1e3:g}" for c in US_60M_CHANNELS_HZ)
+    return (f"{frequency_hz / 1e3:g} kHz is neither a US 60 m channel centre ({listed} kHz) nor "
+            f"the usual mid-span cut for all five ({US_60M_MID_SPAN_HZ / 1e3:g} kHz); US channels "
+            "are set by their centre frequency: design for one channel or for the mid-span")
 
 
 @dataclass(frozen=True)

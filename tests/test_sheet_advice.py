@@ -1,0 +1,110 @@
+"""Worded advice on the sheets (issue 14): 60 m rules, exposure box, built from small specs with
+the closed-form model (fast) and checked against the sources named beside each assertion."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from buildsheet.packet import build_packet
+from buildsheet.spec.reader import load_spec
+
+BASE = """
+[event]
+name = "Test day"
+club = "Test club"
+date = "2027-01-01"
+region = {region}
+units = "{units}"
+paper = "{paper}"
+
+[site]
+ground = "medium_dry"
+{site}
+
+{designs}
+
+[[kits]]
+design = "d"
+count = 1
+
+[exposure]
+power = "{power}"
+mode = "ssb"
+transmit_fraction = 0.5
+"""
+
+DIPOLE = """
+[designs.d]
+title = "test"
+kind = "{kind}"
+mount = "{mount}"
+apex_height = "{apex}"
+{end}
+wire = "awg14-bare"
+coax = "rg8x"
+coax_length = "15 m"
+{elements}
+"""
+
+
+def element(band: str = "", frequency: str = "", bearing: float = 0) -> str:
+    lines = ["[[designs.d.elements]]"]
+    if band:
+        lines.append(f'band = "{band}"')
+    if frequency:
+        lines.append(f'frequency = "{frequency}"')
+    lines.append(f"bearing = {bearing}")
+    return "\n".join(lines)
+
+
+def spec_text(elements: list[str], *, kind: str = "", mount: str = "inverted_v",
+              apex: str = "10 m", end: str = "3 m", region: int = 2, units: str = "metric",
+              paper: str = "letter", power: str = "100 W", site: str = "") -> str:
+    kind = kind or ("fan" if len(elements) > 1 else "dipole")
+    end_line = f'end_height = "{end}"' if mount == "inverted_v" else ""
+    designs = DIPOLE.format(kind=kind, mount=mount, apex=apex, end=end_line,
+                            elements="\n".join(elements))
+    return BASE.format(region=region, units=units, paper=paper, power=power, site=site,
+                       designs=designs)
+
+
+def packet_of(tmp_path: Path, text: str, model: str = "closed_form"):
+    path = tmp_path / "spec.toml"
+    path.write_text(text, encoding="utf-8")
+    return build_packet(load_spec(path), built_at="2027-01-01T00:00:00Z", model=model)
+
+
+def test_60m_off_channel_and_power_warnings(tmp_path):
+    # 47 CFR 97.303(h) (from memory): channels by centre frequency, 100 W PEP ERP (dipole 0 dBd).
+    # 5380 kHz is no channel centre; 150 W PEP less 0.5 dB of coax is still above 100 W ERP.
+    p = packet_of(tmp_path, spec_text([element(frequency="5380 kHz")], power="150 W"))
+    text = " ".join(p.warnings)
+    assert "5380 kHz is neither a US 60 m channel centre" in text
+    assert "above the US 60 m limit of 100 W PEP ERP" in text
+    rules = " ".join(p.advice["d"].band_rules)
+    assert "USB dial 5330.5 kHz" in rules and "2.8 kHz wide" in rules and "15 W EIRP" in rules
+
+
+def test_60m_channel_centre_passes(tmp_path):
+    p = packet_of(tmp_path, spec_text([element(band="60m-us")]))
+    assert not any("60 m" in w for w in p.warnings)
+
+
+def test_wrc15_60m_eirp_warning(tmp_path):
+    # WRC-15 allocation 5351.5-5366.5 kHz, 15 W EIRP (REFERENCES.md 11, from memory); 100 W PEP
+    # into a dipole (2.15 dBi) is about 150 W EIRP.
+    p = packet_of(tmp_path, spec_text([element(band="60m")], region=1))
+    assert any("above the 15 W EIRP" in w for w in p.warnings)
+
+
+def test_exposure_box_prints_governing_and_keep_out(tmp_path):
+    # ICNIRP 2010 (Health Phys. 99(6)), 83 V/m general public at PEP: about 1.3 m at 3.9 MHz,
+    # 100 W (REFERENCES.md 8.5) -> keep-out 1.5 m, rounded up to 0.5 m (our rule); ends at 2 m
+    # are within reach (common practice: below about 2.5 m).
+    p = packet_of(tmp_path, spec_text([element(band="75m")], apex="7 m", end="2 m"))
+    a = p.advice["d"]
+    assert "ICNIRP 2010 general public nerve stimulation" in " ".join(a.exposure_bands)
+    assert "1.5 m radius around each end of 75m" in a.keep_out
+    assert any("within reach" in w for w in p.warnings)
