@@ -282,6 +282,7 @@ def render_documents(packet: Packet, current: Mapping[str, Legs],
 def comparisons(packet: Packet, histories: Iterable[ElementHistory]) -> dict[str, tuple]:
     """Per element, the model's and the calibration's predictions beside the latest measured
     dip: (label, text) rows for the record page."""
+    from buildsheet.calc.advice import tuning_words
     from buildsheet.calc.cuts import expected_dip_hz
     from buildsheet.spec.units import format_frequency, format_length
 
@@ -298,6 +299,7 @@ def comparisons(packet: Packet, histories: Iterable[ElementHistory]) -> dict[str
                      ("First dip expected as cut, calibrated", format_frequency(expected_dip_hz(c)))]
         if e.element_id in latest:
             rows.append(("Latest measured dip", format_frequency(latest[e.element_id])))
+        rows.append(("Tuning", tuning_words(c, packet.design.event.units)))
         out[e.element_id] = tuple(rows)
     return out
 

@@ -127,7 +127,7 @@ def test_bom_pdf_lists_items_and_safety():
     assert "14 AWG copper, PVC jacket" in text
     assert default_metric(2 * (2 * 10.06 + 2 * 0.01)) in text
     assert "4 pcs" in text  # stakes or insulators over two kits
-    assert "power line" in text and "local codes" in text
+    assert "power line" in text and "local codes" in text.lower()
 
 
 def test_log_form_pdf():

@@ -108,3 +108,55 @@ def test_exposure_box_prints_governing_and_keep_out(tmp_path):
     assert "ICNIRP 2010 general public nerve stimulation" in " ".join(a.exposure_bands)
     assert "1.5 m radius around each end of 75m" in a.keep_out
     assert any("within reach" in w for w in p.warnings)
+
+
+def test_printed_parts_add_up_and_trims_in_words(tmp_path):
+    # Arithmetic on the printed sheet (issue 14 part 13): model leg + trim + termination + feed,
+    # each as printed (1 cm or 1/8 in), add up to the printed cut, in both unit systems.
+    from buildsheet.calc.advice import trim_words
+    from buildsheet.calc.cuts import printed_parts
+    p = packet_of(tmp_path, spec_text([element(band="75m"), element(band="40m", bearing=90)]))
+    for c in p.cuts[0].elements:
+        for units, q in (("metric", 0.01), ("imperial", 0.0254 / 8)):
+            parts = printed_parts(c, units)
+            total = parts.model_leg_m + parts.trim_m + parts.termination_m + parts.feed_m
+            assert round(total / q) == round(parts.cut_m / q) == round(c.cut_leg_m / q)
+            assert abs(parts.trim_m - c.trim_m) <= 2 * q
+    assert trim_words(0.04, "metric") == "shorten by 40 mm (1 5/8 in)"
+    assert trim_words(-0.04, "metric").startswith("lengthen by 40 mm")
+
+
+def test_first_dip_below_band_edge_is_explained(tmp_path):
+    # Tuning by proportion, dL = L df / f (REFERENCES.md 11, common practice): a 40 m leg cut
+    # long by its trim allowance first dips near f x L / (L + trim); below 7.000 MHz the sheet
+    # says that is normal and to find the dip with an analyzer, not by transmitting.
+    from buildsheet.calc.cuts import expected_dip_hz
+    p = packet_of(tmp_path, spec_text([element(band="40m")], end="2 m"))
+    c = p.cuts[0].elements[0]
+    by_proportion = c.element.frequency_hz * c.predicted_leg_m / (c.predicted_leg_m + c.trim_m)
+    assert abs(expected_dip_hz(c) / by_proportion - 1) < 0.005
+    text = " ".join(p.advice["d"].dips)
+    if expected_dip_hz(c) < 7.0e6:
+        assert "below the band edge" in text and "not by transmitting" in text
+
+
+def test_height_advice_says_apex_is_low(demo_packet):
+    # Common practice (REFERENCES.md 11): about 0.2 wavelength for NVIS transmitting; the demo's
+    # 7 m apex is 0.09 wavelength at 3.9 MHz, so the 75 m advice must say plainly it is low.
+    text = " ".join(demo_packet.packet.advice["phonefan"].height)
+    assert "75m: the apex is BELOW the 1 dB window" in text
+    assert "dB less zenith gain" in text
+
+
+def test_assembly_steps_use_the_kit_numbers(demo_packet):
+    # Common practice: strip, fold the termination at the insulator, terminal, balun slack,
+    # wind from the insulator end, label; feed-line notes on chokes and tuners.
+    a = demo_packet.packet.advice["phonefan"]
+    c75 = demo_packet.packet.cuts_for("phonefan").elements[0]
+    steps = " ".join(a.assembly)
+    assert steps.startswith("1. ") and "7. " in steps
+    for phrase in ("strip", "termination", "ring terminal", "slack", "from the insulator end",
+                   "label", f"{c75.termination_m * 1000:.0f} mm"):
+        assert phrase in steps, phrase
+    notes = " ".join(a.feed_line)
+    assert "common-mode choke" in notes and "cannot fix the antenna" in notes

@@ -9,12 +9,22 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numpy as np
+
 from buildsheet.calc import safety
-from buildsheet.spec import bands
-from buildsheet.calc.cuts import DesignCuts
+from buildsheet.calc.cuts import DesignCuts, ElementCut, expected_dip_hz, printed_parts
+from buildsheet.calc.logistics import BALUN_LOOP_CORD_M
 from buildsheet.calc.exposure import ExposureScreen
+from buildsheet.calc.feedline import coax
 from buildsheet.calc.performance import DesignPerformance
-from buildsheet.spec.units import UnitSystem, format_distance
+from buildsheet.spec import bands
+from buildsheet.spec.units import (
+    UnitSystem,
+    format_both,
+    format_distance,
+    format_frequency,
+    format_length,
+)
 
 
 @dataclass(frozen=True)
@@ -27,6 +37,29 @@ class DesignAdvice:
     exposure_cautions: tuple[str, ...]
     warnings: tuple[str, ...] = ()
     band_rules: tuple[str, ...] = ()  # channel plan and power limits (60 m)
+    height: tuple[str, ...] = ()  # height advice in words (coverage page)
+    dips: tuple[str, ...] = ()  # where the first dip lands as cut (kit sheets)
+    assembly: tuple[str, ...] = ()  # numbered steps; "{kit}" stands for the kit ID
+    feed_line: tuple[str, ...] = ()  # feed-line notes (common practice)
+
+
+def trim_words(metres: float, units: UnitSystem, *, each_leg: bool = False) -> str:
+    """A trim amount in words: +0.04 m -> "shorten by 40 mm", -0.04 m -> "lengthen by 40 mm
+    (add wire back)"; never a signed number."""
+    what = "each leg " if each_leg else ""
+    amount = format_both(abs(metres), units)
+    if format_length(abs(metres), units) in ("0 mm", "0 in"):
+        return "no change"
+    if metres > 0:
+        return f"shorten {what}by {amount}"
+    return f"lengthen {what}by {amount} (add wire back)"
+
+
+def tuning_words(cut: ElementCut, units: UnitSystem) -> str:
+    """The tuning line in words, from the model's slope (length per 100 kHz, each leg)."""
+    step = format_both(cut.tuning_m_per_100khz, units)
+    return (f"to raise the resonance by 100 kHz shorten each leg by {step}; to lower it, "
+            f"lengthen each leg by the same. Trim both legs equally, part of the amount per step.")
 
 
 def _pct(x: float) -> str:
@@ -119,6 +152,125 @@ def sixty_metre_advice(cuts: DesignCuts, screens: list[ExposureScreen]) -> tuple
     return tuple(lines), tuple(warnings)
 
 
+def height_lines(cuts: DesignCuts, perf: DesignPerformance, units: UnitSystem) -> tuple[str, ...]:
+    """Height advice in words: where the apex sits against each band's 1 dB window, what that
+    costs at the zenith (from the band's height sweep), and the multi-band compromise."""
+    apex = cuts.design.apex_height_m
+    lines = [f"The apex is at {format_both(apex, units)}."]
+    for b in perf.bands:
+        h = b.height
+        window = f"{format_length(h.range_low_m, units)} to {format_length(h.range_high_m, units)}"
+        best = format_both(h.best_height_m, units)
+        lo, hi = float(h.heights_m[0]), float(h.heights_m[-1])
+        loss = (h.best_gain_dbi - float(np.interp(apex, h.heights_m, h.zenith_gain_dbi))
+                if lo <= apex <= hi else None)
+        cost = (f"about {loss:.1f} dB less zenith gain than at the best height" if loss is not None
+                else "more than the sweep shows")
+        if apex < h.range_low_m:
+            lines.append(
+                f"{b.band_label}: the apex is BELOW the 1 dB window ({window}; best {best}): "
+                f"expect {cost}. Raising the apex to {format_length(h.range_low_m, units)} "
+                "brings it within 1 dB. A low NVIS antenna still works, with a weaker signal.")
+        elif apex > h.range_high_m:
+            lines.append(
+                f"{b.band_label}: the apex is ABOVE the 1 dB window ({window}; best {best}): "
+                f"expect {cost} and more radiation at low angles (less NVIS).")
+        else:
+            lines.append(f"{b.band_label}: the apex is within the 1 dB window ({window}; best "
+                         f"{best}).")
+    if perf.compromise is not None:
+        c = perf.compromise
+        lines.append(f"Compromise for all bands (lowest apex within 1 dB of each band's best): "
+                     f"{format_both(c.height_m, units)}; worst shortfall there "
+                     f"{c.worst_shortfall_db:.1f} dB.")
+    lines.append("Common practice: about 0.2 wavelength for a transmitting NVIS antenna, about 0.1 "
+                 "wavelength for a separate receiving one; moist farmland beats dry sand or rock.")
+    return tuple(lines)
+
+
+def dip_lines(cuts: DesignCuts) -> tuple[str, ...]:
+    """Where each element's first dip should land as cut, in words, with a plain note when it
+    falls outside the band (normal for a leg cut long)."""
+    out = []
+    for c in cuts.elements:
+        f = expected_dip_hz(c)
+        e = c.element
+        text = (f"{e.band_label}: as cut (long by the trim allowance) the first dip should be "
+                f"near {format_frequency(f)}")
+        if f < e.low_hz:
+            text += (f", below the band edge ({format_frequency(e.low_hz)}). That is normal for a "
+                     "leg cut long. Find the dip with an antenna analyzer, not by transmitting "
+                     f"(that would be outside the band), then trim toward "
+                     f"{format_frequency(e.frequency_hz)}.")
+        elif f > e.high_hz:
+            text += (f", ABOVE the band edge ({format_frequency(e.high_hz)}): the legs are short "
+                     "for this site. Check the cut against the cut list before anything else; "
+                     "lengthen both legs equally if they match.")
+        else:
+            text += (f", inside the band; find it with an antenna analyzer and trim toward "
+                     f"{format_frequency(e.frequency_hz)}.")
+        out.append(text)
+    return tuple(out)
+
+
+#: Insulation stripped for a crimp ring terminal, m (common practice: about 10 mm, 3/8 in).
+STRIP_M: float = 0.01
+
+
+def assembly_steps(cuts: DesignCuts, units: UnitSystem) -> tuple[str, ...]:
+    """Numbered assembly steps with this design's numbers (common practice). "{kit}" in the
+    text stands for the kit ID (the sheet fills it in)."""
+    d = cuts.design
+    a = d.allowances
+    per = "; ".join(f"{c.element.band_label} {format_both(printed_parts(c, units).cut_m, units)}"
+                    for c in cuts.elements)
+    tags = ", ".join(f"{{kit}}-{c.element.key}-A/B" for c in cuts.elements)
+    trims = "; ".join(f"{c.element.band_label} {format_length(printed_parts(c, units).trim_m, units)}"
+                      for c in cuts.elements)
+    cords = "; ".join(f"{c.element.band_label} {format_length(c.legs[0].cord_cut_m, units)}"
+                      for c in cuts.elements)
+    strip = (f"strip {format_both(STRIP_M, units)} of insulation and crimp" if d.wire.insulated
+             else "crimp")
+    flat = d.mount == "flat"
+    steps = [
+        f"Check each leg against the cut list ({per}) and tag it with its ID ({tags}).",
+        f"At the feed end of each leg {strip} a ring terminal; the feed allowance "
+        f"({format_both(a.feed_m, units)}) is the pigtail from the terminal to the balun.",
+        f"At the far end pass the wire through the end insulator, fold back the termination "
+        f"allowance ({format_both(a.termination_m, units)}) and wrap it tightly round the leg; "
+        f"tape the tail. Keep the trim allowance in the leg ({trims}): it is the tuning reserve.",
+        (f"Tie the cord to each end insulator with a bowline (cord to cut: {cords}); "
+         + ("it runs to the pulley or ring at the top of the end support, and the halyard "
+            "lowers the end for tuning." if flat else
+            "it runs to the stake, with a taut-line hitch there.")),
+        f"Bolt the terminals to the balun studs (all A legs on one, all B legs on the other), "
+        f"leaving slack in each pigtail; tie the balun loop "
+        f"({format_both(BALUN_LOOP_CORD_M, units)} of cord) so the cord, not the terminal, "
+        "takes the pull.",
+        "Wind each leg on its winder from the insulator end, so that the feed end comes off first "
+        "at the mast.",
+        "Fit each leg's label to its winder and check that it matches the tag on the wire.",
+    ]
+    return tuple(f"{n}. {s}" for n, s in enumerate(steps, start=1))
+
+
+def feed_line_notes(cuts: DesignCuts, perf: DesignPerformance) -> tuple[str, ...]:
+    """Feed-line notes of common practice: matched loss, common-mode choke, tuner limits."""
+    d = cuts.design
+    loss = ", ".join(f"{b.band_label} {b.feedline_loss_db:.1f} dB" for b in perf.bands)
+    return (
+        f"Feed line: {coax(d.coax_type).title}, matched loss {loss}; more with a high SWR.",
+        "The 1:1 current balun at the feed is the first common-mode choke. If the coax still "
+        "shows RF (an SWR that changes when you touch or move the coax, RF on the microphone or "
+        "a warm rig), add a choke at the rig end: several turns of the coax through a ferrite "
+        "core suited to HF.",
+        "A tuner at the rig makes the radio see 50 ohm; it cannot fix the antenna. The SWR on "
+        "the coax and its extra loss stay, and a leg cut wrong still resonates in the wrong "
+        "place. On the day, trim for a dip inside the band; leave the tuner for the last bit "
+        "towards the band edges.",
+    )
+
+
 def design_advice(cuts: DesignCuts, perf: DesignPerformance, units: UnitSystem) -> DesignAdvice:
     """Word the advice for one solved design."""
     d = cuts.design
@@ -137,5 +289,9 @@ def design_advice(cuts: DesignCuts, perf: DesignPerformance, units: UnitSystem) 
         exposure_cautions=screens[0].cautions,
         warnings=tuple(warnings),
         band_rules=rules,
+        height=height_lines(cuts, perf, units),
+        dips=dip_lines(cuts),
+        assembly=assembly_steps(cuts, units),
+        feed_line=feed_line_notes(cuts, perf),
     )
 

@@ -99,6 +99,32 @@ def element_cut(design: AntennaDesign, element: ElementSpec, prediction: Element
                       calibrated, uncalibrated_leg_m)
 
 
+#: Printed resolution of lengths: 1 cm (metric) and 1/8 in (imperial), m.
+PRINT_QUANTUM_M = {"metric": 0.01, "imperial": 0.0254 / 8}
+
+
+@dataclass(frozen=True)
+class PrintedParts:
+    """The cut and its parts as printed (m, each a whole number of print quanta), adding up."""
+
+    model_leg_m: float
+    trim_m: float
+    termination_m: float
+    feed_m: float
+    cut_m: float
+
+
+def printed_parts(cut: ElementCut, units: str) -> PrintedParts:
+    """Round the parts of a cut to the printed resolution so that they add up to the printed
+    cut: the cut, the model leg and the fixed allowances round to the nearest quantum and the
+    trim allowance takes the difference (it is the least exact part)."""
+    q = PRINT_QUANTUM_M["imperial" if units == "imperial" else "metric"]
+    n = {k: round(v / q) for k, v in (("leg", cut.predicted_leg_m), ("term", cut.termination_m),
+                                      ("feed", cut.feed_m), ("cut", cut.cut_leg_m))}
+    trim = n["cut"] - n["leg"] - n["term"] - n["feed"]
+    return PrintedParts(n["leg"] * q, trim * q, n["term"] * q, n["feed"] * q, n["cut"] * q)
+
+
 def expected_dip_hz(cut: ElementCut, *, uncalibrated: bool = False) -> float:
     """Where the element as cut (long by its trim allowance) should first dip, Hz.
 

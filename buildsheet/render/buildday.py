@@ -79,6 +79,13 @@ def _count(q: float) -> str:
     return f"{q:.0f}" if float(q).is_integer() else f"{q:g}"
 
 
+def _pieces(q: float, unit: str) -> str:
+    """A count with its unit: "1 pc", "4 pcs" (other units as given)."""
+    if unit == "pcs" and q == 1:
+        return "1 pc"
+    return f"{_count(q)} {unit}"
+
+
 def _grid(data: list[list[object]], widths: Sequence[float], *, header_rows: int = 1,
           font_size: float = 8.5, row_height: float | None = None,
           right_cols: Sequence[int] = ()) -> Table:
@@ -139,7 +146,7 @@ def bom_flowables(lines: Iterable[BomLine], *, title: str = "Bill of materials",
     """BOM table (category, item, quantity, note); lengths through ``fmt``, counts as pcs."""
     rows: list[list[object]] = [["Category", "Item", "Quantity", "Note"]]
     for line in lines:
-        qty = fmt(line.quantity) if line.unit == "m" else f"{_count(line.quantity)} {line.unit}"
+        qty = fmt(line.quantity) if line.unit == "m" else _pieces(line.quantity, line.unit)
         rows.append([_p(line.category), _p(line.item), qty, _p(line.note, _SMALL)])
     w = [0.13 * width, 0.35 * width, 0.15 * width, 0.37 * width]
     out: list[Flowable] = [_p(title, _H1), _grid(rows, w, right_cols=(2,))]
@@ -212,9 +219,11 @@ def station_list_flowables(spool: SpoolUse, *, metric: LengthFormat = default_me
         _p(f"{spool.title}, {metric(spool.length_m)} ({imperial(spool.length_m)}) of "
            f"{spool.material}", _BIG),
         Spacer(1, 2 * mm),
-        _p("Measure from the free end of the spool. At each mark: check the wire, cut, tag the "
+        _p("Measure from the free end of the spool. At each mark: check the "
+           f"{'cord' if spool.material == 'cord' else 'wire'} for damage, cut, tag the "
            "piece with its ID, tick the box. Each piece includes "
-           f"{metric(tol)} cutting tolerance.", _BODY),
+           f"{metric(tol)} cutting tolerance. Eye protection on while unspooling and cutting.",
+           _BODY),
         Spacer(1, 3 * mm),
     ]
     rows: list[list[object]] = [["Done", "#", "Cut ID", "Label", "Length", "Mark at (m)",
@@ -222,7 +231,7 @@ def station_list_flowables(spool: SpoolUse, *, metric: LengthFormat = default_me
     for n, pc in enumerate(spool.cuts, start=1):
         rows.append([TickBox(), str(n), _p(pc.cut.cut_id, _BIG_BOLD), _p(pc.cut.label),
                      metric(pc.cut.length_m), metric(pc.mark_m), imperial(pc.mark_m)])
-    table = _grid(rows, [w * width for w in (0.07, 0.05, 0.27, 0.17, 0.12, 0.14, 0.18)],
+    table = _grid(rows, [w * width for w in (0.09, 0.05, 0.26, 0.17, 0.12, 0.13, 0.18)],
                   font_size=10, row_height=9 * mm, right_cols=(4, 5, 6))
     table.setStyle(TableStyle([("ALIGN", (0, 1), (0, -1), "CENTER"),
                                ("FONT", (5, 1), (5, -1), "Helvetica-Bold", 10)]))

@@ -6,6 +6,7 @@ Renderers compute nothing physical: every number comes from the Packet.
 from __future__ import annotations
 
 import io
+from xml.sax.saxutils import escape
 from collections.abc import Callable
 from pathlib import Path
 from typing import BinaryIO
@@ -29,8 +30,9 @@ from reportlab.platypus import (
     TableStyle,
 )
 
-from buildsheet.calc.cuts import DesignCuts, expected_dip_hz
+from buildsheet.calc.cuts import DesignCuts, expected_dip_hz, printed_parts
 from buildsheet.calc.performance import DesignPerformance
+from buildsheet.calc.advice import trim_words
 from buildsheet.calc.safety import SITE_CAUTIONS
 from buildsheet.packet import Packet
 from buildsheet.render import buildday, charts, drawings
@@ -108,6 +110,13 @@ def _two_line(metres: float, units: str) -> str:
     return format_both(metres, units).replace(" (", "\n(")
 
 
+def _parts_cell(printed_m: float, exact_m: float, units: str) -> str:
+    """A cut-list cell: the primary unit from the parts that add up, the other unit in brackets
+    from the exact length (so it matches the labels)."""
+    other = "imperial" if units == "metric" else "metric"
+    return f"{format_length(printed_m, units)}\n({format_length(exact_m, other)})"  # type: ignore[arg-type]
+
+
 def _table(rows: list[list[str]], widths: list[float], bold_cols: tuple[int, ...] = ()) -> Table:
     """A ruled table of plain-text cells (faster to lay out than paragraphs)."""
     t = Table(rows, colWidths=widths, repeatRows=1)
@@ -122,13 +131,15 @@ def element_table(cuts: DesignCuts, units: str) -> Table:
     rows = [["Band", "Design\nfreq.", "468/f leg", "Closed-form\nleg", "Model leg", "Trim",
              "Termi-\nnation", "Feed", "CUT EACH LEG"]]
     for c in cuts.elements:
+        parts = printed_parts(c, units)
         rows.append([
             c.element.band_label, format_frequency(c.element.frequency_hz),
             _two_line(c.rule468_leg_m, units), _two_line(c.closed_form_leg_m, units),
-            _two_line(c.predicted_leg_m, units),
-            f"{format_length(c.trim_m, units)}\n({c.trim_fraction:.1%})",
-            _two_line(c.termination_m, units), _two_line(c.feed_m, units),
-            _two_line(c.cut_leg_m, units),
+            _parts_cell(parts.model_leg_m, c.predicted_leg_m, units),
+            f"{format_length(parts.trim_m, units)}\n({c.trim_fraction:.1%})",
+            _parts_cell(parts.termination_m, c.termination_m, units),
+            _parts_cell(parts.feed_m, c.feed_m, units),
+            _parts_cell(parts.cut_m, c.cut_leg_m, units),
         ])
     return _table(rows, [40, 54, 60, 60, 62, 50, 50, 46, 82], bold_cols=(0, 8))
 
@@ -244,20 +255,7 @@ def coverage_page(packet: Packet, cuts: DesignCuts) -> list[Flowable]:
                                             b.cuts.endfire_dbi, w, f"{b.band_label} elevation")
              for b in perf.bands]
     story.append(Table([polar], colWidths=[w + 6] * n))
-    apex = d.apex_height_m
-    lines = [f"The apex is at {format_both(apex, units)}."]
-    for b in perf.bands:
-        lines.append(f"{b.band_label}: best zenith gain at {format_both(b.height.best_height_m, units)}; "
-                     f"within 1 dB from {format_length(b.height.range_low_m, units)} to "
-                     f"{format_length(b.height.range_high_m, units)}.")
-    if perf.compromise is not None:
-        c = perf.compromise
-        lines.append(f"Compromise for all bands (lowest apex within 1 dB of each band's best): "
-                     f"<b>{format_both(c.height_m, units)}</b>; worst shortfall there "
-                     f"{c.worst_shortfall_db:.1f} dB.")
-    lines.append("Common practice: about 0.2 wavelength for a transmitting NVIS antenna, about 0.1 "
-                 "wavelength for a separate receiving one; moist farmland beats dry sand or rock.")
-    story += [_p("Height advice", "h2")] + [_p(t, "body") for t in lines]
+    story += [_p("Height advice", "h2")] + [_p(t, "body") for t in packet.advice[d.key].height]
     story += [_p("Band by time of day", "h2")] + [_p(t, "body") for t in perf.guidance]
     story += [Spacer(1, 6), KeepTogether([exposure_box(packet, d.key)]), PageBreak()]
     return story
@@ -293,10 +291,10 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list
     story += [_p("Cut list", "h2"), element_table(cuts, units), Spacer(1, 3)]
     story.append(_p(
         f"Cut = model leg + trim allowance + termination at the end insulator + feed allowance "
-        f"(pigtail to the balun terminal). Model: {cuts.prediction.model_note}; ground "
-        f"{cuts.prediction.ground_title}. The 468/f rule and the straight-dipole closed form are "
+        f"(pigtail to the balun terminal). Model: {cuts.prediction.model_note}. The 468/f rule and the straight-dipole closed form are "
         "shown for comparison.", "small"))
     story += tuning_lines(cuts, units)
+    story += [_p(t, "body") for t in packet.advice[d.key].dips]
     story += [_p(t, "body") for t in packet.advice[d.key].band_rules]
     story += [_p("Feed point", "h2")] + feed_lines(cuts) + [swr_row(cuts)]
     story += [CondPageBreak(120 * mm), _p("Deployment", "h2"),
@@ -307,6 +305,11 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list
                             drawings.plan_view(cuts, 270, units, dims)])]
     for w in cuts.warnings:
         story.append(_p(f"<b>Note:</b> {w}", "small"))
+    advice = packet.advice[d.key]
+    kit_name = kits[0].kit_id if len(kits) == 1 else "K.."
+    story += [CondPageBreak(50 * mm), _p("Assembly", "h2")]
+    story += [_p(escape(t.replace("{kit}", kit_name)), "body") for t in advice.assembly]
+    story += [_p("Feed line", "h2")] + [_p(escape(t), "body") for t in advice.feed_line]
     if len(kits) == 1:
         story += [CondPageBreak(60 * mm), _p("Kit bill of materials", "h2")]
         story += buildday.bom_flowables(packet.kit_boms[kits[0].kit_id], title="",
@@ -428,21 +431,20 @@ def batch_trim_pages(packet: Packet) -> list[Flowable]:
     if not packet.batch_trims:
         return []
     units = packet.design.event.units
-    rows = [["Element", "Legs now (A / B)", "Target leg", "Remove from A", "Remove from B",
-             "Action"]]
+    rows = [["Element", "Legs now (A / B)", "Target leg", "Leg A", "Leg B"]]
     for t in packet.batch_trims:
         rows.append([t.element_id, f"{format_length(t.leg_a_m, units)} / {format_length(t.leg_b_m, units)}",
-                     _two_line(t.target_leg_m, units), _two_line(t.remove_a_m, units),
-                     _two_line(t.remove_b_m, units), t.action])
+                     _two_line(t.target_leg_m, units),
+                     trim_words(t.remove_a_m, units).replace(" (", "\n("),
+                     trim_words(t.remove_b_m, units).replace(" (", "\n(")])
     sources = "; ".join(f"{k}: calibrated from {', '.join(c.source_ids)}, site like "
                         f"{c.site_like_title}, residual {c.uncertainty:.1%}"
                         for k, c in packet.calibrations.items())
     return [_p("Batch trims for kits already cut", "h1"),
             _p("The site calibration moves the predicted resonance of every element of its "
                f"design. Before raising a kit already cut, trim each leg as listed ({sources}). "
-               "Negative values mean add wire back. Trim both legs equally and re-check on the "
-               "analyzer.", "body"), Spacer(1, 4),
-            _table(rows, [80, 110, 72, 76, 76, 60], bold_cols=(3, 4)), PageBreak()]
+               "Trim both legs equally and re-check on the analyzer.", "body"), Spacer(1, 4),
+            _table(rows, [70, 100, 70, 130, 130], bold_cols=(3, 4)), PageBreak()]
 
 
 def log_forms(packet: Packet) -> list[Flowable]:
