@@ -1,27 +1,34 @@
-"""Assemble the Packet: one plain data model of everything the renderers print.
+"""Assemble the Packet: one plain data model of everything the renderers print, computed once.
 
-``build_packet`` computes (the physics once per design, shared by every kit of it); the writers
-in buildsheet.render turn the Packet into files. Nothing here touches the file system.
+``build_packet`` takes the spec (as designed) and the ledger (as built) and computes the physics
+once per design (shared by every kit of it), each element's as-built state (buildsheet.calc.
+asbuilt), the label contents, the record-page rows, the batch trims and a content fingerprint of
+every printable item (a kit sheet, a label, each day-level page), so a changed-only build
+reprints exactly the items whose content changed. The writers in buildsheet.render only format
+the Packet. Nothing here touches the file system.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import json
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
+from typing import Any
 
-from buildsheet.calc.advice import DesignAdvice, design_advice
-from buildsheet.calc.bom import BomLine
-from buildsheet.calc.calibrate import (
-    BatchTrim,
-    Calibration,
-    CutElement,
-    batch_trims,
-    calibrated_prediction,
-    design_fingerprint,
+from buildsheet.calc.asbuilt import (
+    ElementState,
+    advice_lines,
+    design_target_m,
+    element_state,
+    expected_dip_hz,
 )
+from buildsheet.calc.advice import DesignAdvice, design_advice, tuning_words
+from buildsheet.calc.bom import BomLine
+from buildsheet.calc.calibrate import Calibration, calibrated_prediction, design_fingerprint
 from buildsheet.calc.cuts import DesignCuts, ElementCut, design_cuts
+from buildsheet.calc.labels import LabelContent, offline_record, record_url
 from buildsheet.calc.logistics import logistics
 from buildsheet.calc.performance import DesignPerformance, design_performance
 from buildsheet.calc.safety import SITE_CAUTIONS
@@ -29,20 +36,28 @@ from buildsheet.calc.stock import SpoolPlan
 from buildsheet.em.prediction import ModelName
 from buildsheet.em.solve import predict
 from buildsheet.errors import BuildError, Problem
+from buildsheet.records import ElementHistory
 from buildsheet.spec.design import AntennaDesign, Design, Kit
-from buildsheet.spec.units import format_both, format_frequency
+from buildsheet.spec.units import format_both, format_frequency, format_length
 
 #: The kit-sheet cautions (their one home is buildsheet.calc.safety).
 SAFETY_CAUTIONS: tuple[str, ...] = SITE_CAUTIONS
 
+#: Day-level pages of the sheets, each reprinted only when its own content changes.
+DAY_PAGES: tuple[str, ...] = ("cover", "bom", "spool-plan", "stations", "batch-trims")
+
 
 @dataclass(frozen=True)
 class ElementEntry:
-    """One element of one kit, with its stable IDs."""
+    """One element of one kit: stable IDs, the design's cut, its as-built state and advice."""
 
     element_id: str  # "K03-40m"
     kit: Kit
     cut: ElementCut
+    state: ElementState
+    partners: tuple[str, ...] = ()
+    advice: tuple[str, ...] = ()  # the instruction in words (buildsheet.calc.asbuilt)
+    record_rows: tuple[tuple[str, str], ...] = ()  # model / calibrated / measured, side by side
 
     @property
     def leg_ids(self) -> tuple[str, str]:
@@ -61,11 +76,13 @@ class Packet:
     entries: tuple[ElementEntry, ...]  # per kit element, sorted by kit then element order
     warnings: tuple[str, ...]
     kit_boms: dict[str, tuple[BomLine, ...]]  # per kit ID
-    day_bom: tuple[BomLine, ...]  # totals over all kits
-    spool_plan: SpoolPlan
+    day_bom: tuple[BomLine, ...]  # totals over all kits (the whole day, cut or not)
+    spool_plan: SpoolPlan  # legs not cut yet only
     performance: tuple[DesignPerformance, ...]  # per design, same order as cuts
     calibrations: dict[str, Calibration] = field(default_factory=dict)  # by design key
-    batch_trims: tuple[BatchTrim, ...] = ()  # for elements already cut, when calibrated
+    labels: tuple[LabelContent, ...] = ()  # one per leg, kit then element then leg
+    items: dict[str, str] = field(default_factory=dict)  # printable item -> content hash
+    already_cut: tuple[str, ...] = ()  # leg IDs left out of the spool plan (cut before)
     advice: dict[str, DesignAdvice] = field(default_factory=dict)  # worded notes by design key
 
     def performance_for(self, design_key: str) -> DesignPerformance:
@@ -80,6 +97,18 @@ class Packet:
     def kits_of(self, design_key: str) -> tuple[Kit, ...]:
         return tuple(k for k in self.design.kits if k.design_key == design_key)
 
+    @property
+    def batch_trims(self) -> tuple[ElementEntry, ...]:
+        """Elements of calibrated designs with wire already cut: what to do to each leg."""
+        return tuple(e for e in self.entries
+                     if e.kit.design_key in self.calibrations and e.state.is_cut)
+
+    def sheet_item(self, kit: Kit) -> str:
+        """The printable item holding a kit's build sheet and log form."""
+        if self.design.event.layout == "per_design":
+            return f"design:{kit.design_key}"
+        return f"kit:{kit.kit_id}"
+
 
 def element_id(kit: Kit, element_key: str) -> str:
     """Stable element ID: kit ID plus the element key, e.g. "K03-40m"."""
@@ -88,7 +117,7 @@ def element_id(kit: Kit, element_key: str) -> str:
 
 def solve_design(design: AntennaDesign, spec: Design, model: ModelName,
                  calibration: Calibration | None = None) -> DesignCuts:
-    """Predict and cut one design (cached by the model layer on the design's geometry).
+    """Predict and cut one design: the one home of the prescribed cut length.
 
     With a site calibration for the design, the calibrated prediction replaces the model's
     and the trim allowance shrinks to the calibration's residual uncertainty.
@@ -110,24 +139,152 @@ def usable_calibrations(spec: Design, calibrations: Mapping[str, Calibration]) -
             if d.key in calibrations and calibrations[d.key].fingerprint == design_fingerprint(d)}
 
 
+def record_rows(cut: ElementCut, state: ElementState,
+                units: str = "metric") -> tuple[tuple[str, str], ...]:
+    """The record page's model / calibrated / measured rows of one element."""
+    f0, slope = cut.element.frequency_hz, cut.prediction.slope_m_per_hz
+    mean = (state.legs[0].current_m + state.legs[1].current_m) / 2.0
+    model_target = design_target_m(cut, uncalibrated=True)
+    rows = [("Resonant leg, model" + (" before calibration" if cut.calibrated else ""),
+             format_length(cut.uncalibrated_leg_m if cut.calibrated and cut.uncalibrated_leg_m
+                           else cut.predicted_leg_m)),
+            ("Dip expected now, model", format_frequency(
+                expected_dip_hz(mean, model_target, f0, slope)))]
+    if cut.calibrated:
+        rows += [("Resonant leg, calibrated", format_length(cut.predicted_leg_m)),
+                 ("Dip expected now, calibrated", format_frequency(
+                     expected_dip_hz(mean, design_target_m(cut), f0, slope)))]
+    if state.latest_dip_hz is not None:
+        rows.append(("Latest measured dip", format_frequency(state.latest_dip_hz)))
+    rows.append(("Target leg (" + state.target_source + ")",
+                 f"{state.legs[0].target_m:.3f} m"))
+    rows.append(("Tuning", tuning_words(cut, units)))
+    return tuple(rows)
+
+
+def _length_text(metres: float, units: str) -> str:
+    """A label length, primary unit first: "10.43 m / 34 ft 2 5/8 in"."""
+    return format_both(metres, units).replace(" (", " / ").rstrip(")")  # type: ignore[arg-type]
+
+
+def label_contents(spec: Design, entries: Sequence[ElementEntry]) -> tuple[LabelContent, ...]:
+    """One label per leg. A leg not cut shows its prescribed cut; a leg cut shows the length
+    it was cut to and, when trimmed since, "now" its current length."""
+    ev = spec.event
+    out = []
+    for entry in entries:
+        cut = entry.cut
+        freq = format_frequency(cut.element.frequency_hz)
+        for leg_id, side, leg in zip(entry.leg_ids, ("A", "B"), entry.state.legs):
+            as_cut = leg.cut_m if leg.cut_m is not None else leg.prescribed_cut_m
+            length = _length_text(as_cut, ev.units)
+            trimmed = leg.cut_m is not None and abs(leg.current_m - leg.cut_m) > 1e-9
+            now_text = _length_text(leg.current_m, ev.units) if trimmed else ""
+            short = format_length(as_cut, ev.units) + (
+                f" now {format_length(leg.current_m, ev.units)}" if trimmed else "")
+            if ev.record_url:
+                payload = record_url(ev.record_url, entry.kit.kit_id, entry.element_id, leg_id)
+            else:
+                payload = offline_record(leg_id, cut.element.band_label, freq, short,
+                                         entry.kit.kit_id, "")
+            out.append(LabelContent(entry.kit.kit_id, entry.element_id, leg_id, side,  # type: ignore[arg-type]
+                                    cut.element.band_label, freq, length, payload,
+                                    current_length_text=now_text))
+    return tuple(out)
+
+
+def _plain(value: Any) -> Any:
+    """JSON-ready canonical form of frozen data (dataclasses, numpy arrays, complex)."""
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        return {f.name: _plain(getattr(value, f.name)) for f in dataclasses.fields(value)}
+    if isinstance(value, Mapping):
+        return {str(k): _plain(v) for k, v in sorted(value.items(), key=lambda kv: str(kv[0]))}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if hasattr(value, "tolist"):
+        return _plain(value.tolist())
+    if isinstance(value, complex):
+        return [value.real, value.imag]
+    if isinstance(value, float) and value != value:
+        return "nan"
+    if value is None or isinstance(value, (str, int, float, bool)):
+        return value
+    return repr(value)
+
+
+def fingerprint(*parts: Any) -> str:
+    """Content hash of printable data, hex sha256[:16] (floats by repr: any printed change)."""
+    text = json.dumps(_plain(parts), sort_keys=True, separators=(",", ":"), default=repr)
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+def item_fingerprints(spec: Design, cuts: Sequence[DesignCuts],
+                      performance: Sequence[DesignPerformance], entries: Sequence[ElementEntry],
+                      labels: Sequence[LabelContent], kit_boms: Mapping[str, Any],
+                      day_bom: Any, plan: SpoolPlan, warnings: Sequence[str],
+                      calibrations: Mapping[str, Calibration],
+                      advice: Mapping[str, Any] | None = None) -> dict[str, str]:
+    """Content hash of every printable item: ``kit:K01`` (or ``design:KEY`` in the per-design
+    layout: build sheet and log form), ``label:K01-40m-A``, ``nvis:KEY`` and ``day:PAGE``."""
+    ev = spec.event
+    common = (ev.name, ev.date, ev.club, ev.units, ev.paper, ev.layout, ev.record_url,
+              spec.site)
+    advice = advice or {}
+    by_design = {c.design.key: (c, (p, advice.get(c.design.key))) for c, p in zip(cuts, performance)}
+    items: dict[str, str] = {}
+    for key, (c, p) in by_design.items():
+        items[f"nvis:{key}"] = fingerprint(common, c, p)
+    for kit in spec.kits:
+        c, p = by_design[kit.design_key]
+        mine = [e for e in entries if e.kit.kit_id == kit.kit_id]
+        name = f"design:{kit.design_key}" if ev.layout == "per_design" else f"kit:{kit.kit_id}"
+        items[name] = fingerprint(items.get(name, ""), common, c, p, kit, mine,
+                                  kit_boms[kit.kit_id], calibrations.get(kit.design_key))
+    for label in labels:
+        items[f"label:{label.leg_id}"] = fingerprint(spec.labels.stock, label)
+    batch = [e for e in entries if e.kit.design_key in calibrations and e.state.is_cut]
+    items["day:cover"] = fingerprint(common, [k for k in spec.kits], warnings, SAFETY_CAUTIONS)
+    items["day:bom"] = fingerprint(common, day_bom)
+    items["day:spool-plan"] = fingerprint(common, plan)
+    items["day:stations"] = fingerprint(common, plan.spools)
+    items["day:batch-trims"] = fingerprint(common, batch, calibrations)
+    return items
+
+
+def solve_designs(spec: Design, model: ModelName,
+                  calibrations: Mapping[str, Calibration]) -> tuple[DesignCuts, ...]:
+    """Every design predicted and cut (calibrated where a calibration applies), spec order."""
+    return tuple(solve_design(d, spec, model, calibrations.get(d.key)) for d in spec.designs)
+
+
+def element_entries(spec: Design, cuts: Sequence[DesignCuts],
+                    histories: Mapping[str, ElementHistory]) -> tuple[ElementEntry, ...]:
+    """Every kit element with its as-built state, advice and record rows (kit order)."""
+    by_key = {c.design.key: c for c in cuts}
+    entries = []
+    for kit in spec.kits:
+        ids = [element_id(kit, c.element.key) for c in by_key[kit.design_key].elements]
+        for eid, cut in zip(ids, by_key[kit.design_key].elements):
+            state = element_state(eid, cut, histories.get(eid))
+            partners = tuple(i for i in ids if i != eid)
+            entries.append(ElementEntry(eid, kit, cut, state, partners,
+                                        advice_lines(state, cut, spec.event.units, partners),
+                                        record_rows(cut, state, spec.event.units)))
+    return tuple(entries)
+
+
 def build_packet(spec: Design, *, built_at: str, revision: int = 1, model: ModelName = "mom",
                  calibrations: Mapping[str, Calibration] | None = None,
-                 cut_elements: Sequence[CutElement] = ()) -> Packet:
-    """Compute everything to print for ``spec``. Raises BuildError for an unbuildable design.
-
-    ``calibrations`` (by design key) come from the record store; ``cut_elements`` are the
-    elements already cut (current physical legs), which get a batch trim list when their
-    design is calibrated.
-    """
+                 histories: Mapping[str, ElementHistory] | None = None) -> Packet:
+    """Compute everything to print for ``spec`` and the ledger ``histories`` (by element ID).
+    Raises BuildError for an unbuildable design."""
+    histories = histories or {}
     cals = usable_calibrations(spec, calibrations or {})
-    cuts = tuple(solve_design(d, spec, model, cals.get(d.key)) for d in spec.designs)
-    by_key = {c.design.key: c for c in cuts}
-    entries = tuple(
-        ElementEntry(element_id(kit, cut.element.key), kit, cut)
-        for kit in spec.kits for cut in by_key[kit.design_key].elements
-    )
+    cuts = solve_designs(spec, model, cals)
+    entries = element_entries(spec, cuts, histories)
+    already_cut = tuple(leg.leg_id for e in entries for leg in e.state.legs if leg.cut_m is not None)
     warnings = list(spec.warnings) + [w for c in cuts for w in c.warnings]
-    kit_boms, day_bom, plan = logistics(spec, cuts)
+    kit_boms, day_bom, plan = logistics(spec, cuts, already_cut=set(already_cut))
     for buy in plan.to_buy:
         what = (f"buy {buy.spools} more of {buy.spool_length_m:.0f} m" if buy.spools else buy.note)
         warnings.append(f"not enough {buy.material} on hand: {buy.short_m:.1f} m short ({what}); "
@@ -135,28 +292,17 @@ def build_packet(spec: Design, *, built_at: str, revision: int = 1, model: Model
     performance = tuple(design_performance(c, spec.site.ground, spec.exposure) for c in cuts)
     advice = {c.design.key: design_advice(c, p, spec.event.units) for c, p in zip(cuts, performance)}
     warnings += [w for a in advice.values() for w in a.warnings]
-    design_of = {e.element_id: e.kit.design_key for e in entries}
-    trims: list[BatchTrim] = []
-    for c in cuts:
-        if c.design.key in cals:
-            mine = [e for e in cut_elements if design_of.get(e.element_id) == c.design.key]
-            trims += batch_trims(c.design, c.prediction, mine)
     for key in sorted(set(calibrations or {}) - set(cals)):
         warnings.append(f"the stored calibration of design {key} no longer applies (its geometry "
                         "or wire changed); cut lengths are uncalibrated")
-    return Packet(spec, built_at, revision, model, cuts, entries, tuple(warnings), kit_boms,
-                  day_bom, plan, performance, cals, tuple(trims), advice)
+    labels = label_contents(spec, entries)
+    items = item_fingerprints(spec, cuts, performance, entries, labels, kit_boms, day_bom, plan,
+                              warnings, cals, advice)
+    return Packet(spec, built_at, revision, model, cuts, entries, tuple(warnings),
+                  kit_boms, day_bom, plan, performance, cals, labels, items, already_cut, advice)
 
 
 def entry_fingerprint(packet: Packet, entry: ElementEntry) -> str:
-    """Hash of everything printed for one element (sheet row and labels), hex sha256[:16]."""
-    cut = entry.cut
-    record = {
-        "id": entry.element_id, "kit": entry.kit.kit_id, "builder": entry.kit.builder,
-        "design": entry.kit.design_key, "band": cut.element.band_label,
-        "frequency": format_frequency(cut.element.frequency_hz),
-        "cut": format_both(cut.cut_leg_m, packet.design.event.units),
-        "predicted": round(cut.predicted_leg_m, 4), "trim": round(cut.trim_m, 4),
-        "bearing": cut.element.bearing_deg, "url": packet.design.event.record_url,
-    }
-    return hashlib.sha256(json.dumps(record, sort_keys=True).encode()).hexdigest()[:16]
+    """Hash of everything printed for one element (its sheet rows, state and labels)."""
+    labels = [lb for lb in packet.labels if lb.element_id == entry.element_id]
+    return fingerprint(entry, labels, packet.design.event.units, packet.design.event.record_url)

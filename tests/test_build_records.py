@@ -23,6 +23,7 @@ from buildsheet.build import build, default_store
 from buildsheet.cli.main import demo_spec_text, main
 from buildsheet.render.site import page_name
 from buildsheet.spec.units import format_frequency, format_length
+from buildsheet.store import exchange
 from buildsheet.store import ledger as rec
 from buildsheet.store.manifest import read_manifest
 
@@ -108,14 +109,15 @@ def test_measure_trim_rebuild_shows_current_length(tmp_path: Path, capsys) -> No
     for payload, now in zip(sorted(payloads), (now_a, now_b)):
         assert f"now {format_length(now, units)}" in payload
         assert f"cut {format_length(cut, units)}" in payload
-        assert "rev 2" in payload
+        assert "rev" not in payload  # no revision: an unchanged label stays byte-identical
     text = pdf_text(out / "labels.pdf")
     for now in (now_a, now_b):
         assert f"NOW {format_length(now, units)}" in text.replace("\n", " ")
     page = (out / "site" / page_name("K01-40m")).read_text(encoding="utf-8")
     assert format_frequency(6.98e6) in page and "gusty" in page and "1.70" in page
     assert page.count("<td>removed</td>") == 2
-    assert f'id="current-a">{now_a:.3f} m<' in page and f'id="current-b">{now_b:.3f} m<' in page
+    assert f'id="K01-40m-A-now">{now_a:.3f} m<' in page
+    assert f'id="K01-40m-B-now">{now_b:.3f} m<' in page
     with rec.open_store(store) as st:
         assert rec.integrity_check(st) == ["ok"]  # SQLite's own check
         prints = rec.element_history(st, "K01-40m").prints
@@ -244,7 +246,7 @@ def test_every_label_qr_leads_to_a_generated_page(tmp_path: Path, template: str 
             cut = entries[eid].cut
             assert band_line == f"{cut.element.band_label} {format_frequency(cut.element.frequency_hz)}"
             assert format_frequency(cut.element.frequency_hz) in page
-            assert f'id="cut-length">{cut.cut_leg_m:.3f} m<' in page
+            assert f"{cut.cut_leg_m:.3f} m" in page  # the prescribed cut (not cut yet)
 
 
 # --------------------------------------------------------------------------- bad input
@@ -252,7 +254,7 @@ def test_every_label_qr_leads_to_a_generated_page(tmp_path: Path, template: str 
 
 def _snapshot(store: Path) -> str:
     with rec.open_store(store, create=False) as st:
-        return json.dumps(rec.export_json(st), sort_keys=True)
+        return json.dumps(exchange.export_json(st), sort_keys=True)
 
 
 @pytest.mark.parametrize("argv, words", [

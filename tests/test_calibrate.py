@@ -26,6 +26,7 @@ from buildsheet.errors import BuildError
 from buildsheet.spec.design import AntennaDesign
 from buildsheet.spec.reader import load_spec
 from buildsheet.spec.wires import BUILTIN_WIRES
+from buildsheet.store import exchange
 from buildsheet.store import ledger as rec
 
 T0 = datetime(2027, 3, 13, 10, 0, tzinfo=UTC)
@@ -169,32 +170,6 @@ def test_clean_observations_flag_nothing(design: AntennaDesign) -> None:
     assert c.outliers == () and len(c.source_ids) == 4
 
 
-def test_batch_trims_land_on_the_calibrated_prediction(design: AntennaDesign,
-                                                       calibration: cal.Calibration) -> None:
-    """A kit cut to the uncalibrated sheet (3 % trim allowance, REFERENCES 11 common practice)
-    with one leg already trimmed: after the batch trim each electrical leg equals the
-    calibrated prediction within 1 mm (issue 7 criterion)."""
-    a = design.allowances
-    calibrated = cal.calibrated_prediction(design, calibration)
-    cut = [cal.CutElement(f"K04-{e.key}", e.key, e.leg_length_m * 1.03 + a.termination_m + a.feed_m,
-                          e.leg_length_m * 1.03 + a.termination_m + a.feed_m - 0.02)
-           for e in predict_mom(design, ASSUMED).elements]
-    trims = cal.batch_trims(design, calibrated, cut)
-    for t, c in zip(trims, cut, strict=True):
-        want = calibrated.element(c.element_key).leg_length_m
-        for leg, removed in ((c.leg_a_m, t.remove_a_m), (c.leg_b_m, t.remove_b_m)):
-            assert abs(cal.electrical_leg_m(design, leg - removed, leg - removed) - want) < 1e-3
-        assert t.action == "remove"
-        assert t.remove_a_m - t.remove_b_m == pytest.approx(0.02, abs=1e-9)
-    # An element cut to the corrected cut length (calibrated leg + trim + allowances) trimmed by
-    # its batch trim also lands on the calibrated leg.
-    e = calibrated.elements[0]
-    corrected = e.leg_length_m * (1 + calibration.uncertainty) + a.termination_m + a.feed_m
-    t = cal.batch_trims(design, calibrated, [cal.CutElement("K05-75m", "75m", corrected,
-                                                            corrected)])[0]
-    assert abs(corrected - t.remove_a_m - a.termination_m - a.feed_m - e.leg_length_m) < 1e-3
-
-
 def test_a_calibration_for_other_geometry_or_wire_is_not_applied(
         design: AntennaDesign, calibration: cal.Calibration, tmp_path: Path) -> None:
     other_wire = replace(design, wire=BUILTIN_WIRES["awg18-pvc"])
@@ -227,12 +202,12 @@ def test_store_keeps_every_calibration_and_returns_the_latest(tmp_path: Path) ->
         assert [c.id for c in rec.list_calibrations(store, "d")] == [first.id, first.id + 1]
         with pytest.raises(sqlite3.IntegrityError, match="never deleted"):
             store.conn.execute("DELETE FROM calibrations")
-        data = rec.export_json(store)
+        data = exchange.export_json(store)
     assert len(data["calibrations"]) == 2
     with rec.open_store(tmp_path / "copy.records.sqlite") as copy:
-        report = rec.import_json(copy, data)
+        report = exchange.import_json(copy, data)
         assert report.calibrations == 2
-        assert rec.import_json(copy, data).calibrations == 0  # exact duplicates skipped
+        assert exchange.import_json(copy, data).calibrations == 0  # exact duplicates skipped
 
 
 def test_a_version_1_store_migrates_and_keeps_its_data(tmp_path: Path,
@@ -267,6 +242,8 @@ def _store_with_kits(spec_path: Path, design: AntennaDesign) -> Path:
         rec.sync_elements(store, rows, 1, T0)
         for o in observe(design, "K01", legs, ("75m", "40m")):
             rec.add_measurement(store, o.element_id, o.dip_hz, 1.3, "", T0)
+        for e in design.elements:
+            rec.confirm_cut(store, f"K02-{e.key}", ("A", "B"), T0)
     return path
 
 
@@ -277,7 +254,7 @@ def test_cli_calibrates_stores_and_prints(spec_path: Path, design: AntennaDesign
                 "--from", "K01-40m"]) == 0
     out = capsys.readouterr().out
     assert "site behaves like wet ground" in out
-    assert "K01-75m: dip" in out and "60m-us: leg" in out and "K02-60m-us: A" in out
+    assert "K01-75m: dip" in out and "60m-us: leg" in out and "K02-60m-us-A: now" in out
     with rec.open_store(path) as store:
         stored = rec.latest_calibration(store, "nvis3", cal.design_fingerprint(design))
     assert stored is not None and stored.sources == ("K01-75m", "K01-40m")

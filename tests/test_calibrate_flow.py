@@ -5,7 +5,6 @@ from __future__ import annotations
 
 from pypdf import PdfReader
 
-from buildsheet.calc.cuts import expected_dip_hz
 from buildsheet.cli.main import main
 from tests.test_build_records import small_spec
 
@@ -25,7 +24,7 @@ def test_measure_calibrate_and_repacket(tmp_path, capsys, monkeypatch):
     # Readings a little above where the model expects the first dip (the site is better ground
     # than assumed); plausible analyzer readings for this test, not reference data.
     for e in k01:
-        dip = expected_dip_hz(e.cut) * 1.003
+        dip = e.state.expected_dip_hz * 1.003
         assert main(["measure", e.element_id, "--dip", f"{dip / 1e3:.1f} kHz", "--swr", "1.5",
                      "--store", str(first.store)]) == 0
     capsys.readouterr()
@@ -37,9 +36,9 @@ def test_measure_calibrate_and_repacket(tmp_path, capsys, monkeypatch):
     text = _text(out / "sheets.pdf")
     assert "CALIBRATED" in text and "Batch trims for kits already cut" in text
     assert k01[0].element_id in text
-    # The log forms show the model's expected dip beside the calibrated one.
-    assert "Expected dip" in text and "cal. " in text
+    # The log forms show the dip expected of the wire as it is now.
+    assert "Expected dip" in text
     page = (out / "site" / f"{k01[0].element_id}.html").read_text(encoding="utf-8")
     for label in ("Resonant leg, model before calibration", "Resonant leg, calibrated",
-                  "First dip expected as cut, calibrated", "Latest measured dip"):
+                  "Dip expected now, calibrated", "Latest measured dip"):
         assert label in page

@@ -96,11 +96,14 @@ def test_usage_error_exits_2():
 
 def test_python_dash_m_demo(tmp_path):
     env = dict(os.environ, SOURCE_DATE_EPOCH="1800000000")
-    run = subprocess.run([sys.executable, "-m", "buildsheet", "demo", "-o", str(tmp_path / "d")],
-                         capture_output=True, text=True, env=env, timeout=300)
+    run = subprocess.run([sys.executable, "-m", "buildsheet", "demo", "-o", "out/demo"],
+                         capture_output=True, text=True, env=env, timeout=300, cwd=tmp_path)
     assert run.returncode == 0, run.stderr
-    assert (tmp_path / "d" / "packet" / "sheets.pdf").stat().st_size > 10_000
-    assert (tmp_path / "d" / "packet" / "labels.pdf").stat().st_size > 10_000
+    assert (tmp_path / "out" / "demo" / "sheets.pdf").stat().st_size > 10_000
+    assert (tmp_path / "out" / "demo" / "labels.pdf").stat().st_size > 10_000
+    # The spec and its record store sit in the working folder, not in the disposable packet.
+    assert (tmp_path / "demo.toml").is_file() and (tmp_path / "demo.records.sqlite").is_file()
+    assert not list((tmp_path / "out").rglob("*.sqlite"))
 
 
 def test_same_spec_gives_identical_pdfs(tmp_path, demo_spec):
@@ -113,7 +116,7 @@ def test_same_spec_gives_identical_pdfs(tmp_path, demo_spec):
 
 def test_record_commands_are_registered(capsys):
     """measure, trim, export and import are subcommands of the one entry point (argparse)."""
-    for command in ("measure", "trim", "export", "import"):
+    for command in ("cut", "measure", "trim", "void", "history", "export", "import"):
         with pytest.raises(SystemExit) as info:
             main([command, "--help"])
         assert info.value.code == 0
@@ -135,6 +138,6 @@ def test_packet_prints_changes_and_keeps_the_store_beside_the_spec(tmp_path, dem
                  "--store", str(other), "--changed-only"]) == 0
     second = capsys.readouterr().out
     assert other.is_file() and "revision 1 (previous 1)" in second
-    assert "nothing new or changed" in second
+    assert "nothing changed" in second
     assert sorted(p.name for p in out.iterdir()) == ["labels.pdf", "manifest.json", "sheets.pdf",
                                                      "site"]

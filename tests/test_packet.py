@@ -92,6 +92,8 @@ def test_per_design_layout_imperial_and_icnirp(tmp_path, demo_spec):
 
 
 def test_calibrated_packet_cuts_and_batch_trims(tmp_path, demo_spec):
+    from buildsheet.records import ElementHistory, ElementRow, LegCut, Trim
+
     """With a stored site calibration the packet prints calibrated cuts, a smaller trim
     allowance, and batch trims that bring cut legs to the calibrated prediction (issue 7:
     consistent to within a millimetre)."""
@@ -109,10 +111,17 @@ def test_calibrated_packet_cuts_and_batch_trims(tmp_path, demo_spec):
         "phonefan", cal.design_fingerprint(fan), GROUND_CLASSES["wet"], "wet", (), "medium dry",
         (), (), 0.004, ("K01-75m", "K01-40m"), ())
     k01 = [e for e in plain.entries if e.kit.kit_id == "K01"]
-    cut = [cal.CutElement(e.element_id, e.cut.element.key, e.cut.cut_leg_m, e.cut.cut_leg_m - 0.02)
-           for e in k01]
+    # K01 was cut to the uncalibrated sheet and leg B already trimmed by 20 mm.
+    t0 = "2027-03-01T09:00:00+00:00"
+    histories = {e.element_id: ElementHistory(
+        ElementRow(e.element_id, "K01", "phonefan", e.cut.element.key, e.cut.element.frequency_hz,
+                   e.cut.element.low_hz, e.cut.element.high_hz, e.cut.predicted_leg_m,
+                   e.cut.cut_leg_m, e.cut.prediction.slope_m_per_hz),
+        trims=(Trim(1, e.element_id, "B", 0.02, t0, ""),),
+        cuts=tuple(LegCut(i, e.element_id, s, e.cut.cut_leg_m, 1, "confirmed", t0, "")
+                   for i, s in enumerate("AB"))) for e in k01}
     packet = build_packet(spec, built_at="t", calibrations={"phonefan": calibration},
-                          cut_elements=cut)
+                          histories=histories)
     fan_cuts = packet.cuts_for("phonefan")
     assert fan_cuts.prediction.calibrated_from == ("K01-75m", "K01-40m")
     for c, before in zip(fan_cuts.elements, plain.cuts_for("phonefan").elements):
@@ -120,19 +129,23 @@ def test_calibrated_packet_cuts_and_batch_trims(tmp_path, demo_spec):
         assert c.trim_fraction < before.trim_fraction
         assert c.predicted_leg_m != pytest.approx(before.predicted_leg_m, abs=1e-3)
     a = fan.allowances
-    assert {t.element_id for t in packet.batch_trims} == {e.element_id for e in k01}
-    for t, c in zip(packet.batch_trims, fan_cuts.elements):
-        after_a = t.leg_a_m - t.remove_a_m - a.termination_m - a.feed_m
-        after_b = t.leg_b_m - t.remove_b_m - a.termination_m - a.feed_m
-        assert after_a == pytest.approx(c.predicted_leg_m, abs=1e-3)
-        assert after_b == pytest.approx(c.predicted_leg_m, abs=1e-3)
+    assert {e.element_id for e in packet.batch_trims} == {e.element_id for e in k01}
+    for entry, c in zip(packet.batch_trims, fan_cuts.elements):
+        leg_a, leg_b = entry.state.legs
+        assert (leg_a.cut_m, leg_b.cut_m) == (k01[0 if c.element.key == "75m" else 1].cut.cut_leg_m,) * 2
+        assert leg_a.action.amount_m - leg_b.action.amount_m == pytest.approx(0.02, abs=1e-9)
+        # Following the advice lands each electrical leg on the calibrated prediction (1 mm).
+        for leg in (leg_a, leg_b):
+            assert leg.action.kind == "shorten"
+            after = leg.current_m - leg.action.amount_m - a.termination_m - a.feed_m
+            assert after == pytest.approx(c.predicted_leg_m, abs=1e-3)
     # The sixty design has no calibration and keeps its cuts.
     assert packet.cuts_for("sixty").elements[0].cut_leg_m == plain.cuts_for("sixty").elements[0].cut_leg_m
     out = tmp_path / "s.pdf"
     render_sheets(packet, out)
     text = " ".join(" ".join(p.extract_text().split()) for p in PdfReader(out).pages)
     assert "CALIBRATED" in text and "Batch trims for kits already cut" in text
-    assert "cal. " in text  # calibrated expected dip on the log forms
+    assert "shorten this leg by" in text  # the batch trims in words
 
 
 def test_stale_calibration_is_not_applied(demo_spec):

@@ -15,6 +15,8 @@ import pytest
 from buildsheet.cli.main import main as run
 from buildsheet.cli.records import find_store
 from buildsheet.errors import RecordError
+from buildsheet.calc import asbuilt
+from buildsheet.store import exchange
 from buildsheet.store import ledger as rec
 
 T0 = datetime(2024, 5, 4, 9, 30, tzinfo=UTC)
@@ -50,58 +52,72 @@ def store_path(tmp_path: Path) -> Path:
 
 def dump(path: Path) -> dict:
     with rec.open_store(path, create=False) as store:
-        return rec.export_json(store)
+        return exchange.export_json(store)
 
 
-# ----------------------------------------------------------------------------- trim advice
+# ----------------------------------------------------------------------------- as built
 
 # Whole-dipole change for a 100 kHz move (REFERENCES 11, common practice): 114 cm at 3.55 MHz,
 # 94 cm at 3.9 MHz, 50 cm at 5.36 MHz, 28 cm at 7.1 MHz; half of it per leg.
 @pytest.mark.parametrize("f_mhz, whole_cm", [(3.55, 114), (3.9, 94), (5.36, 50), (7.1, 28)])
-def test_trim_advice_size_matches_published_rule(f_mhz: float, whole_cm: float) -> None:
+def test_reading_target_matches_published_rule(f_mhz: float, whole_cm: float) -> None:
     f = f_mhz * 1e6
-    row = element("K01-x", f, f * 0.97, f * 1.03)
-    advice = rec.trim_advice(row, f - 100e3)  # dip 100 kHz low: element long
-    assert advice.action == "remove"
-    assert advice.per_leg_m > 0
+    leg = dipole_leg_m(f)
+    target = asbuilt.reading_target_m(leg, f - 100e3, f, -leg / f)  # dip 100 kHz low: long
+    action = asbuilt.leg_action(leg, target, is_cut=True, termination_m=0.1)
+    assert action.kind == "shorten"
     # The published figures are rounded to the centimetre: allow 1 cm on the whole dipole.
-    assert abs(2 * advice.per_leg_m - whole_cm / 100) <= 0.01
-    assert 0 < advice.first_step_m < advice.per_leg_m  # part of the amount per step
-    assert any("stay long" in line for line in advice.lines)
+    assert abs(2 * action.amount_m - whole_cm / 100) <= 0.01
+    assert action.words("metric").startswith("shorten each leg by ")
 
 
-def test_trim_advice_sign_high_dip_adds_back() -> None:
-    advice = rec.trim_advice(E40, 7.2e6)  # dip above design: element short
-    assert advice.action == "add back"
-    assert advice.per_leg_m < 0
+def test_high_dip_lengthens_or_recuts() -> None:
+    f = 7.1e6
+    leg = dipole_leg_m(f)
+    target = asbuilt.reading_target_m(leg, 7.2e6, f, -leg / f)  # dip above design: short
     # Same published rule (REFERENCES 11): 14 cm per leg per 100 kHz at 7.1 MHz.
-    assert abs(advice.per_leg_m + 0.14) <= 0.005
+    assert target - leg == pytest.approx(0.14, abs=0.005)
+    assert asbuilt.leg_action(leg, target, is_cut=True, termination_m=0.20).kind == "lengthen"
+    assert asbuilt.leg_action(leg, target, is_cut=True, termination_m=0.05).kind == "re-cut"
+    assert asbuilt.leg_action(leg, leg + 0.001, is_cut=True, termination_m=0.1).kind == "none"
+    assert asbuilt.leg_action(leg, target, is_cut=False, termination_m=0.1).kind == "cut"
 
 
-def test_trim_advice_uses_the_model_slope_and_names_partners() -> None:
-    row = replace(E40, slope_m_per_hz=-2.0e-6)  # a model slope steeper than L/f
-    advice = rec.trim_advice(row, 7.05e6)
-    assert advice.per_leg_m == pytest.approx(2.0e-6 * 50e3)  # dL = slope * (f_design - f_dip)
-    assert advice.recheck == ("K03-80m",)
-    assert any("K03-80m" in line for line in advice.lines)
+def test_expected_dip_of_the_read_wire_is_the_reading() -> None:
+    """Round trip: the wire a reading was taken on is expected to dip where it was read."""
+    leg, f0, slope = 10.4, 7.15e6, -1.4e-6
+    for dip in (6.95e6, 7.15e6, 7.3e6):
+        target = asbuilt.reading_target_m(leg, dip, f0, slope)
+        assert asbuilt.expected_dip_hz(leg, target, f0, slope) == pytest.approx(dip, rel=1e-12)
 
 
-def test_trim_advice_on_frequency_and_fallback_slope() -> None:
-    assert rec.trim_advice(E40, 7.1e6 + 2e3).action == "none"
-    flat = replace(E40, slope_m_per_hz=0.0)
-    advice = rec.trim_advice(flat, 7.0e6)
-    assert any("proportional rule" in line for line in advice.lines)
-    assert abs(advice.per_leg_m - 0.14) <= 0.01  # REFERENCES 11 (common practice)
-
-
-def test_current_leg_is_cut_minus_trims(store_path: Path) -> None:
+def test_first_trim_confirms_the_cut_and_current_is_cut_minus_trims(store_path: Path) -> None:
     with rec.open_store(store_path) as store:
         rec.add_trim(store, "K03-40m", "both", 0.035, "", T0)
         rec.add_trim(store, "K03-40m", "A", 0.010, "", T0)
         rec.add_trim(store, "K03-40m", "B", -0.005, "spliced", T0)
         h = rec.element_history(store, "K03-40m")
+    assert [(c.leg, c.how, c.length_m) for c in h.cuts] == [
+        ("A", "first trim", E40.cut_leg_m), ("B", "first trim", E40.cut_leg_m)]
     assert h.current_leg_m("A") == pytest.approx(E40.cut_leg_m - 0.045)
     assert h.current_leg_m("B") == pytest.approx(E40.cut_leg_m - 0.030)
+
+
+def test_adding_back_more_than_was_trimmed_is_refused(store_path: Path) -> None:
+    with rec.open_store(store_path) as store:
+        rec.add_trim(store, "K03-40m", "both", 0.02, "", T0)
+        with pytest.raises(RecordError, match="only 20 mm were trimmed"):
+            rec.add_trim(store, "K03-40m", "A", -0.03, "", T0)
+
+
+def test_void_withdraws_a_reading_and_keeps_it(store_path: Path) -> None:
+    with rec.open_store(store_path) as store:
+        m = rec.add_measurement(store, "K03-40m", 7.05e6, None, "typo", T0)
+        rec.void_record(store, "measurement", m.id, "wrong element", T0)
+        h = rec.element_history(store, "K03-40m")
+        assert h.measurements == () and [v.id for v in h.voided] == [m.id]
+        with pytest.raises(RecordError, match="already void"):
+            rec.void_record(store, "measurement", m.id, "", T0)
 
 
 # ----------------------------------------------------------------------------- store
@@ -122,7 +138,8 @@ def test_nothing_is_ever_deleted(store_path: Path) -> None:
         rec.add_measurement(store, "K03-40m", 7.05e6, None, "", T0)
         rec.add_trim(store, "K03-40m", "A", 0.01, "", T0)
         rec.record_print(store, 1, "K03-40m", "label", "0" * 64, "labels.pdf", T0)
-        for table in ("elements", "measurements", "trims", "prints"):
+        rec.void_record(store, "trim", 1, "", T0)
+        for table in ("elements", "measurements", "trims", "prints", "cuts", "voids"):
             with pytest.raises(sqlite3.IntegrityError, match="never deleted"):
                 store.conn.execute(f"DELETE FROM {table}")
 
@@ -142,8 +159,10 @@ def test_archive_on_drop_and_restore(store_path: Path) -> None:
         assert rec.get_element(store, "K03-80m").status == "active"
 
 
-def test_sync_updates_changed_but_keeps_cut_of_measured_wire(store_path: Path) -> None:
+def test_sync_rewrites_the_design_never_the_wire(store_path: Path) -> None:
+    """A new revision updates the prescribed cut; the length a leg was cut to stays."""
     with rec.open_store(store_path) as store:
+        rec.confirm_cut(store, "K03-40m", ("A", "B"), T0)
         rec.add_trim(store, "K03-40m", "both", 0.02, "", T0)
         new40 = replace(E40, predicted_leg_m=E40.predicted_leg_m * 0.995,
                         cut_leg_m=E40.cut_leg_m * 0.995)
@@ -151,11 +170,11 @@ def test_sync_updates_changed_but_keeps_cut_of_measured_wire(store_path: Path) -
                         cut_leg_m=E80.cut_leg_m * 0.99)
         report = rec.sync_elements(store, [new40, new80], 2, T0)
         assert report.changed == ("K03-40m", "K03-80m")
-        assert report.kept_cut == ("K03-40m",)
-        e40, e80 = rec.get_element(store, "K03-40m"), rec.get_element(store, "K03-80m")
-    assert e40.predicted_leg_m == new40.predicted_leg_m
-    assert e40.cut_leg_m == E40.cut_leg_m and e40.spec_revision == 2
-    assert e80.cut_leg_m == new80.cut_leg_m
+        e40 = rec.get_element(store, "K03-40m")
+        h = rec.element_history(store, "K03-40m")
+    assert e40.cut_leg_m == new40.cut_leg_m and e40.spec_revision == 2
+    assert h.leg_cut("A").length_m == E40.cut_leg_m  # as built: unchanged
+    assert h.current_leg_m("A") == pytest.approx(E40.cut_leg_m - 0.02)
 
 
 def test_unknown_id_suggests_nearest(store_path: Path) -> None:
@@ -188,14 +207,15 @@ def test_export_import_round_trip(store_path: Path, tmp_path: Path) -> None:
         rec.add_trim(store, "K03-40m", "both", 0.12, "", T0 + timedelta(minutes=5))
         rec.add_measurement(store, "K03-40m", 7.09e6, 1.1, "", T0 + timedelta(minutes=9))
         rec.record_print(store, 1, "K03-40m", "sheet", "ab" * 32, "sheets/K03-40m.pdf", T0)
-        data = rec.export_json(store)
+        data = exchange.export_json(store)
     text = json.dumps(data)  # a plain JSON backup
     copy = tmp_path / "restored.records.sqlite"
     with rec.open_store(copy) as store:
-        report = rec.import_json(store, json.loads(text))
-        assert (report.elements, report.measurements, report.trims, report.prints) == (2, 2, 1, 1)
-        again = rec.import_json(store, json.loads(text))  # idempotent
-        assert again.skipped == 6 and again.measurements == 0
+        report = exchange.import_json(store, json.loads(text))
+        assert (report.elements, report.measurements, report.trims, report.prints,
+                report.cuts) == (2, 2, 1, 1, 2)
+        again = exchange.import_json(store, json.loads(text))  # idempotent
+        assert again.skipped == 8 and again.measurements == 0
         assert rec.integrity_check(store) == ["ok"]
     assert dump(copy) == data
 
@@ -207,9 +227,9 @@ def test_import_rejects_bad_data_and_changes_nothing(store_path: Path) -> None:
                             "swr": None, "note": ""}]  # unknown element: foreign key
     with rec.open_store(store_path) as store:
         with pytest.raises(RecordError, match="nothing was changed"):
-            rec.import_json(store, bad)
+            exchange.import_json(store, bad)
         with pytest.raises(RecordError, match="not a buildsheet records export"):
-            rec.import_json(store, {"format": "something else"})
+            exchange.import_json(store, {"format": "something else"})
     assert dump(store_path) == before
 
 
@@ -220,12 +240,14 @@ def test_measure_and_trim_commands(store_path: Path, capsys: pytest.CaptureFixtu
     store = str(store_path)
     assert run(["measure", "K03-40m", "--dip", "7.00MHz", "--swr", "1.5", "--store", store]) == 0
     out = capsys.readouterr().out
-    assert "Remove about" in out and "K03-80m" in out
+    assert "recorded" in out and "give --spec SPEC" in out  # a store with no packet: no advice
     assert run(["trim", "K03-40m-A", "--removed", "35mm", "--store", store]) == 0
-    assert run(["trim", "K03-40m", "--added", "5 mm", "--leg", "B", "--store", store]) == 0
+    assert run(["trim", "K03-40m", "--added", "5 mm", "--leg", "A", "--store", store]) == 0
+    assert run(["trim", "K03-40m", "--added", "5 mm", "--leg", "B", "--store", store]) == 1
+    assert "only 0 mm were trimmed" in capsys.readouterr().err  # nothing to add back on B
     data = dump(store_path)
     assert [(t["leg"], round(t["delta_m"], 6)) for t in data["trims"]] == [("A", 0.035),
-                                                                           ("B", -0.005)]
+                                                                           ("A", -0.005)]
     assert data["measurements"][0]["dip_hz"] == 7.0e6
 
 

@@ -90,11 +90,11 @@ def test_element_page_content_and_escaping(tmp_path: Path) -> None:
     html = render_site([h40], BUILT)["K03-40m.html"]
     a = audit(html)
     cut = h40.element.cut_leg_m
-    assert a.ids["cut-length"] == f"{cut:.3f} m"
-    assert a.ids["current-a"] == f"{cut - 0.15:.3f} m"
+    assert a.ids["K03-40m-A-cut"] == f"{cut:.3f} m"  # the first reading confirmed the cut
+    assert a.ids["K03-40m-A-now"] == f"{cut - 0.15:.3f} m"
     # Feet-inches independently: 1 in = 25.4 mm exactly; nearest 1/8 inch.
     feet = int(cut / INCH) // 12
-    cut_row = html.split('id="cut-length"')[1].split("</tr>")[0]
+    cut_row = html.split('id="K03-40m-A-cut"')[1].split("</td>")[0]
     assert f"{feet} ft" in cut_row
     assert "6.950 MHz" in html and "-150.0 kHz" in html
     assert "removed" in html and "sheets/K03-nvis-fan.pdf" in html
@@ -148,5 +148,5 @@ def test_record_page_renders_in_a_real_browser(tmp_path: Path) -> None:
     assert done.returncode == 0, done.stderr[-2000:]
     dom = done.stdout
     cut = f"{histories[0].element.cut_leg_m:.3f} m"
-    assert f'id="cut-length">{cut}<' in dom  # the DOM the browser built, not our source text
+    assert f'id="K03-40m-A-cut">{cut}<' in dom  # the DOM the browser built, not our source
     assert "<tbody>" in dom  # the parser built table sections from our markup

@@ -61,8 +61,6 @@ MAD_FLOOR: float = 0.0015
 #: Floor on the residual uncertainty of a calibration (fraction; from memory: reading and
 #: cutting scatter plus what one ground model cannot capture across the field).
 UNCERTAINTY_FLOOR: float = 0.003
-#: Batch trims smaller than this are reported as "none" (the amount is still given), m.
-TRIM_NONE_BELOW_M: float = 0.002
 #: Newton iterations for a model resonance (each: two MoM solves).
 RESONANCE_ITERATIONS: int = 4
 #: Relative frequency step for dX/df.
@@ -138,35 +136,6 @@ class Calibration:
 
     def fitted_ground(self) -> Ground:
         return Ground("real", self.ground)
-
-
-@dataclass(frozen=True)
-class CutElement:
-    """An element already cut: physical legs as they stand (cut minus trims), m."""
-
-    element_id: str
-    element_key: str
-    leg_a_m: float
-    leg_b_m: float
-
-
-@dataclass(frozen=True)
-class BatchTrim:
-    """What to do to one cut element before raising it. ``remove_*_m`` > 0: cut off; < 0: add
-    back. ``target_leg_m`` is the physical leg (electrical + termination + feed), m."""
-
-    element_id: str
-    element_key: str
-    leg_a_m: float
-    leg_b_m: float
-    target_leg_m: float
-    target_electrical_m: float
-    remove_a_m: float
-    remove_b_m: float
-    action: Literal["remove", "add back", "none", "mixed"]
-
-
-# --------------------------------------------------------------------------- pure helpers
 
 
 def design_fingerprint(design: AntennaDesign) -> str:
@@ -452,29 +421,6 @@ def calibrated_prediction(design: AntennaDesign, calibration: Calibration) -> De
         notes=base.notes + tuple(f"excluded {o.element_id}: {o.reason}" for o in calibration.outliers),
         calibrated_from=calibration.source_ids,
     )
-
-
-def batch_trims(design: AntennaDesign, calibrated: DesignPrediction,
-                elements: Sequence[CutElement]) -> tuple[BatchTrim, ...]:
-    """Per cut element, wire to remove from (or add back to) each leg so that its electrical leg
-    equals the calibrated prediction: remove = leg - (calibrated + termination + feed), m."""
-    a = design.allowances
-    keys = {e.key for e in calibrated.elements}
-    out = []
-    for c in elements:
-        if c.element_key not in keys:
-            raise BuildError(f"{c.element_id}: element {c.element_key!r} is not in design "
-                             f"{design.key!r}")
-        target_e = calibrated.element(c.element_key).leg_length_m
-        target = target_e + a.termination_m + a.feed_m
-        ra, rb = c.leg_a_m - target, c.leg_b_m - target
-        sizes = [r for r in (ra, rb) if abs(r) >= TRIM_NONE_BELOW_M]
-        action: Literal["remove", "add back", "none", "mixed"] = (
-            "none" if not sizes else "remove" if all(r > 0 for r in sizes)
-            else "add back" if all(r < 0 for r in sizes) else "mixed")
-        out.append(BatchTrim(c.element_id, c.element_key, c.leg_a_m, c.leg_b_m, target, target_e,
-                             ra, rb, action))
-    return tuple(out)
 
 
 # --------------------------------------------------------------------------- JSON

@@ -125,17 +125,6 @@ def printed_parts(cut: ElementCut, units: str) -> PrintedParts:
     return PrintedParts(n["leg"] * q, trim * q, n["term"] * q, n["feed"] * q, n["cut"] * q)
 
 
-def expected_dip_hz(cut: ElementCut, *, uncalibrated: bool = False) -> float:
-    """Where the element as cut (long by its trim allowance) should first dip, Hz.
-
-    First order in the model's tuning slope: f = f_design + (leg as cut - resonant leg) / slope.
-    With ``uncalibrated`` the resonant leg is the model's before any site calibration.
-    """
-    as_cut = cut.predicted_leg_m + cut.trim_m
-    ref = cut.uncalibrated_leg_m if (uncalibrated and cut.uncalibrated_leg_m) else cut.predicted_leg_m
-    return cut.element.frequency_hz + (as_cut - ref) / cut.prediction.slope_m_per_hz
-
-
 def design_cuts(design: AntennaDesign, prediction: DesignPrediction,
                 closed: DesignPrediction, uncalibrated: DesignPrediction | None = None) -> DesignCuts:
     """All element cuts of ``design``; geometry problems raise ValueError with the element.

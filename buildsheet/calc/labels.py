@@ -199,7 +199,8 @@ def offline_record(
     revision: int | str,
 ) -> str:
     """Compact plain-text record for a phone to show offline (about 60-90 characters)."""
-    return f"{leg_id}\n{band_name} {frequency_text}\ncut {cut_text}\nkit {kit_id} rev {revision}"
+    rev = f" rev {revision}" if revision != "" else ""
+    return f"{leg_id}\n{band_name} {frequency_text}\ncut {cut_text}\nkit {kit_id}{rev}"
 
 
 # --- QR symbols and the fit check ----------------------------------------------------------

@@ -3,12 +3,12 @@ every cut of the day and the spool cut plan (buildsheet.calc.stock does the pack
 
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping, Set
 
 from buildsheet.calc.bom import BomLine, KitNeeds, WireNeed, day_bom, kit_bom
 from buildsheet.calc.cuts import DesignCuts
 from buildsheet.calc.feedline import coax
-from buildsheet.calc.stock import Cut, SpoolPlan, StockItem, plan_spools
+from buildsheet.calc.stock import DEFAULT_TOLERANCE_M, Cut, SpoolPlan, StockItem, plan_spools
 from buildsheet.spec.design import Design, Kit
 
 #: Material key for tie-off cord in the spec's [[stock]] tables.
@@ -34,31 +34,56 @@ def kit_needs(kit: Kit, cuts: DesignCuts) -> KitNeeds:
     )
 
 
-def day_cuts(spec: Design, cuts_by_design: dict[str, DesignCuts]) -> tuple[Cut, ...]:
-    """Every wire leg and tie-off cord cut of the day, with stable IDs (K03-40m-A; its tie-off
-    cord K03-40m-A-T)."""
+def day_cuts(spec: Design, cuts_by_design: dict[str, DesignCuts],
+             already_cut: Set[str] = frozenset()) -> tuple[Cut, ...]:
+    """Every wire leg and tie-off cord still to cut, with stable IDs (K03-40m-A; its tie-off
+    cord K03-40m-A-T). Legs in ``already_cut`` (and their cords) were cut before: left out."""
     out: list[Cut] = []
     for kit in spec.kits:
         dc = cuts_by_design[kit.design_key]
         for c in dc.elements:
             for leg in c.legs:
                 leg_id = f"{kit.kit_id}-{c.element.key}-{leg.leg_id}"
+                if leg_id in already_cut:
+                    continue
                 out.append(Cut(leg_id, dc.design.wire.key, c.cut_leg_m, leg_id))
                 out.append(Cut(f"{leg_id}-T", CORD, leg.cord_cut_m, f"tie-off for {leg_id}"))
     return tuple(out)
 
 
-def stock_items(spec: Design) -> tuple[StockItem, ...]:
+def stock_items(spec: Design, used_m: Mapping[str, float] | None = None) -> tuple[StockItem, ...]:
+    """The spec's stock on hand, less ``used_m`` (metres per material already cut from it,
+    taken from the spools in the order the spec lists them; a part-used spool is its own item)."""
     titles = {k: w.title for k, w in spec.wires.items()}
     titles[CORD] = "tie-off cord"
-    return tuple(StockItem(s.material, s.length_m, s.count, titles.get(s.material, s.material))
-                 for s in spec.stock)
+    left = dict(used_m or {})
+    out = []
+    for s in spec.stock:
+        title = titles.get(s.material, s.material)
+        for _ in range(s.count):
+            take = min(left.get(s.material, 0.0), s.length_m)
+            left[s.material] = left.get(s.material, 0.0) - take
+            if s.length_m - take > 0.0:
+                out.append((s.material, s.length_m - take, title))
+    merged: list[StockItem] = []
+    for material, length, title in out:
+        last = merged[-1] if merged else None
+        if last and last.material == material and last.length_m == length:
+            merged[-1] = StockItem(material, length, last.count + 1, title)
+        else:
+            merged.append(StockItem(material, length, 1, title))
+    return tuple(merged)
 
 
-def logistics(spec: Design, cuts: Iterable[DesignCuts]) -> tuple[
-        dict[str, tuple[BomLine, ...]], tuple[BomLine, ...], SpoolPlan]:
-    """Per-kit BOMs, the day's BOM and the spool cut plan."""
+def logistics(spec: Design, cuts: Iterable[DesignCuts], already_cut: Set[str] = frozenset()
+              ) -> tuple[dict[str, tuple[BomLine, ...]], tuple[BomLine, ...], SpoolPlan]:
+    """Per-kit BOMs and the day's BOM (every kit, cut or not) and the spool cut plan for the
+    pieces still to cut, against the stock left after the pieces already cut."""
     by_design = {c.design.key: c for c in cuts}
     kit_boms = {k.kit_id: kit_bom(kit_needs(k, by_design[k.design_key])) for k in spec.kits}
-    plan = plan_spools(day_cuts(spec, by_design), stock_items(spec))
+    done = [c for c in day_cuts(spec, by_design) if c.cut_id.removesuffix("-T") in already_cut]
+    used: dict[str, float] = {}
+    for c in done:
+        used[c.material] = used.get(c.material, 0.0) + c.length_m + DEFAULT_TOLERANCE_M
+    plan = plan_spools(day_cuts(spec, by_design, already_cut), stock_items(spec, used))
     return kit_boms, day_bom(list(kit_boms.values())), plan

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import argparse
 import sys
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any, TextIO
@@ -18,13 +18,11 @@ from buildsheet.errors import BuildError, RecordError
 from buildsheet.store.ledger import default_store
 
 
-def _mm(metres: float) -> str:
-    return f"{metres * 1000:+.0f} mm"
-
-
-def read_observations(store: Any, design: Any, ids: Sequence[str]) -> tuple[list[Any], dict[str, dict[str, float]]]:
-    """Observations (latest dip of each ID) and the electrical legs of every element of the
-    source kits, ``{kit: {element_key: leg}}``, from the store. RecordError for bad IDs."""
+def read_observations(store: Any, design: Any, ids: Sequence[str],
+                      histories: Mapping[str, Any]) -> tuple[list[Any], dict[str, dict[str, float]]]:
+    """Observations (latest valid dip of each ID, at the wire it had then) and the electrical
+    legs of every element of the source kits, ``{kit: {element_key: leg}}``. RecordError for
+    bad IDs or elements without a reading."""
     from buildsheet.calc.calibrate import Observation, electrical_leg_m
     from buildsheet.store import ledger as rec
 
@@ -38,30 +36,40 @@ def read_observations(store: Any, design: Any, ids: Sequence[str]) -> tuple[list
             raise RecordError(f"--from {row.id}: that element belongs to design {row.design!r}, "
                               f"not {design.key!r}")
         rows.append(row)
-    histories = {h.element.id: h for h in rec.load_histories(store)}
+
+    def legs(h: Any, until: str | None = None) -> float | None:
+        a, b = h.current_leg_m("A", until), h.current_leg_m("B", until)
+        return None if a is None or b is None else electrical_leg_m(design, a, b)
+
     obs = []
     for row in rows:
         h = histories[row.id]
         if not h.measurements:
             raise RecordError(f"--from {row.id}: no dip recorded for it yet; record one with "
                               f"`buildsheet measure {row.id} --dip FREQ`")
-        leg = electrical_leg_m(design, h.current_leg_m("A"), h.current_leg_m("B"))
-        obs.append(Observation(row.id, row.key, leg, h.measurements[-1].dip_hz, row.kit))
+        m = h.measurements[-1]
+        leg = legs(h, m.time)
+        assert leg is not None  # a reading confirms both legs
+        obs.append(Observation(row.id, row.key, leg, m.dip_hz, row.kit))
     kits = {row.kit for row in rows}
     kit_legs: dict[str, dict[str, float]] = {}
     for h in histories.values():
         e = h.element
         if e.kit in kits and e.design == design.key and e.status == "active" and e.key in keys:
-            kit_legs.setdefault(e.kit, {})[e.key] = electrical_leg_m(
-                design, h.current_leg_m("A"), h.current_leg_m("B"))
+            leg = legs(h)
+            if leg is not None:
+                kit_legs.setdefault(e.kit, {})[e.key] = leg
     return obs, kit_legs
 
 
 def handle_calibrate(args: argparse.Namespace, out: TextIO | None = None) -> int:
-    """Fit the site ground from the latest dips of the given elements, store it, print it."""
+    """Fit the site ground from the latest dips of the given elements, store it, print the
+    calibrated cuts and the batch trims exactly as the next packet prints them."""
+    from buildsheet.build import entries_from_store
     from buildsheet.calc import calibrate as cal
-    from buildsheet.em.solve import predict_mom
+    from buildsheet.packet import solve_design
     from buildsheet.spec.reader import load_spec
+    from buildsheet.spec.units import format_both
     from buildsheet.store import ledger as rec
 
     out = out or sys.stdout
@@ -72,16 +80,18 @@ def handle_calibrate(args: argparse.Namespace, out: TextIO | None = None) -> int
                          f"{', '.join(designs)})")
     design = designs[args.design]
     path = Path(args.store) if args.store else default_store(args.spec)
+    print(f"record store: {path}", file=sys.stderr)
     with rec.open_store(path, create=False, verify=True) as store:
-        obs, kit_legs = read_observations(store, design, args.sources)
+        histories = {h.element.id: h for h in rec.load_histories(store)}
+        obs, kit_legs = read_observations(store, design, args.sources, histories)
         calibration = cal.fit_site(design, spec.site.ground, obs, kit_legs)
         rec.save_calibration(store, design.key, calibration.fingerprint,
                              cal.calibration_to_json(calibration), calibration.source_ids,
                              datetime.now(UTC))
-        cut = [h for h in rec.load_histories(store)
-               if h.element.design == design.key and h.element.status == "active"]
-    before = predict_mom(design, spec.site.ground)
-    after = cal.calibrated_prediction(design, calibration)
+        entries, _ = entries_from_store(spec, store)
+    units = spec.event.units
+    before = solve_design(design, spec, "mom")
+    after = solve_design(design, spec, "mom", calibration)
     g = calibration.ground
     print(f"Design {design.key}: site behaves like {calibration.site_like_title} (fitted eps_r "
           f"{g.eps_r:.1f}, sigma {g.sigma:.2g} S/m; the spec assumed "
@@ -94,38 +104,20 @@ def handle_calibrate(args: argparse.Namespace, out: TextIO | None = None) -> int
         print(f"  EXCLUDED {o.element_id} (dip {o.dip_hz / 1e6:.4f} MHz): {o.reason}", file=out)
     for note in calibration.notes:
         print(f"  Note: {note}", file=out)
-    print("  Leg (feed to end insulator, electrical) and cut length per leg, uncalibrated -> "
+    print("  Resonant leg and prescribed cut per leg (for legs not cut yet), uncalibrated -> "
           "calibrated:", file=out)
     for b, c in zip(before.elements, after.elements, strict=True):
-        cut_b, cut_c = (_cut_leg(design, p.leg_length_m, _spread(pred, p.key))
-                        for pred, p in ((before, b), (after, c)))
-        print(f"    {c.key}: leg {b.leg_length_m:.3f} -> {c.leg_length_m:.3f} m "
-              f"({_mm(c.leg_length_m - b.leg_length_m)}); cut {cut_b:.3f} -> {cut_c:.3f} m",
+        print(f"    {c.element.key}: leg {b.predicted_leg_m:.3f} -> {c.predicted_leg_m:.3f} m; "
+              f"cut {b.cut_leg_m:.3f} -> {c.cut_leg_m:.3f} m", file=out)
+    batch = [e for e in entries if e.kit.design_key == design.key and e.state.is_cut]
+    if batch:
+        print("  Kits already cut, per leg (as the packet's batch-trim page lists them):",
               file=out)
-    trims = cal.batch_trims(design, after, [
-        cal.CutElement(h.element.id, h.element.key, h.current_leg_m("A"), h.current_leg_m("B"))
-        for h in cut])
-    if trims:
-        print("  Before raising, per leg (remove > 0, add back < 0):", file=out)
-        for t in trims:
-            print(f"    {t.element_id}: A {_mm(t.remove_a_m)}, B {_mm(t.remove_b_m)} "
-                  f"({t.action}; target {t.target_leg_m:.3f} m)", file=out)
+        for e in batch:
+            for leg in e.state.legs:
+                print(f"    {leg.leg_id}: now {format_both(leg.current_m, units)}, target "
+                      f"{leg.target_m:.3f} m: {leg.action.words(units, both=False)}", file=out)
     return 0
-
-
-def _cut_leg(design: Any, leg_m: float, spread: float | None) -> float:
-    """Cut length of a leg as the build sheet sizes it (buildsheet.calc.cuts.element_cut), m."""
-    from buildsheet.calc.cuts import trim_fraction_for
-
-    a = design.allowances
-    trim = (a.trim_m if (a.trim_explicit and a.trim_m is not None)
-            else trim_fraction_for(design, spread) * leg_m)
-    return leg_m + trim + a.termination_m + a.feed_m
-
-
-def _spread(prediction: Any, key: str) -> float | None:
-    keys = [e.key for e in prediction.elements]
-    return prediction.spread[keys.index(key)] if prediction.spread else None
 
 
 def register(subparsers: Any) -> None:

@@ -52,15 +52,22 @@ def _cmd_check(args: argparse.Namespace) -> int:
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
+    """Write the demo spec into --spec-dir (its record store beside it, not in the disposable
+    packet folder) and build its packet into -o."""
     from buildsheet.build import build
     from buildsheet.store.files import write_atomic
 
-    out = Path(args.output)
-    out.mkdir(parents=True, exist_ok=True)
-    spec_path = out / "demo.toml"
-    write_atomic(spec_path, demo_spec_text().encode())
-    result = build(spec_path, out / "packet", built_at=build_timestamp(), model=args.model)
+    folder = Path(args.spec_dir)
+    folder.mkdir(parents=True, exist_ok=True)
+    spec_path = folder / "demo.toml"
+    text = demo_spec_text()
+    if spec_path.is_file() and spec_path.read_text(encoding="utf-8") != text:
+        print(f"demo spec: keeping your edited {spec_path}", file=sys.stderr)
+    else:
+        write_atomic(spec_path, text.encode())
+    result = build(spec_path, args.output, built_at=build_timestamp(), model=args.model)
     print(f"demo spec: {spec_path}")
+    print(f"records: {result.store}")
     print(f"wrote {', '.join(result.files)} to {result.out_dir}")
     return 0
 
@@ -83,8 +90,9 @@ def make_parser() -> argparse.ArgumentParser:
                    help="element record store (default: <spec stem>.records.sqlite beside the "
                    "spec)")
     p.add_argument("--changed-only", action="store_true",
-                   help="write sheets and labels only for new and changed elements (labels "
-                   "start at the spec's labels.start_cell); earlier files stay alongside")
+                   help="print only the kit sheets, labels and day pages whose content changed "
+                   "since the last packet (labels continue on the current label sheet unless "
+                   "labels.start_cell is set); earlier files stay alongside")
     model_option(p)
     p.set_defaults(handler=_cmd_packet)
 
@@ -94,14 +102,17 @@ def make_parser() -> argparse.ArgumentParser:
     p.set_defaults(handler=_cmd_check)
 
     p = sub.add_parser("demo", help="write the bundled demo spec and build its packet")
-    p.add_argument("-o", "--output", default="out/demo", help="folder (default out/demo)")
+    p.add_argument("-o", "--output", default="out/demo",
+                   help="packet folder (default out/demo)")
+    p.add_argument("--spec-dir", default=".", metavar="DIR",
+                   help="where the demo spec and its record store go (default: this folder)")
     model_option(p)
     p.set_defaults(handler=_cmd_demo)
 
     from buildsheet.cli.calibrate import register as register_calibrate
     from buildsheet.cli.records import register
 
-    register(sub)  # measure, trim, export, import
+    register(sub)  # cut, measure, trim, void, history, export, import
     register_calibrate(sub)  # calibrate
     return parser
 

@@ -1,8 +1,10 @@
-"""Record subcommands: ``measure``, ``trim``, ``export``, ``import``.
+"""Record subcommands: ``cut``, ``measure``, ``trim``, ``void``, ``history``, ``export``,
+``import``.
 
-``register(subparsers)`` adds them to the main parser; each handler takes the parsed namespace
-and returns an exit code, raising BuildsheetError subclasses for user mistakes (cli.main prints
-those as one line). ``python -m buildsheet ...`` runs them too.
+Every command finds its record store the same way (:func:`locate_store`) and says which one it
+used. Numbers it prints (current lengths, targets, actions, expected dips) come from the same
+functions as the packet's (buildsheet.build.entries_from_store -> buildsheet.calc.asbuilt).
+Handlers raise BuildsheetError subclasses for user mistakes (cli.main prints those as one line).
 """
 
 from __future__ import annotations
@@ -10,6 +12,7 @@ from __future__ import annotations
 import argparse
 import json
 import sys
+from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any, TextIO
@@ -17,21 +20,88 @@ from typing import Any, TextIO
 from buildsheet.errors import RecordError
 from buildsheet.store.ledger import STORE_SUFFIX
 
+#: Where a record command looks, in order, when no option names the store.
+SEARCH_NOTE = ("--store PATH, --spec SPEC (its store beside it), --packet DIR (the store named in "
+               "its manifest.json), else this folder: a manifest.json, or the one "
+               f"*{STORE_SUFFIX}, or the one spec whose store is beside it")
+
+
+@dataclass(frozen=True)
+class StoreChoice:
+    """The store a command uses and how it was found (printed for the user)."""
+
+    path: Path
+    how: str
+
+
+def _from_manifest(folder: Path) -> Path | None:
+    from buildsheet.store.manifest import read_manifest
+
+    manifest = read_manifest(folder / "manifest.json")
+    if manifest is None or not manifest.store:
+        return None
+    return (folder / manifest.store).resolve()
+
 
 def find_store(folder: Path) -> Path:
-    """The single ``*.records.sqlite`` file in ``folder``; RecordError naming the candidates."""
+    """The store for ``folder``: its packet manifest's store, the single ``*.records.sqlite``,
+    or the store beside the single spec there; RecordError naming what to pass."""
+    from buildsheet.store.ledger import default_store
+
+    named = _from_manifest(folder) if (folder / "manifest.json").is_file() else None
+    if named is not None:
+        return named
     found = sorted(folder.glob("*" + STORE_SUFFIX))
     if len(found) == 1:
         return found[0]
-    if not found:
-        raise RecordError(f"no record store (*{STORE_SUFFIX}) in {folder}: run `buildsheet "
-                          "packet` beside the spec first, or pass --store PATH")
-    names = ", ".join(p.name for p in found)
-    raise RecordError(f"several record stores in {folder} ({names}): choose one with --store")
+    if len(found) > 1:
+        names = ", ".join(p.name for p in found)
+        raise RecordError(f"several record stores in {folder} ({names}): choose one with --store")
+    specs = [s for s in sorted(folder.glob("*.toml")) if default_store(s).is_file()]
+    if len(specs) == 1:
+        return default_store(specs[0])
+    raise RecordError(f"no record store found from {folder}: give {SEARCH_NOTE}")
 
 
-def _store_path(args: argparse.Namespace) -> Path:
-    return Path(args.store) if args.store else find_store(Path.cwd())
+def locate_store(args: argparse.Namespace) -> StoreChoice:
+    """The record store named by the options, else found from the current folder."""
+    from buildsheet.store.ledger import default_store
+
+    if getattr(args, "store", None):
+        return StoreChoice(Path(args.store), "--store")
+    if getattr(args, "spec", None):
+        return StoreChoice(default_store(args.spec), f"beside {args.spec}")
+    if getattr(args, "packet", None):
+        folder = Path(args.packet)
+        named = _from_manifest(folder)
+        if named is None:
+            raise RecordError(f"--packet {folder}: no manifest.json naming a record store there")
+        return StoreChoice(named, f"named by {folder / 'manifest.json'}")
+    return StoreChoice(find_store(Path.cwd()), "found from this folder")
+
+
+NO_SPEC = ("(what to do next needs the spec, and no packet has been built with this store: "
+           "give --spec SPEC)")
+
+
+def spec_of_store(store: Any, path: Path, args: argparse.Namespace,
+                  required: bool = True) -> Path | None:
+    """The spec behind a store: --spec, else the spec its latest packet was built from; None
+    (or RecordError when ``required``) when neither is known."""
+    from buildsheet.build import SPEC_KEY
+    from buildsheet.store.ledger import get_state
+
+    if getattr(args, "spec", None):
+        return Path(args.spec)
+    named = get_state(store, SPEC_KEY)
+    if named is None:
+        if not required:
+            return None
+        raise RecordError(f"{path}: no packet has been built with this store yet; give --spec SPEC")
+    spec = (path.parent / named).resolve()
+    if not spec.is_file():
+        raise RecordError(f"{path}: its spec {spec} is missing; give --spec SPEC")
+    return spec
 
 
 def _now() -> datetime:
@@ -62,17 +132,69 @@ def _length(option: str, text: str) -> float:
     return value
 
 
-def _both(metres: float, precise: bool = False) -> str:
-    """Metric and feet-inches; ``precise``: metres to the millimetre (tape-measure lengths)."""
-    from buildsheet.spec.units import format_both, format_length
+def _entry(store: Any, choice: StoreChoice, args: argparse.Namespace,
+           element_id: str) -> tuple[Any, str] | None:
+    """The packet entry of one element, computed over the store's ledger now (None when the
+    store's spec is not known)."""
+    from buildsheet.build import entries_from_store
+    from buildsheet.spec.reader import load_spec
 
-    if precise:
-        return f"{metres:.3f} m ({format_length(metres, 'imperial')})"
-    return format_both(metres)
+    path = spec_of_store(store, choice.path, args, required=False)
+    if path is None:
+        return None
+    spec = load_spec(path)
+    entries, _ = entries_from_store(spec, store)
+    found = [e for e in entries if e.element_id == element_id]
+    if not found:
+        raise RecordError(f"{element_id} is not in the spec any more (archived)")
+    return found[0], spec.event.units
+
+
+def print_state(found: tuple[Any, str] | None, out: TextIO) -> None:
+    """Both legs and the instruction, as the sheets print them."""
+    from buildsheet.spec.units import format_both
+
+    if found is None:
+        print("  " + NO_SPEC, file=out)
+        return
+    entry, units = found
+    for leg in entry.state.legs:
+        cut = "not cut" if leg.cut_m is None else f"cut {leg.cut_m:.3f} m"
+        print(f"  {leg.leg_id}: {cut}, now {format_both(leg.current_m, units)}, target "
+              f"{leg.target_m:.3f} m: {leg.action.words(units, both=False)}", file=out)
+    for line in entry.advice:
+        print("  " + line, file=out)
+
+
+def _open(args: argparse.Namespace, err: TextIO) -> tuple[Any, StoreChoice]:
+    from buildsheet.store import ledger as rec
+
+    choice = locate_store(args)
+    print(f"record store: {choice.path} ({choice.how})", file=err)
+    return rec.open_store(choice.path, create=False, verify=True), choice
+
+
+def handle_cut(args: argparse.Namespace, out: TextIO | None = None) -> int:
+    """Confirm the cut of legs (element IDs: both legs) at their printed length or --length."""
+    from buildsheet.store import ledger as rec
+
+    out = out or sys.stdout
+    length = _length("--length", args.length) if args.length else None
+    store, _choice = _open(args, sys.stderr)
+    with store:
+        for text in args.ids:
+            row, leg = rec.resolve_id(store, text)
+            done = rec.confirm_cut(store, row.id, (leg,) if leg else ("A", "B"), _now(),
+                                   length_m=length, note=args.note or "")
+            if not done:
+                print(f"{text}: already confirmed as cut", file=out)
+            for c in done:
+                print(f"{c.element_id}-{c.leg}: {c.how} at {c.length_m:.3f} m", file=out)
+    return 0
 
 
 def handle_measure(args: argparse.Namespace, out: TextIO | None = None) -> int:
-    """Record an analyzer dip and print the trim advice."""
+    """Record an analyzer dip and print what to do to each leg."""
     from buildsheet.spec.units import format_frequency
     from buildsheet.store import ledger as rec
 
@@ -80,25 +202,21 @@ def handle_measure(args: argparse.Namespace, out: TextIO | None = None) -> int:
     dip = _frequency(args.dip)
     if args.swr is not None and not args.swr >= 1.0:
         raise RecordError(f"--swr: an SWR is 1 or more, got {args.swr}")
-    with rec.open_store(_store_path(args), create=False, verify=True) as store:
+    store, choice = _open(args, sys.stderr)
+    with store:
         row, _leg = rec.resolve_id(store, args.id)
         m = rec.add_measurement(store, row.id, dip, args.swr, args.note or "", _now())
-        trims = rec.element_history(store, row.id).trims
-    advice = rec.trim_advice(row, dip, trims)
+        entry = _entry(store, choice, args, row.id)
     swr = f", SWR {m.swr:g}" if m.swr is not None else ""
     print(f"{row.id}: dip {format_frequency(dip)}{swr} recorded "
           f"(design {format_frequency(row.design_frequency_hz)}).", file=out)
-    for line in advice.lines:
-        print("  " + line, file=out)
-    if advice.action != "none":
-        print(f"  Per leg: {advice.action} {_both(abs(advice.per_leg_m))}; then "
-              f"`buildsheet trim {row.id} --{'removed' if advice.action == 'remove' else 'added'}"
-              " LENGTH` to record it.", file=out)
+    print_state(entry, out)
     return 0
 
 
 def handle_trim(args: argparse.Namespace, out: TextIO | None = None) -> int:
     """Record wire removed from (or added back to) one or both legs."""
+    from buildsheet.spec.units import format_both
     from buildsheet.store import ledger as rec
 
     out = out or sys.stdout
@@ -106,38 +224,111 @@ def handle_trim(args: argparse.Namespace, out: TextIO | None = None) -> int:
         raise RecordError("trim: give exactly one of --removed LENGTH or --added LENGTH")
     delta = (_length("--removed", args.removed) if args.removed is not None
              else -_length("--added", args.added))
-    with rec.open_store(_store_path(args), create=False, verify=True) as store:
+    store, choice = _open(args, sys.stderr)
+    with store:
         row, id_leg = rec.resolve_id(store, args.id)
         leg = args.leg or id_leg or "both"
         if id_leg and args.leg and args.leg != id_leg:
             raise RecordError(f"{args.id} names leg {id_leg} but --leg says {args.leg}")
         trim = rec.add_trim(store, row.id, leg, delta, args.note or "", _now())
-        history = rec.element_history(store, row.id)
+        entry = _entry(store, choice, args, row.id)
     verb = "removed from" if trim.delta_m > 0 else "added back to"
     which = "each leg" if leg == "both" else f"leg {leg}"
-    print(f"{row.id}: {_both(abs(trim.delta_m))} {verb} {which} recorded.", file=out)
-    print(f"  Current legs: A {_both(history.current_leg_m('A'), True)}, "
-          f"B {_both(history.current_leg_m('B'), True)}.", file=out)
+    print(f"{row.id}: {format_both(abs(trim.delta_m))} {verb} {which} recorded.", file=out)
+    print_state(entry, out)
     return 0
 
 
-def handle_export(args: argparse.Namespace, out: TextIO | None = None) -> int:
-    """Write the whole store as JSON to -o FILE (atomically) or to standard output."""
+def handle_void(args: argparse.Namespace, out: TextIO | None = None) -> int:
+    """Withdraw a wrong measurement, trim or cut (the row number from ``history``)."""
     from buildsheet.store import ledger as rec
+
+    out = out or sys.stdout
+    chosen = [(k, n) for k, n in (("measurement", args.measurement), ("trim", args.trim),
+                                  ("cut", args.cut)) if n is not None]
+    if len(chosen) != 1:
+        raise RecordError("void: give exactly one of --measurement N, --trim N or --cut N")
+    kind, number = chosen[0]
+    store, _choice = _open(args, sys.stderr)
+    with store:
+        row, _leg = rec.resolve_id(store, args.id)
+        history = rec.element_history(store, row.id)
+        mine = {r.id for r in (*history.measurements, *history.trims, *history.cuts,
+                               *history.voided)}
+        if number not in mine:
+            raise RecordError(f"void: {kind} {number} does not belong to {row.id}; "
+                              f"`buildsheet history {row.id}` lists its numbers")
+        rec.void_record(store, kind, number, args.reason or "", _now())  # type: ignore[arg-type]
+    print(f"{row.id}: {kind} {number} is void (kept in the history, ignored from now on).",
+          file=out)
+    return 0
+
+
+def handle_history(args: argparse.Namespace, out: TextIO | None = None) -> int:
+    """List an element's cuts, trims and readings with their numbers (for ``void``)."""
+    from buildsheet.store import ledger as rec
+
+    out = out or sys.stdout
+    store, _choice = _open(args, sys.stderr)
+    with store:
+        row, _leg = rec.resolve_id(store, args.id)
+        h = rec.element_history(store, row.id)
+    print(f"{row.id} ({row.key}, design {row.design}; prescribed cut {row.cut_leg_m:.3f} m)",
+          file=out)
+    for c in h.cuts:
+        print(f"  cut {c.id}: leg {c.leg} {c.length_m:.3f} m ({c.how}) {c.time}", file=out)
+    for t in h.trims:
+        verb = "removed" if t.delta_m > 0 else "added back"
+        print(f"  trim {t.id}: leg {t.leg} {verb} {abs(t.delta_m) * 1000:.0f} mm {t.time}",
+              file=out)
+    for m in h.measurements:
+        print(f"  measurement {m.id}: dip {m.dip_hz / 1e6:.4f} MHz {m.time}", file=out)
+    for v in h.voided:
+        print(f"  (void) {type(v).__name__.lower()} {v.id} {v.time}", file=out)
+    return 0
+
+
+def as_built_export(entries: Any) -> list[dict[str, Any]]:
+    """Per element and leg, the numbers the packet prints (export's ``as_built`` section)."""
+    from buildsheet.calc.asbuilt import finite_or_none
+
+    return [{"element_id": e.element_id, "expected_dip_hz": finite_or_none(e.state.expected_dip_hz),
+             "status": e.state.status, "target_source": e.state.target_source,
+             "legs": [{"leg_id": leg.leg_id, "prescribed_cut_m": leg.prescribed_cut_m,
+                       "cut_m": leg.cut_m, "trims_m": leg.trims_m, "current_m": leg.current_m,
+                       "target_m": leg.target_m, "action": leg.action.kind,
+                       "action_m": leg.action.amount_m} for leg in e.state.legs]}
+            for e in entries]
+
+
+def handle_export(args: argparse.Namespace, out: TextIO | None = None) -> int:
+    """Write the whole store as JSON, with the as-built numbers, to -o FILE or stdout."""
+    from buildsheet.build import entries_from_store
+    from buildsheet.spec.reader import load_spec
+    from buildsheet.store import exchange
     from buildsheet.store.manifest import write_json_atomic
 
     out = out or sys.stdout
-    path = _store_path(args)
-    with rec.open_store(path, create=False, verify=True) as store:
-        data = rec.export_json(store)
+    store, choice = _open(args, sys.stderr)
+    with store:
+        data = exchange.export_json(store)
+        spec_path = spec_of_store(store, choice.path, args, required=False)
+        if spec_path is not None:
+            entries, _ = entries_from_store(load_spec(spec_path), store)
+            data["as_built"] = as_built_export(entries)
+        else:
+            print("note: no as_built section " + NO_SPEC, file=sys.stderr)
     if args.output and args.output != "-":
         target = Path(args.output)
+        if target.resolve() == choice.path.resolve():
+            raise RecordError(f"-o {target}: that is the record store itself; choose another file")
         try:
             write_json_atomic(target, data)
         except OSError as exc:
             raise RecordError(f"-o {target}: cannot write ({exc.strerror or exc})") from exc
         print(f"Exported {len(data['elements'])} elements, {len(data['measurements'])} "
-              f"measurements, {len(data['trims'])} trims from {path} to {target}.", file=out)
+              f"measurements, {len(data['trims'])} trims, {len(data['cuts'])} cuts from "
+              f"{choice.path} to {target}.", file=out)
     else:
         json.dump(data, out, indent=1, ensure_ascii=False)
         out.write("\n")
@@ -146,6 +337,7 @@ def handle_export(args: argparse.Namespace, out: TextIO | None = None) -> int:
 
 def handle_import(args: argparse.Namespace, out: TextIO | None = None) -> int:
     """Restore a JSON export into the store (created when --store names a new file)."""
+    from buildsheet.store import exchange
     from buildsheet.store import ledger as rec
 
     out = out or sys.stdout
@@ -156,11 +348,13 @@ def handle_import(args: argparse.Namespace, out: TextIO | None = None) -> int:
         raise RecordError(f"{source}: cannot read ({exc.strerror or exc})") from exc
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise RecordError(f"{source}: not valid JSON ({exc})") from exc
-    path = _store_path(args)
+    choice = locate_store(args)
+    path = choice.path
+    print(f"record store: {path} ({choice.how})", file=sys.stderr)
     with rec.open_store(path, create=True, verify=path.exists()) as store:
-        report = rec.import_json(store, data)
+        report = exchange.import_json(store, data)
     print(f"Imported into {path}: {report.elements} elements, {report.measurements} "
-          f"measurements, {report.trims} trims, {report.prints} prints "
+          f"measurements, {report.trims} trims, {report.cuts} cuts, {report.prints} prints "
           f"({report.skipped} already present).", file=out)
     if report.conflicts:
         print("  Kept the store's values for elements that differ from the file: "
@@ -168,41 +362,74 @@ def handle_import(args: argparse.Namespace, out: TextIO | None = None) -> int:
     return 0
 
 
-def _add_store(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--store", metavar="PATH",
-                   help=f"record store (default: the single *{STORE_SUFFIX} in this folder)")
+def add_store_options(p: argparse.ArgumentParser, spec: bool = True) -> None:
+    """The options every record command finds its store by."""
+    p.add_argument("--store", metavar="PATH", help="the record store")
+    if spec:
+        p.add_argument("--spec", metavar="SPEC", help="the spec (its store sits beside it)")
+    p.add_argument("--packet", metavar="DIR", help="a packet folder (its manifest names the store)")
 
 
 def register(subparsers: Any) -> None:
     """Add the record subcommands to an ``add_subparsers()`` object (sets ``handler``)."""
+    epilog = f"The record store: {SEARCH_NOTE}."
+    p = subparsers.add_parser("cut", help="confirm that legs were cut", epilog=epilog,
+                              description="Record that legs were cut: at the length their labels "
+                              "print, or at --length (a re-cut of a leg already cut).")
+    p.add_argument("ids", nargs="+", metavar="ID",
+                   help='element IDs ("K03-40m": both legs) or leg IDs ("K03-40m-A")')
+    p.add_argument("--length", metavar="LENGTH", help='the length actually cut, e.g. "10.55 m"')
+    p.add_argument("--note", help="free text kept with the cut")
+    add_store_options(p)
+    p.set_defaults(handler=handle_cut)
+
     p = subparsers.add_parser("measure", help="record an analyzer dip and get trim advice",
-                              description="Record the SWR dip of an element and print how much "
-                              "to trim from (or add back to) each leg.")
+                              epilog=epilog, description="Record the SWR dip of an element and "
+                              "print what to do to each leg.")
     p.add_argument("id", help='element ID, e.g. "K03-40m"')
     p.add_argument("--dip", required=True, metavar="FREQ",
                    help='dip frequency with unit, e.g. "7.08MHz" or "7080kHz"')
     p.add_argument("--swr", type=float, help="SWR at the dip, e.g. 1.4")
     p.add_argument("--note", help="free text kept with the reading")
-    _add_store(p)
+    add_store_options(p)
     p.set_defaults(handler=handle_measure)
 
     p = subparsers.add_parser("trim", help="record wire removed from or added back to a leg",
-                              description="Record a trim; the current length is the cut length "
-                              "minus the trims.")
+                              epilog=epilog, description="Record a trim; the current length is "
+                              "the length as cut minus the trims since.")
     p.add_argument("id", help='element ID ("K03-40m") or leg ID ("K03-40m-A")')
     p.add_argument("--removed", metavar="LENGTH", help='wire cut off, e.g. "35mm"')
     p.add_argument("--added", metavar="LENGTH", help='wire added back, e.g. "20mm"')
     p.add_argument("--leg", choices=("A", "B", "both"), help="which leg (default: both)")
     p.add_argument("--note", help="free text kept with the trim")
-    _add_store(p)
+    add_store_options(p)
     p.set_defaults(handler=handle_trim)
 
-    p = subparsers.add_parser("export", help="write the whole record store as JSON")
+    p = subparsers.add_parser("void", help="withdraw a wrong reading, trim or cut", epilog=epilog,
+                              description="Mark one entry void: it stays in the history and "
+                              "every number ignores it from then on.")
+    p.add_argument("id", help="the element ID")
+    p.add_argument("--measurement", type=int, metavar="N", help="measurement number")
+    p.add_argument("--trim", type=int, metavar="N", help="trim number")
+    p.add_argument("--cut", type=int, metavar="N", help="cut number")
+    p.add_argument("--reason", help="why (kept with the void)")
+    add_store_options(p)
+    p.set_defaults(handler=handle_void)
+
+    p = subparsers.add_parser("history", help="list an element's cuts, trims and readings",
+                              epilog=epilog)
+    p.add_argument("id", help="the element ID")
+    add_store_options(p)
+    p.set_defaults(handler=handle_history)
+
+    p = subparsers.add_parser("export", help="write the whole record store as JSON",
+                              epilog=epilog)
     p.add_argument("-o", "--output", metavar="FILE", help="output file (default: stdout)")
-    _add_store(p)
+    add_store_options(p)
     p.set_defaults(handler=handle_export)
 
-    p = subparsers.add_parser("import", help="restore a JSON export into the record store")
+    p = subparsers.add_parser("import", help="restore a JSON export into the record store",
+                              epilog=epilog)
     p.add_argument("file", help="a file written by `buildsheet export`")
-    _add_store(p)
+    add_store_options(p)
     p.set_defaults(handler=handle_import)

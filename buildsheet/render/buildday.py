@@ -265,8 +265,7 @@ class LogRow:
     element_id: str
     band: str
     design_frequency_hz: float
-    expected_dip_hz: float | None = None  # the model's first dip of the element as cut
-    calibrated_dip_hz: float | None = None  # the same from the site calibration, if any
+    expected_dip_hz: float | None = None  # where the wire as it is now should dip
 
 
 def default_mhz(hz: float) -> str:
@@ -295,8 +294,6 @@ def log_form_flowables(kit_id: str, builder: str, rows: Sequence[LogRow], *, pas
                                  "Initials"]]
     for r in rows:
         expected = fmt_freq(r.expected_dip_hz) if r.expected_dip_hz else ""
-        if r.calibrated_dip_hz:
-            expected += f"\ncal. {fmt_freq(r.calibrated_dip_hz)}"
         for k in range(max(1, passes)):
             first = k == 0
             data.append([_p(r.element_id if first else "", _BIG_BOLD), r.band if first else "",
@@ -304,9 +301,9 @@ def log_form_flowables(kit_id: str, builder: str, rows: Sequence[LogRow], *, pas
                          expected if first else "", "", "", "", ""])
     out.append(_grid(data, [w * width for w in (0.15, 0.08, 0.13, 0.14, 0.14, 0.09, 0.17, 0.10)],
                      font_size=9, row_height=11 * mm))
-    out.append(_p("Expected dip: where the model puts the first dip of the element as cut "
-                  "(long by the trim allowance), so the first reading should land near it; "
-                  "\"cal.\" is the same from the site calibration.", _SMALL))
+    out.append(_p("Expected dip: where the wire as it is now should dip (from the site "
+                  "calibration where there is one, from its own last reading once read); a leg "
+                  "cut long by the trim allowance dips below the design frequency.", _SMALL))
     out.append(Spacer(1, 3 * mm))
     out.append(_grid([["Notes"], [""]], [width], font_size=9, row_height=25 * mm))
     if safety:

@@ -6,8 +6,8 @@ Renderers compute nothing physical: every number comes from the Packet.
 from __future__ import annotations
 
 import io
+from collections.abc import Callable, Collection
 from xml.sax.saxutils import escape
-from collections.abc import Callable
 from pathlib import Path
 from typing import BinaryIO
 
@@ -30,11 +30,10 @@ from reportlab.platypus import (
     TableStyle,
 )
 
-from buildsheet.calc.cuts import DesignCuts, expected_dip_hz, printed_parts
+from buildsheet.calc.cuts import DesignCuts, printed_parts
 from buildsheet.calc.performance import DesignPerformance
-from buildsheet.calc.advice import trim_words
 from buildsheet.calc.safety import SITE_CAUTIONS
-from buildsheet.packet import Packet
+from buildsheet.packet import ElementEntry, Packet
 from buildsheet.render import buildday, charts, drawings
 from buildsheet.spec.design import Kit
 from buildsheet.spec.units import format_both, format_frequency, format_length
@@ -311,6 +310,8 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list
     story += [_p(escape(t.replace("{kit}", kit_name)), "body") for t in advice.assembly]
     story += [_p("Feed line", "h2")] + [_p(escape(t), "body") for t in advice.feed_line]
     if len(kits) == 1:
+        story += as_built_flowables(packet.kit_entries(kits[0].kit_id), units)
+    if len(kits) == 1:
         story += [CondPageBreak(60 * mm), _p("Kit bill of materials", "h2")]
         story += buildday.bom_flowables(packet.kit_boms[kits[0].kit_id], title="",
                                         fmt=_fmt(units), safety=False)[1:]
@@ -412,48 +413,81 @@ def _fmt(units: str) -> Callable[[float], str]:
     return lambda m: _two_line(m, units)
 
 
-def logistics_pages(packet: Packet) -> list[Flowable]:
-    """Day bill of materials, spool cut plan and one cutting-station list per spool."""
+def logistics_pages(packet: Packet, only: Collection[str] | None = None) -> list[Flowable]:
+    """Day bill of materials (every kit), the spool cut plan and one cutting-station list per
+    spool (for the pieces still to cut), each only when wanted."""
     units = packet.design.event.units
-    story: list[Flowable] = buildday.bom_flowables(
-        packet.day_bom, title="Bill of materials for the day", fmt=_fmt(units))
-    story += [PageBreak()] + buildday.spool_plan_flowables(
-        packet.spool_plan, fmt=lambda m: format_length(m, units))
-    if packet.spool_plan.spools:
-        story += [PageBreak()] + buildday.station_lists_flowables(
+    story: list[Flowable] = []
+    if only is None or "day:bom" in only:
+        story += buildday.bom_flowables(
+            packet.day_bom, title="Bill of materials for the day", fmt=_fmt(units))
+        story.append(PageBreak())
+    if only is None or "day:spool-plan" in only:
+        if packet.already_cut:
+            story.append(_p(f"{len(packet.already_cut)} legs already cut (recorded in the "
+                            "ledger) are not cut again: this plan covers the rest, from the "
+                            "stock left.", "body"))
+        story += buildday.spool_plan_flowables(
+            packet.spool_plan, fmt=lambda m: format_length(m, units))
+        story.append(PageBreak())
+    if packet.spool_plan.spools and (only is None or "day:stations" in only):
+        story += buildday.station_lists_flowables(
             packet.spool_plan, metric=lambda m: format_length(m, "metric"),
             imperial=lambda m: format_length(m, "imperial"))
-    return story + [PageBreak()]
+        story.append(PageBreak())
+    return story
+
+
+def as_built_table(entries: tuple[ElementEntry, ...], units: str) -> Table:
+    """Per leg: prescribed cut, length as cut, current length, target and the action."""
+    rows = [["Leg", "Prescribed cut", "As cut", "Now", "Target", "Do"]]
+    for e in entries:
+        for leg in e.state.legs:
+            rows.append([leg.leg_id, _two_line(leg.prescribed_cut_m, units),
+                         "not cut" if leg.cut_m is None else _two_line(leg.cut_m, units),
+                         _two_line(leg.current_m, units), _two_line(leg.target_m, units),
+                         leg.action.words(units, both=False)])  # type: ignore[arg-type]
+    return _table(rows, [70, 72, 72, 72, 72, 142], bold_cols=(5,))
+
+
+def as_built_flowables(entries: tuple[ElementEntry, ...], units: str) -> list[Flowable]:
+    """The kit's legs as built, with the instruction for each element (only once cut)."""
+    if not any(leg.cut_m is not None for e in entries for leg in e.state.legs):
+        return []
+    story: list[Flowable] = [CondPageBreak(50 * mm), _p("This kit as built", "h2"),
+                             as_built_table(entries, units), Spacer(1, 3)]
+    for e in entries:
+        if e.state.is_cut:
+            story.append(_p(f"<b>{e.element_id}:</b> " + " ".join(e.advice), "small"))
+    return story
 
 
 def batch_trim_pages(packet: Packet) -> list[Flowable]:
-    """For kits already cut when a site calibration exists: what to remove from each leg."""
-    if not packet.batch_trims:
+    """For kits already cut when a site calibration exists: what to do to each leg."""
+    entries = packet.batch_trims
+    if not entries:
         return []
     units = packet.design.event.units
-    rows = [["Element", "Legs now (A / B)", "Target leg", "Leg A", "Leg B"]]
-    for t in packet.batch_trims:
-        rows.append([t.element_id, f"{format_length(t.leg_a_m, units)} / {format_length(t.leg_b_m, units)}",
-                     _two_line(t.target_leg_m, units),
-                     trim_words(t.remove_a_m, units).replace(" (", "\n("),
-                     trim_words(t.remove_b_m, units).replace(" (", "\n(")])
     sources = "; ".join(f"{k}: calibrated from {', '.join(c.source_ids)}, site like "
                         f"{c.site_like_title}, residual {c.uncertainty:.1%}"
                         for k, c in packet.calibrations.items())
     return [_p("Batch trims for kits already cut", "h1"),
-            _p("The site calibration moves the predicted resonance of every element of its "
-               f"design. Before raising a kit already cut, trim each leg as listed ({sources}). "
-               "Trim both legs equally and re-check on the analyzer.", "body"), Spacer(1, 4),
-            _table(rows, [70, 100, 70, 130, 130], bold_cols=(3, 4)), PageBreak()]
+            _p("The site calibration moves the target of every element of its design that has "
+               "no reading of its own since it was cut; an element with a reading is trimmed "
+               f"to its own reading ({sources}). Before raising a kit already cut, do what the "
+               "last column says to each leg, then re-check on the analyzer.", "body"),
+            Spacer(1, 4), as_built_table(entries, units), PageBreak()]
 
 
-def log_forms(packet: Packet) -> list[Flowable]:
-    """One measurement log form per kit, a row per element, to fill in by hand."""
+def log_forms(packet: Packet, kits: Collection[str] | None = None) -> list[Flowable]:
+    """One measurement log form per kit, a row per element, to fill in by hand; the expected
+    dip is that of the wire as it is now (as cut, or as prescribed)."""
     story: list[Flowable] = []
     for kit in packet.design.kits:
+        if kits is not None and kit.kit_id not in kits:
+            continue
         rows = [buildday.LogRow(e.element_id, e.cut.element.band_label, e.cut.element.frequency_hz,
-                                expected_dip_hz(e.cut, uncalibrated=True),
-                                expected_dip_hz(e.cut) if e.cut.calibrated else None)
+                                e.state.expected_dip_hz)
                 for e in packet.kit_entries(kit.kit_id)]
         story += buildday.log_form_flowables(kit.kit_id, kit.builder, rows, passes=3,
                                              fmt_freq=format_frequency, safety=False)
@@ -461,18 +495,31 @@ def log_forms(packet: Packet) -> list[Flowable]:
     return story
 
 
-def sheet_story(packet: Packet) -> list[Flowable]:
-    """The whole sheets document: cover, logistics, build sheets, then the log forms."""
-    story = cover(packet) + logistics_pages(packet) + batch_trim_pages(packet)
+def sheet_story(packet: Packet, only: Collection[str] | None = None) -> list[Flowable]:
+    """The whole sheets document (cover, logistics, build sheets, then the log forms), or the
+    printable items named in ``only`` (``kit:K01``, ``design:KEY``, ``nvis:KEY``, ``day:PAGE``)."""
+    def wanted(item: str) -> bool:
+        return only is None or item in only
+
+    story: list[Flowable] = []
+    if wanted("day:cover"):
+        story += cover(packet)
+    story += logistics_pages(packet, only)
+    if wanted("day:batch-trims"):
+        story += batch_trim_pages(packet)
     for c in packet.cuts:
         kits = packet.kits_of(c.design.key)
-        story += coverage_page(packet, c)
+        if wanted(f"nvis:{c.design.key}"):
+            story += coverage_page(packet, c)
         if packet.design.event.layout == "per_design":
-            story += build_sheet(packet, c, kits)
+            if wanted(f"design:{c.design.key}"):
+                story += build_sheet(packet, c, kits)
         else:
             for k in kits:
-                story += build_sheet(packet, c, (k,))
-    return story + log_forms(packet)
+                if wanted(f"kit:{k.kit_id}"):
+                    story += build_sheet(packet, c, (k,))
+    kit_ids = [k.kit_id for k in packet.design.kits if wanted(packet.sheet_item(k))]
+    return story + log_forms(packet, kit_ids)
 
 
 def footer_text(packet: Packet) -> str:
@@ -485,13 +532,15 @@ def _with_contents(story: list[Flowable], contents: Table) -> list[Flowable]:
     return [contents if f is CONTENTS_MARK else f for f in story]
 
 
-def render_sheets(packet: Packet, out: str | Path | BinaryIO, story: list[Flowable] | None = None) -> None:
-    """Write the sheets PDF to a path or a binary stream."""
+def render_sheets(packet: Packet, out: str | Path | BinaryIO, story: list[Flowable] | None = None,
+                  *, only: Collection[str] | None = None) -> None:
+    """Write the sheets PDF (all of it, or the printable items in ``only``) to a path or a
+    binary stream."""
     pagesize = LETTER if packet.design.event.paper == "letter" else A4
     buf = io.BytesIO()
     doc = SheetDoc(buf, pagesize=pagesize, footer=footer_text(packet),
                    title=f"{packet.design.event.name} build sheets")
-    flowables = list(story) if story is not None else sheet_story(packet)
+    flowables = list(story) if story is not None else sheet_story(packet, only)
     while flowables and isinstance(flowables[-1], PageBreak):
         flowables.pop()  # no blank last page
     contents = contents_table(outline_entries(flowables))

@@ -11,6 +11,7 @@ from __future__ import annotations
 import re
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 from importlib.resources import files
 from pathlib import Path
 
@@ -19,7 +20,10 @@ import jinja2
 from buildsheet.errors import BuildError
 from buildsheet.spec.units import format_frequency, format_length
 from buildsheet.store.files import write_atomic
-from buildsheet.store.ledger import ElementHistory
+from buildsheet.records import SIDES, ElementHistory
+
+if TYPE_CHECKING:
+    from buildsheet.packet import ElementEntry
 
 INDEX_NAME = "index.html"
 #: The caution line on every element page; it defers to local rules.
@@ -65,6 +69,18 @@ class PrintView:
 
 
 @dataclass(frozen=True)
+class LegView:
+    """One leg's lengths as built against as designed, formatted."""
+
+    leg_id: str
+    prescribed: LengthText
+    as_cut: LengthText | None
+    current: LengthText
+    target: LengthText | None
+    action: str
+
+
+@dataclass(frozen=True)
 class PartnerLink:
     element_id: str
     href: str
@@ -83,9 +99,8 @@ class ElementPage:
     band_edges: str
     spec_revision: int
     predicted: LengthText
-    cut: LengthText
-    current_a: LengthText
-    current_b: LengthText
+    leg_views: tuple[LegView, ...]
+    advice: tuple[str, ...]
     legs: tuple[str, str]
     measurements: tuple[MeasurementView, ...]
     trims: tuple[TrimView, ...]
@@ -158,8 +173,28 @@ def _time(iso: str) -> str:
     return f"{m.group(1)} {m.group(2)} {'UTC' if zone in ('Z', '+00:00') else zone}".strip()
 
 
+def leg_views(h: ElementHistory, entry: ElementEntry | None, units: str) -> tuple[LegView, ...]:
+    """Formatted legs: from the packet's as-built state when the element is in the packet,
+    else (archived) from the ledger alone."""
+    if entry is not None:
+        return tuple(LegView(leg.leg_id, _precise(leg.prescribed_cut_m),
+                             None if leg.cut_m is None else _precise(leg.cut_m),
+                             _precise(leg.current_m), _precise(leg.target_m),
+                             leg.action.words(units, both=False))  # type: ignore[arg-type]
+                     for leg in entry.state.legs)
+    out = []
+    for side in SIDES:
+        cut, now = h.leg_cut(side), h.current_leg_m(side)
+        out.append(LegView(f"{h.element.id}-{side}", _precise(h.element.cut_leg_m),
+                           None if cut is None else _precise(cut.length_m),
+                           _precise(now if now is not None else h.element.cut_leg_m), None,
+                           "archived: no target"))
+    return tuple(out)
+
+
 def element_page(h: ElementHistory, built_at: str, sheet_file: str = "",
-                 sheet_href: str = "", comparison: tuple[tuple[str, str], ...] = ()) -> ElementPage:
+                 sheet_href: str = "", entry: ElementEntry | None = None,
+                 units: str = "metric") -> ElementPage:
     """The typed context of one element page."""
     e = h.element
     f0 = e.design_frequency_hz
@@ -180,26 +215,31 @@ def element_page(h: ElementHistory, built_at: str, sheet_file: str = "",
         design_frequency=format_frequency(f0),
         band_edges=f"{format_frequency(e.band_low_hz)} to {format_frequency(e.band_high_hz)}",
         spec_revision=e.spec_revision, predicted=_precise(e.predicted_leg_m),
-        cut=_precise(e.cut_leg_m), current_a=_precise(h.current_leg_m("A")),
-        current_b=_precise(h.current_leg_m("B")), legs=(f"{e.id}-A", f"{e.id}-B"),
+        leg_views=leg_views(h, entry, units), advice=entry.advice if entry else (),
+        legs=(f"{e.id}-A", f"{e.id}-B"),
         measurements=ms, trims=ts, prints=ps,
         partners=tuple(PartnerLink(p, page_name(p)) for p in e.partners),
         sheet_file=sheet_file, sheet_href=sheet_href, caution=CAUTION, built_at=built_at,
-        index_href=INDEX_NAME, comparison=comparison)
+        index_href=INDEX_NAME, comparison=entry.record_rows if entry else ())
 
 
 def index_page(histories: Sequence[ElementHistory], built_at: str,
-               title: str = "Element records") -> IndexPage:
+               title: str = "Element records",
+               entries: Mapping[str, ElementEntry] | None = None) -> IndexPage:
     """The typed context of the index: kits in order, elements by ID within each kit."""
     kits: dict[str, list[IndexRow]] = {}
     for h in sorted(histories, key=lambda h: (h.element.kit, h.element.id)):
         e = h.element
         last = h.measurements[-1] if h.measurements else None
-        current = min(h.current_leg_m("A"), h.current_leg_m("B"))
+        cuts = [c.length_m for c in (h.leg_cut(s) for s in SIDES) if c is not None]
+        nows = [x for x in (h.current_leg_m(s) for s in SIDES) if x is not None]
+        entry = (entries or {}).get(e.id)
+        state = entry.state.status if entry is not None else e.status
         kits.setdefault(e.kit, []).append(IndexRow(
             e.id, page_name(e.id), e.design, e.key, format_frequency(e.design_frequency_hz),
-            f"{e.cut_leg_m:.3f} m", f"{current:.3f} m",
-            format_frequency(last.dip_hz) if last else "", e.status))
+            f"{min(cuts):.3f} m" if cuts else f"not cut ({e.cut_leg_m:.3f} m)",
+            f"{min(nows):.3f} m" if nows else "",
+            format_frequency(last.dip_hz) if last else "", state))
     archived = sum(1 for h in histories if h.element.status == "archived")
     return IndexPage(title, tuple(KitSection(k, tuple(v)) for k, v in kits.items()),
                      len(histories), archived, built_at)
@@ -220,18 +260,18 @@ def render_site(histories: Sequence[ElementHistory], built_at: str,
                 sheet_hrefs: Mapping[str, str] | None = None,
                 title: str = "Element records",
                 env: jinja2.Environment | None = None,
-                comparisons: Mapping[str, tuple[tuple[str, str], ...]] | None = None,
-                ) -> dict[str, str]:
+                entries: Mapping[str, ElementEntry] | None = None,
+                units: str = "metric") -> dict[str, str]:
     """All pages as {file name: HTML text}. ``sheet_files`` / ``sheet_hrefs`` map element IDs to
-    the build sheet's name and a relative link to it (optional); ``comparisons`` holds per
-    element the (label, value) rows of predicted, calibrated and measured values."""
-    comparisons = comparisons or {}
+    the build sheet's name and a relative link to it (optional); ``entries`` are the packet's
+    elements (as-built state, advice, record rows) by ID."""
+    entries = entries or {}
     env = env or environment()
     sheet_files = sheet_files or {}
     sheet_hrefs = sheet_hrefs or {}
     element_t = env.get_template("element.html")
     pages = {INDEX_NAME: env.get_template("index.html").render(
-        page=index_page(histories, built_at, title))}
+        page=index_page(histories, built_at, title, entries))}
     for h in histories:
         eid = h.element.id
         name = page_name(eid)
@@ -239,7 +279,7 @@ def render_site(histories: Sequence[ElementHistory], built_at: str,
             raise BuildError(f"element IDs {eid!r} and another give the same page name {name}")
         pages[name] = element_t.render(page=element_page(
             h, built_at, sheet_files.get(eid, ""), sheet_hrefs.get(eid, ""),
-            comparisons.get(eid, ())))
+            entries.get(eid), units))
     return pages
 
 

@@ -108,7 +108,7 @@ class LabelSettings:
     """Winder label stock and where to start on the first sheet."""
 
     stock: object  # buildsheet.calc.labels.LabelStock (kept generic to avoid an import cycle)
-    start_cell: int = 0
+    start_cell: int | None = None  # None: continue where the store says the last sheet ended
 
 
 @dataclass(frozen=True)

@@ -273,6 +273,12 @@ def _read_design(r: _Reader, key: str, table: Any, wires: dict[str, WireType],
                          allowances, coax, coax_length, float(angle))
 
 
+def kit_id_for(number: int) -> str:
+    """The kit ID of kit ``number``: "K01" ... "K99", "K100" ... (never re-padded, so an ID once
+    printed on a label stays the same however many kits the spec grows to)."""
+    return f"K{number:02d}"
+
+
 def _read_kits(r: _Reader, raw: Any, designs: Mapping[str, AntennaDesign | None]) -> list[Kit]:
     if not isinstance(raw, list) or not raw:
         r.bad("kits", "expected one or more [[kits]] tables, each with 'design' and 'count'")
@@ -292,15 +298,13 @@ def _read_kits(r: _Reader, raw: Any, designs: Mapping[str, AntennaDesign | None]
                   "list at most one builder per kit")
         first = r.convert(t.get("first"), f"{path}.first", _number(int, 1, 999))
         entries.append((design, count, builders, first, path))
-    total = sum(c for _, c, _, _, _ in entries if c)
-    width = max(2, len(str(total + max((f or 0) for *_, f, _ in entries))))
     kits, used, number = [], set(), 1
     for design, count, builders, first, path in entries:
         if design is None or count is None:
             continue
         number = first if first is not None else number
         for j in range(count):
-            kit_id = f"K{number:0{width}d}"
+            kit_id = kit_id_for(number)
             if kit_id in used:
                 r.bad(f"{path}.first", f"kit number {number} is used twice; choose another 'first'")
             used.add(kit_id)
@@ -370,7 +374,8 @@ def read_spec_text(text: str, source: str = "spec.toml") -> Design:
 
     lb = r.keys(raw.get("labels", {}), "labels", _LABEL_KEYS)
     stock = _label_stock(r, lb.get("stock", "sheet-letter" if paper == "letter" else "sheet-a4"))
-    start = r.convert(lb.get("start_cell", 0), "labels.start_cell", _number(int, 0, 999))
+    start = (None if "start_cell" not in lb else
+             r.convert(lb["start_cell"], "labels.start_cell", _number(int, 0, 999)))
 
     ex = r.keys(raw.get("exposure", {}), "exposure", _EXPOSURE_KEYS)
     exposure = ExposureSettings(

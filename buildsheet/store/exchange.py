@@ -1,7 +1,6 @@
 """Export and import of the element record store as JSON (a readable backup and restore).
 
-Split out of :mod:`buildsheet.store.ledger` (which re-exports these names). The export holds every
-table; importing merges, skipping exact duplicates, in one transaction.
+The export holds every table; importing merges, skipping exact duplicates, in one transaction.
 """
 
 from __future__ import annotations
@@ -15,13 +14,13 @@ from typing import Any
 from buildsheet.errors import RecordError
 from buildsheet.store import ledger as _rec
 from buildsheet.store.ledger import (
-    _ELEMENT_COLS,
+    ELEMENT_COLS,
     ElementRow,
     RecordStore,
-    _corrupt,
-    _element,
-    _element_params,
-    _write,
+    corrupt_error,
+    element_from_row,
+    element_params,
+    write_transaction,
 )
 
 #: Export file format tag (``export_json``); bump the number on incompatible changes.
@@ -39,6 +38,8 @@ class ImportReport:
     skipped: int = 0
     conflicts: tuple[str, ...] = field(default_factory=tuple)
     calibrations: int = 0
+    cuts: int = 0
+    voids: int = 0
 
 
 # --------------------------------------------------------------------------- export / import
@@ -48,6 +49,8 @@ _TABLES: dict[str, tuple[str, ...]] = {
     "trims": ("element_id", "leg", "delta_m", "time", "note"),
     "prints": ("revision", "element_id", "kind", "hash", "file", "time"),
     "calibrations": ("design", "fingerprint", "data", "sources", "created"),
+    "cuts": ("element_id", "leg", "length_m", "revision", "how", "time", "note"),
+    "voids": ("kind", "element_id", "target", "reason", "time"),
 }
 
 
@@ -59,14 +62,14 @@ def export_json(store: RecordStore) -> dict[str, Any]:
         try:
             out: dict[str, Any] = {"format": EXPORT_FORMAT, "schema_version": _rec.SCHEMA_VERSION}
             out["elements"] = [{**asdict(e), "partners": list(e.partners)} for e in map(
-                _element, conn.execute(f"SELECT {_ELEMENT_COLS} FROM elements ORDER BY id"))]
+                element_from_row, conn.execute(f"SELECT {ELEMENT_COLS} FROM elements ORDER BY id"))]
             for table, cols in _TABLES.items():
                 out[table] = [dict(zip(cols, r)) for r in conn.execute(
                     f"SELECT {', '.join(cols)} FROM {table} ORDER BY id")]
         finally:
             conn.execute("COMMIT")
     except sqlite3.DatabaseError as exc:
-        raise _corrupt(store.path, exc) from exc
+        raise corrupt_error(store.path, exc) from exc
     return out
 
 
@@ -113,18 +116,18 @@ def import_json(store: RecordStore, data: Any) -> ImportReport:
     """
     data = _check_export(data)
     counts = {"elements": 0, "measurements": 0, "trims": 0, "prints": 0, "calibrations": 0,
-              "skipped": 0}
+              "cuts": 0, "voids": 0, "skipped": 0}
     conflicts: list[str] = []
-    with _write(store) as conn:
+    with write_transaction(store) as conn:
         for i, item in enumerate(data.get("elements", [])):
             row = _element_from_export(item, i)
-            found = conn.execute(f"SELECT {_ELEMENT_COLS} FROM elements WHERE id = ?",
+            found = conn.execute(f"SELECT {ELEMENT_COLS} FROM elements WHERE id = ?",
                                  (row.id,)).fetchone()
             if found is None:
-                conn.execute(f"INSERT INTO elements ({_ELEMENT_COLS}) VALUES "
-                             f"({', '.join('?' * 15)})", _element_params(row))
+                conn.execute(f"INSERT INTO elements ({ELEMENT_COLS}) VALUES "
+                             f"({', '.join('?' * 15)})", element_params(row))
                 counts["elements"] += 1
-            elif _element(found) == row:
+            elif element_from_row(found) == row:
                 counts["skipped"] += 1
             else:
                 conflicts.append(row.id)
@@ -145,4 +148,4 @@ def import_json(store: RecordStore, data: Any) -> ImportReport:
                 counts[table] += 1
     return ImportReport(counts["elements"], counts["measurements"], counts["trims"],
                         counts["prints"], counts["skipped"], tuple(conflicts),
-                        counts["calibrations"])
+                        counts["calibrations"], counts["cuts"], counts["voids"])

@@ -7,8 +7,14 @@ writers wait for each other instead of failing. Every write is one ``BEGIN IMMED
 transaction. Nothing is ever deleted (triggers refuse DELETE): elements dropped from the spec are
 archived. Lengths are metres, frequencies hertz, times ISO 8601 text passed in by the caller.
 
-Pure helpers (no I/O): :func:`trim_advice`, :func:`current_leg_m`, :func:`nearest_ids`.
-Export and import live in :mod:`buildsheet.store.exchange` (re-exported here).
+The ledger keeps two kinds of truth apart. *As designed*: the ``elements`` row holds what the
+latest packet printed for an element (its prescribed cut per leg, target, model slope), rewritten
+by every packet. *As built*: ``cuts`` (the length each leg was actually cut to, recorded when the
+cut is confirmed, or implicitly at the printed length by the leg's first reading or trim),
+``trims`` and ``measurements`` are append-only and never rewritten by a spec revision or a
+calibration; ``voids`` withdraw a wrong entry without deleting it. The numbers derived from both
+(current length, target, action, expected dip) are computed in :mod:`buildsheet.calc.asbuilt`.
+Export and import live in :mod:`buildsheet.store.exchange`.
 """
 
 from __future__ import annotations
@@ -26,23 +32,30 @@ from typing import Any, Literal, Self
 
 from buildsheet.errors import RecordError
 
-Status = Literal["active", "archived"]
-Leg = Literal["A", "B", "both"]
-PrintKind = Literal["sheet", "label"]
-LEGS: tuple[str, ...] = ("A", "B", "both")
-PRINT_KINDS: tuple[str, ...] = ("sheet", "label")
+from buildsheet.records import (  # noqa: F401 - the record types, re-exported for callers
+    LEGS,
+    PRINT_KINDS,
+    SIDES,
+    VOID_KINDS,
+    ElementHistory,
+    ElementRow,
+    Leg,
+    LegCut,
+    Measurement,
+    PrintKind,
+    PrintRecord,
+    Side,
+    Status,
+    Trim,
+    Void,
+    VoidKind,
+)
 
 #: How long a writer waits for another writer's lock before giving up, milliseconds.
 BUSY_TIMEOUT_MS = 30_000
 #: A dip this far outside the band edges (fraction of the edge) is refused as a probable unit
 #: slip or wrong element. An element cut 3-5 % long dips a few % below the band (common practice).
 DIP_WINDOW_FRACTION = 0.15
-#: Within this fraction of the design frequency the advice is "leave it" (0.1 %: 7 kHz at 7 MHz).
-ON_FREQUENCY_FRACTION = 0.001
-#: Trim in steps of this part of the computed amount, staying long (common practice).
-STEP_FRACTION = 0.5
-#: Legs differing by more than this get an "even up the legs" reminder, metres.
-LEG_MISMATCH_M = 0.005
 
 # Schema migrations: (version, statements). Append only; never edit a released migration.
 _NO_DELETE = ("CREATE TRIGGER {t}_keep BEFORE DELETE ON {t} BEGIN "
@@ -72,7 +85,7 @@ MIGRATIONS: tuple[tuple[int, tuple[str, ...]], ...] = (
         " element_id TEXT NOT NULL REFERENCES elements(id),"
         " kind TEXT NOT NULL CHECK (kind IN ('sheet', 'label')), hash TEXT NOT NULL,"
         " file TEXT NOT NULL DEFAULT '', time TEXT NOT NULL)"),
-        *(f"CREATE INDEX {t}_element ON {t} (element_id)" for t in _CHILD_TABLES),
+        *(f"CREATE INDEX {t}element_from_row ON {t} (element_id)" for t in _CHILD_TABLES),
         *(_NO_DELETE.format(t=t) for t in ("elements", *_CHILD_TABLES)),
     )),
     (2, (  # site calibrations per design (issue 7); ``data`` is the calibration as JSON
@@ -81,6 +94,29 @@ MIGRATIONS: tuple[tuple[int, tuple[str, ...]], ...] = (
          " created TEXT NOT NULL)"),
         "CREATE INDEX calibrations_design ON calibrations (design, fingerprint)",
         _NO_DELETE.format(t="calibrations"),
+    )),
+)
+MIGRATIONS += (
+    (3, (  # the as-built ledger: one row per leg cut; voids; small key-value state
+        ("CREATE TABLE cuts (id INTEGER PRIMARY KEY,"
+         " element_id TEXT NOT NULL REFERENCES elements(id),"
+         " leg TEXT NOT NULL CHECK (leg IN ('A', 'B')),"
+         " length_m REAL NOT NULL CHECK (length_m > 0), revision INTEGER NOT NULL,"
+         " how TEXT NOT NULL, time TEXT NOT NULL, note TEXT NOT NULL DEFAULT '')"),
+        "CREATE INDEX cuts_element ON cuts (element_id)",
+        _NO_DELETE.format(t="cuts"),
+        ("CREATE TABLE voids (id INTEGER PRIMARY KEY,"
+         " kind TEXT NOT NULL CHECK (kind IN ('measurement', 'trim', 'cut')),"
+         " element_id TEXT NOT NULL REFERENCES elements(id), target TEXT NOT NULL,"
+         " reason TEXT NOT NULL DEFAULT '', time TEXT NOT NULL)"),
+        _NO_DELETE.format(t="voids"),
+        "CREATE TABLE state (key TEXT PRIMARY KEY, value TEXT NOT NULL)",
+        # Stores that predate the ledger: wire with readings or trims was cut at the length the
+        # store held for it (what its label printed).
+        ("INSERT INTO cuts (element_id, leg, length_m, revision, how, time, note) "
+         "SELECT e.id, l.leg, e.cut_leg_m, e.spec_revision, 'before the ledger', e.updated, '' "
+         "FROM elements e, (SELECT 'A' AS leg UNION SELECT 'B') l WHERE e.id IN "
+         "(SELECT element_id FROM measurements UNION SELECT element_id FROM trims)"),
     )),
 )
 SCHEMA_VERSION: int = MIGRATIONS[-1][0]
@@ -100,111 +136,14 @@ def default_store(spec_path: str | Path) -> Path:
 
 
 @dataclass(frozen=True)
-class ElementRow:
-    """One element (a dipole on one band of a kit). Lengths are per leg in metres.
-
-    ``slope_m_per_hz`` is d(leg length)/d(resonant frequency), negative (longer wire, lower dip).
-    ``partners`` are the other element IDs on the same feed point. The last four fields are kept
-    by the store; callers of :func:`sync_elements` may leave them at their defaults.
-    """
-
-    id: str
-    kit: str
-    design: str
-    key: str
-    design_frequency_hz: float
-    band_low_hz: float
-    band_high_hz: float
-    predicted_leg_m: float
-    cut_leg_m: float
-    slope_m_per_hz: float
-    partners: tuple[str, ...] = ()
-    spec_revision: int = 0
-    status: Status = "active"
-    created: str = ""
-    updated: str = ""
-
-
-@dataclass(frozen=True)
-class Measurement:
-    """An analyzer reading: the frequency of the SWR dip (Hz) and the SWR there."""
-
-    id: int
-    element_id: str
-    time: str
-    dip_hz: float
-    swr: float | None
-    note: str
-
-
-@dataclass(frozen=True)
-class Trim:
-    """Wire removed from a leg (``delta_m`` > 0) or added back (< 0), metres."""
-
-    id: int
-    element_id: str
-    leg: Leg
-    delta_m: float
-    time: str
-    note: str
-
-
-@dataclass(frozen=True)
-class PrintRecord:
-    """A sheet or label printed for an element by packet revision ``revision``."""
-
-    id: int
-    revision: int
-    element_id: str
-    kind: PrintKind
-    hash: str
-    file: str
-    time: str
-
-
-@dataclass(frozen=True)
-class ElementHistory:
-    """An element with everything recorded for it, oldest first."""
-
-    element: ElementRow
-    measurements: tuple[Measurement, ...] = ()
-    trims: tuple[Trim, ...] = ()
-    prints: tuple[PrintRecord, ...] = ()
-
-    def current_leg_m(self, leg: Literal["A", "B"]) -> float:
-        """Current length of one leg, metres (cut length minus trims)."""
-        return current_leg_m(self.element.cut_leg_m, self.trims, leg)
-
-
-@dataclass(frozen=True)
-class TrimAdvice:
-    """What to do after a dip reading. ``per_leg_m`` > 0: remove that much from each leg;
-    < 0: add that much back to each leg. ``first_step_m`` is the suggested first cut."""
-
-    element_id: str
-    dip_hz: float
-    design_frequency_hz: float
-    action: Literal["remove", "add back", "none"]
-    per_leg_m: float
-    first_step_m: float
-    recheck: tuple[str, ...]
-    lines: tuple[str, ...]
-
-
-@dataclass(frozen=True)
 class SyncReport:
-    """Outcome of :func:`sync_elements`, element IDs sorted.
-
-    ``kept_cut``: elements whose predicted length changed but which already have measurements or
-    trims, so their recorded cut length (the wire that exists) was kept.
-    """
+    """Outcome of :func:`sync_elements`, element IDs sorted."""
 
     new: tuple[str, ...] = ()
     changed: tuple[str, ...] = ()
     unchanged: tuple[str, ...] = ()
     archived: tuple[str, ...] = ()
     restored: tuple[str, ...] = ()
-    kept_cut: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -231,11 +170,6 @@ def iso_time(moment: datetime) -> str:
     return moment.isoformat(timespec="seconds")
 
 
-def current_leg_m(cut_leg_m: float, trims: Iterable[Trim], leg: Literal["A", "B"]) -> float:
-    """Current length of leg A or B, metres: the cut length minus the trims on that leg."""
-    return cut_leg_m - sum(t.delta_m for t in trims if t.leg in (leg, "both"))
-
-
 def nearest_ids(wanted: str, existing: Iterable[str], n: int = 3) -> list[str]:
     """The existing IDs closest to ``wanted`` (case-insensitive difflib ratio)."""
     by_upper = {e.upper(): e for e in existing}
@@ -248,52 +182,6 @@ def dip_window_hz(row: ElementRow) -> tuple[float, float]:
     return row.band_low_hz / (1.0 + DIP_WINDOW_FRACTION), row.band_high_hz * (1.0 + DIP_WINDOW_FRACTION)
 
 
-def trim_advice(row: ElementRow, dip_hz: float, trims: Sequence[Trim] = ()) -> TrimAdvice:
-    """Per-leg change that moves the dip to the design frequency.
-
-    dL = slope * (f_design - f_dip), with slope = dL/df < 0 from the model; when the slope is
-    missing or not negative the proportional rule dL = -L * df / f is used (REFERENCES 11,
-    common practice). Advice: trim both legs the same, in steps, staying long (common practice).
-    """
-    f0 = row.design_frequency_hz
-    a, b = current_leg_m(row.cut_leg_m, trims, "A"), current_leg_m(row.cut_leg_m, trims, "B")
-    slope = row.slope_m_per_hz
-    lines: list[str] = []
-    if not (math.isfinite(slope) and slope < 0):
-        slope = -((a + b) / 2.0) / dip_hz
-        lines.append("No model slope recorded: using the proportional rule dL = L*df/f.")
-    change = slope * (f0 - dip_hz)  # new leg minus current leg, metres
-    per_leg = -change  # positive: remove
-    khz = (dip_hz - f0) / 1e3
-    where = "low" if khz < 0 else "high"
-    recheck = row.partners
-    if abs(dip_hz - f0) <= ON_FREQUENCY_FRACTION * f0:
-        action: Literal["remove", "add back", "none"] = "none"
-        per_leg, step = 0.0, 0.0
-        lines.append(f"Dip is {abs(khz):.0f} kHz {where} of the design frequency: on frequency, "
-                     "leave it.")
-    elif per_leg > 0:
-        action, step = "remove", per_leg * STEP_FRACTION
-        lines.append(f"Dip is {abs(khz):.0f} kHz {where}: the element is long. Remove about "
-                     f"{per_leg * 1000:.0f} mm from EACH leg (both legs the same).")
-        lines.append(f"Cut in steps, part of the computed amount each time (first about "
-                     f"{step * 1000:.0f} mm), re-measure, and stay long.")
-        if per_leg >= min(a, b):
-            lines.append("That is more than the leg: check the element ID and the reading.")
-    else:
-        action, step = "add back", -per_leg * STEP_FRACTION
-        lines.append(f"Dip is {abs(khz):.0f} kHz {where}: the element is short. Add back about "
-                     f"{-per_leg * 1000:.0f} mm to EACH leg (unfold wire at the end insulator "
-                     "or splice).")
-    if abs(a - b) > LEG_MISMATCH_M:
-        lines.append(f"Legs differ by {abs(a - b) * 1000:.0f} mm (A {a:.3f} m, B {b:.3f} m): "
-                     "even them up.")
-    if recheck and action != "none":
-        lines.append("After trimming, re-check the other elements on this feed: "
-                     + ", ".join(recheck) + ".")
-    return TrimAdvice(row.id, dip_hz, f0, action, per_leg, step, recheck, tuple(lines))
-
-
 # --------------------------------------------------------------------------- open / close
 
 
@@ -303,7 +191,7 @@ def _connect(path: Path) -> sqlite3.Connection:
     return conn
 
 
-def _corrupt(path: Path, exc: Exception) -> RecordError:
+def corrupt_error(path: Path, exc: Exception) -> RecordError:
     return RecordError(f"{path}: not a readable record store ({exc}). Nothing was changed; "
                        "restore it from a JSON export with `buildsheet import` into a new file.")
 
@@ -325,7 +213,7 @@ def open_store(path: str | Path, *, create: bool = True, verify: bool = False) -
         if verify:
             problems = [r[0] for r in conn.execute("PRAGMA quick_check")]
             if problems != ["ok"]:
-                raise _corrupt(path, sqlite3.DatabaseError("; ".join(problems[:3])))
+                raise corrupt_error(path, sqlite3.DatabaseError("; ".join(problems[:3])))
         version = conn.execute("PRAGMA user_version").fetchone()[0]
         if version > SCHEMA_VERSION:
             raise RecordError(f"{path}: made by a newer buildsheet (schema {version}, this "
@@ -337,7 +225,7 @@ def open_store(path: str | Path, *, create: bool = True, verify: bool = False) -
             _migrate(conn, path)
     except sqlite3.DatabaseError as exc:
         conn.close()
-        raise _corrupt(path, exc) from exc
+        raise corrupt_error(path, exc) from exc
     except BaseException:
         conn.close()
         raise
@@ -378,13 +266,13 @@ def integrity_check(store: RecordStore) -> list[str]:
 
 
 @contextmanager
-def _write(store: RecordStore) -> Iterator[sqlite3.Connection]:
+def write_transaction(store: RecordStore) -> Iterator[sqlite3.Connection]:
     """One write transaction; waits for other writers; sqlite errors become RecordError."""
     conn = store.conn
     try:
         conn.execute("BEGIN IMMEDIATE")
     except sqlite3.DatabaseError as exc:
-        raise _corrupt(store.path, exc) from exc
+        raise corrupt_error(store.path, exc) from exc
     try:
         yield conn
         conn.execute("COMMIT")
@@ -395,7 +283,7 @@ def _write(store: RecordStore) -> Iterator[sqlite3.Connection]:
             raise RecordError(f"{store.path}: rejected by the record store ({exc}); "
                               "nothing was changed") from exc
         if isinstance(exc, sqlite3.DatabaseError):
-            raise _corrupt(store.path, exc) from exc
+            raise corrupt_error(store.path, exc) from exc
         raise
 
 
@@ -403,22 +291,22 @@ def _read(store: RecordStore, sql: str, params: Sequence[Any] = ()) -> list[tupl
     try:
         return store.conn.execute(sql, params).fetchall()
     except sqlite3.DatabaseError as exc:
-        raise _corrupt(store.path, exc) from exc
+        raise corrupt_error(store.path, exc) from exc
 
 
 # --------------------------------------------------------------------------- elements
 
-_ELEMENT_COLS = ("id, kit, design, element_key, design_frequency_hz, band_low_hz, band_high_hz, "
+ELEMENT_COLS = ("id, kit, design, element_key, design_frequency_hz, band_low_hz, band_high_hz, "
                  "predicted_leg_m, cut_leg_m, slope_m_per_hz, partners, spec_revision, status, "
                  "created, updated")
 
 
-def _element(r: Sequence[Any]) -> ElementRow:
+def element_from_row(r: Sequence[Any]) -> ElementRow:
     return ElementRow(r[0], r[1], r[2], r[3], r[4], r[5], r[6], r[7], r[8], r[9],
                       tuple(json.loads(r[10])), r[11], r[12], r[13], r[14])
 
 
-def _element_params(e: ElementRow) -> tuple[Any, ...]:
+def element_params(e: ElementRow) -> tuple[Any, ...]:
     return (e.id, e.kit, e.design, e.key, e.design_frequency_hz, e.band_low_hz, e.band_high_hz,
             e.predicted_leg_m, e.cut_leg_m, e.slope_m_per_hz, json.dumps(list(e.partners)),
             e.spec_revision, e.status, e.created, e.updated)
@@ -427,9 +315,9 @@ def _element_params(e: ElementRow) -> tuple[Any, ...]:
 def list_elements(store: RecordStore, status: Status | None = None) -> list[ElementRow]:
     """All elements (or those with one status), sorted by ID."""
     where = "" if status is None else " WHERE status = ?"
-    rows = _read(store, f"SELECT {_ELEMENT_COLS} FROM elements{where} ORDER BY id",
+    rows = _read(store, f"SELECT {ELEMENT_COLS} FROM elements{where} ORDER BY id",
                  () if status is None else (status,))
-    return [_element(r) for r in rows]
+    return [element_from_row(r) for r in rows]
 
 
 def _unknown(store: RecordStore, wanted: str) -> RecordError:
@@ -442,23 +330,23 @@ def _unknown(store: RecordStore, wanted: str) -> RecordError:
 
 def get_element(store: RecordStore, element_id: str) -> ElementRow:
     """The element with this ID; RecordError naming the nearest IDs when unknown."""
-    rows = _read(store, f"SELECT {_ELEMENT_COLS} FROM elements WHERE id = ?", (element_id,))
+    rows = _read(store, f"SELECT {ELEMENT_COLS} FROM elements WHERE id = ?", (element_id,))
     if not rows:
         raise _unknown(store, element_id)
-    return _element(rows[0])
+    return element_from_row(rows[0])
 
 
 def resolve_id(store: RecordStore, text: str) -> tuple[ElementRow, Literal["A", "B"] | None]:
     """Element for an element ID ("K03-40m") or a leg ID ("K03-40m-A": also returns the leg)."""
     text = text.strip()
-    rows = _read(store, f"SELECT {_ELEMENT_COLS} FROM elements WHERE id = ?", (text,))
+    rows = _read(store, f"SELECT {ELEMENT_COLS} FROM elements WHERE id = ?", (text,))
     if rows:
-        return _element(rows[0]), None
+        return element_from_row(rows[0]), None
     base, _, leg = text.rpartition("-")
     if base and leg.upper() in ("A", "B"):
-        rows = _read(store, f"SELECT {_ELEMENT_COLS} FROM elements WHERE id = ?", (base,))
+        rows = _read(store, f"SELECT {ELEMENT_COLS} FROM elements WHERE id = ?", (base,))
         if rows:
-            return _element(rows[0]), "A" if leg.upper() == "A" else "B"
+            return element_from_row(rows[0]), "A" if leg.upper() == "A" else "B"
     raise _unknown(store, text)
 
 
@@ -470,11 +358,11 @@ def _same_design(a: ElementRow, b: ElementRow) -> bool:
 
 def sync_elements(store: RecordStore, rows: Iterable[ElementRow], revision: int,
                   now: datetime) -> SyncReport:
-    """Bring the store in line with a spec revision, in one transaction.
+    """Bring the store's as-designed rows in line with a packet, in one transaction.
 
-    Inserts new elements, updates changed ones (predicted length, slope, partners...; the cut
-    length too unless the element already has measurements or trims, since that wire exists),
-    re-activates archived ones that are back, and archives active ones no longer present.
+    Inserts new elements, updates changed ones (prescribed cut, predicted leg, slope,
+    partners...), re-activates archived ones that are back, and archives active ones no longer
+    present. As-built rows (cuts, trims, measurements) are never touched.
     """
     stamp = iso_time(now)
     rows = list(rows)
@@ -486,25 +374,19 @@ def sync_elements(store: RecordStore, rows: Iterable[ElementRow], revision: int,
     changed: list[str] = []
     unchanged: list[str] = []
     restored: list[str] = []
-    kept: list[str] = []
-    with _write(store) as conn:
-        existing = {e.id: e for e in map(_element, conn.execute(
-            f"SELECT {_ELEMENT_COLS} FROM elements"))}
-        touched = {r[0] for r in conn.execute(
-            "SELECT element_id FROM measurements UNION SELECT element_id FROM trims")}
+    with write_transaction(store) as conn:
+        existing = {e.id: e for e in map(element_from_row, conn.execute(
+            f"SELECT {ELEMENT_COLS} FROM elements"))}
         for eid, row in sorted(wanted.items()):
             old = existing.get(eid)
             if old is None:
                 fresh = replace(row, partners=tuple(row.partners), spec_revision=revision,
                                 status="active", created=stamp, updated=stamp)
-                conn.execute(f"INSERT INTO elements ({_ELEMENT_COLS}) VALUES "
-                             f"({', '.join('?' * 15)})", _element_params(fresh))
+                conn.execute(f"INSERT INTO elements ({ELEMENT_COLS}) VALUES "
+                             f"({', '.join('?' * 15)})", element_params(fresh))
                 new.append(eid)
                 continue
-            cut = old.cut_leg_m if eid in touched else row.cut_leg_m
-            if eid in touched and row.cut_leg_m != old.cut_leg_m:
-                kept.append(eid)
-            candidate = replace(row, partners=tuple(row.partners), cut_leg_m=cut)
+            candidate = replace(row, partners=tuple(row.partners))
             was_archived = old.status == "archived"
             if _same_design(candidate, old) and not was_archived:
                 unchanged.append(eid)
@@ -515,7 +397,7 @@ def sync_elements(store: RecordStore, rows: Iterable[ElementRow], revision: int,
                 "band_low_hz=?, band_high_hz=?, predicted_leg_m=?, cut_leg_m=?, slope_m_per_hz=?, "
                 "partners=?, spec_revision=?, status='active', updated=? WHERE id=?",
                 (row.kit, row.design, row.key, row.design_frequency_hz, row.band_low_hz,
-                 row.band_high_hz, row.predicted_leg_m, cut, row.slope_m_per_hz,
+                 row.band_high_hz, row.predicted_leg_m, row.cut_leg_m, row.slope_m_per_hz,
                  json.dumps(list(row.partners)), rev, stamp, eid))
             (restored if was_archived else changed).append(eid)
         archived = sorted(e.id for e in existing.values()
@@ -523,22 +405,81 @@ def sync_elements(store: RecordStore, rows: Iterable[ElementRow], revision: int,
         conn.executemany("UPDATE elements SET status='archived', updated=? WHERE id=?",
                          [(stamp, eid) for eid in archived])
     return SyncReport(tuple(new), tuple(changed), tuple(unchanged), tuple(archived),
-                      tuple(restored), tuple(kept))
+                      tuple(restored))
 
 
-# --------------------------------------------------------------------------- measurements, trims
+# --------------------------------------------------------------------------- as built
+
+_CUT_COLS = "id, element_id, leg, length_m, revision, how, time, note"
+_VOID_COLS = "id, kind, element_id, target, reason, time"
 
 
-def _trims(store: RecordStore, element_id: str) -> list[Trim]:
-    return [Trim(*r) for r in _read(
-        store, "SELECT id, element_id, leg, delta_m, time, note FROM trims "
-        "WHERE element_id = ? ORDER BY time, id", (element_id,))]
+def _active(row: ElementRow) -> None:
+    if row.status != "active":
+        raise RecordError(f"{row.id} is archived (dropped from the spec); nothing recorded")
+
+
+def _void_key(record: Measurement | Trim | LegCut) -> str:
+    """The content key a void names its target by (stable across export and import)."""
+    if isinstance(record, Measurement):
+        return json.dumps(["measurement", record.element_id, record.time, record.dip_hz])
+    if isinstance(record, Trim):
+        return json.dumps(["trim", record.element_id, record.time, record.leg, record.delta_m])
+    return json.dumps(["cut", record.element_id, record.time, record.leg, record.length_m])
+
+
+def _history_rows(conn: sqlite3.Connection | RecordStore, element_id: str) -> ElementHistory:
+    store_conn = conn.conn if isinstance(conn, RecordStore) else conn
+    row = element_from_row(store_conn.execute(f"SELECT {ELEMENT_COLS} FROM elements WHERE id = ?",
+                                      (element_id,)).fetchone())
+    return _assemble([row], store_conn, element_id)[0]
+
+
+def _insert_cut(conn: sqlite3.Connection, row: ElementRow, leg: Side, length_m: float,
+                how: str, stamp: str, note: str = "") -> LegCut:
+    cur = conn.execute("INSERT INTO cuts (element_id, leg, length_m, revision, how, time, note) "
+                       "VALUES (?, ?, ?, ?, ?, ?, ?)",
+                       (row.id, leg, length_m, row.spec_revision, how, stamp, note))
+    return LegCut(int(cur.lastrowid or 0), row.id, leg, length_m, row.spec_revision, how,
+                  stamp, note)
+
+
+def _confirm_uncut(conn: sqlite3.Connection, row: ElementRow, how: str, stamp: str) -> None:
+    """Implicit confirmation: a leg's first reading or trim confirms it at its printed cut."""
+    history = _history_rows(conn, row.id)
+    for side in SIDES:
+        if history.leg_cut(side) is None:
+            _insert_cut(conn, row, side, row.cut_leg_m, how, stamp)
+
+
+def confirm_cut(store: RecordStore, element_id: str, legs: Sequence[Side], now: datetime, *,
+                length_m: float | None = None, note: str = "") -> tuple[LegCut, ...]:
+    """Record that ``legs`` of an element were cut: at ``length_m`` (metres) or, by default, at
+    the prescribed cut its label prints. A leg already cut is cut again only with an explicit
+    length (a re-cut). RecordError for an unknown or archived element or a bad length."""
+    row = get_element(store, element_id)
+    _active(row)
+    if length_m is not None and not (math.isfinite(length_m) and 0.0 < length_m <= 1000.0):
+        raise RecordError(f"{element_id}: a cut length must be between 0 and 1000 m, got "
+                          f"{length_m} m. Nothing recorded.")
+    stamp = iso_time(now)
+    out = []
+    with write_transaction(store) as conn:
+        history = _history_rows(conn, element_id)
+        for side in dict.fromkeys(legs):
+            if history.leg_cut(side) is not None and length_m is None:
+                continue  # already confirmed: nothing to do
+            out.append(_insert_cut(conn, row, side, length_m or row.cut_leg_m,
+                                   "confirmed" if history.leg_cut(side) is None else "re-cut",
+                                   stamp, note))
+    return tuple(out)
 
 
 def add_measurement(store: RecordStore, element_id: str, dip_hz: float, swr: float | None,
                     note: str, now: datetime) -> Measurement:
-    """Record an analyzer dip (Hz) for an element. RecordError for an unknown ID, an archived
-    element, a dip far outside the element's band or an SWR below 1."""
+    """Record an analyzer dip (Hz) for an element, confirming uncut legs at their printed cut.
+    RecordError for an unknown ID, an archived element, a dip far outside the element's band
+    or an SWR below 1."""
     row = get_element(store, element_id)
     lo, hi = dip_window_hz(row)
     if not (math.isfinite(dip_hz) and lo <= dip_hz <= hi):
@@ -548,10 +489,10 @@ def add_measurement(store: RecordStore, element_id: str, dip_hz: float, swr: flo
             "and the element ID. Nothing recorded.")
     if swr is not None and not (math.isfinite(swr) and swr >= 1.0):
         raise RecordError(f"{element_id}: SWR must be 1 or more, got {swr}. Nothing recorded.")
-    if row.status != "active":
-        raise RecordError(f"{element_id} is archived (dropped from the spec); nothing recorded")
+    _active(row)
     stamp = iso_time(now)
-    with _write(store) as conn:
+    with write_transaction(store) as conn:
+        _confirm_uncut(conn, row, "first reading", stamp)
         cur = conn.execute("INSERT INTO measurements (element_id, time, dip_hz, swr, note) "
                            "VALUES (?, ?, ?, ?, ?)", (element_id, stamp, dip_hz, swr, note))
         return Measurement(int(cur.lastrowid or 0), element_id, stamp, dip_hz, swr, note)
@@ -559,30 +500,70 @@ def add_measurement(store: RecordStore, element_id: str, dip_hz: float, swr: flo
 
 def add_trim(store: RecordStore, element_id: str, leg: Leg, delta_m: float, note: str,
              now: datetime) -> Trim:
-    """Record wire removed (``delta_m`` > 0) or added back (< 0), metres, on leg A, B or both.
+    """Record wire removed (``delta_m`` > 0) or added back (< 0), metres, on leg A, B or both,
+    confirming uncut legs at their printed cut first.
 
-    Refuses a zero or non-finite amount, an unknown leg, and a removal that leaves no wire.
-    The check and the insert run in one transaction, so concurrent trims cannot overshoot.
+    Refuses a zero or non-finite amount, an unknown leg, a removal that leaves no wire and an
+    addition of more than was trimmed since the cut. The check and the insert run in one
+    transaction, so concurrent trims cannot overshoot.
     """
     if leg not in LEGS:
         raise RecordError(f"leg must be one of {', '.join(LEGS)}, got {leg!r}")
     if not math.isfinite(delta_m) or delta_m == 0.0:
         raise RecordError(f"{element_id}: trim amount must be a non-zero length, got {delta_m} m")
     row = get_element(store, element_id)
-    if row.status != "active":
-        raise RecordError(f"{element_id} is archived (dropped from the spec); nothing recorded")
+    _active(row)
     stamp = iso_time(now)
-    with _write(store) as conn:
-        trims = _trims(store, element_id)
-        for side in (("A", "B") if leg == "both" else (leg,)):
-            left = current_leg_m(row.cut_leg_m, trims, side)  # type: ignore[arg-type]
+    with write_transaction(store) as conn:
+        _confirm_uncut(conn, row, "first trim", stamp)
+        history = _history_rows(conn, element_id)
+        for side in (SIDES if leg == "both" else (leg,)):
+            cut = history.leg_cut(side)  # type: ignore[arg-type]
+            left = history.current_leg_m(side)  # type: ignore[arg-type]
+            assert cut is not None and left is not None
             if delta_m >= left:
                 raise RecordError(
                     f"{element_id}-{side}: cannot remove {delta_m * 1000:.0f} mm, the leg is "
                     f"only {left * 1000:.0f} mm long now. Nothing recorded.")
+            if delta_m < 0 and left - delta_m > cut.length_m + 1e-9:
+                raise RecordError(
+                    f"{element_id}-{side}: cannot add back {-delta_m * 1000:.0f} mm, only "
+                    f"{(cut.length_m - left) * 1000:.0f} mm were trimmed since it was cut; "
+                    "for a longer leg record a re-cut (`buildsheet cut ID --length L`). "
+                    "Nothing recorded.")
         cur = conn.execute("INSERT INTO trims (element_id, leg, delta_m, time, note) "
                            "VALUES (?, ?, ?, ?, ?)", (element_id, leg, delta_m, stamp, note))
         return Trim(int(cur.lastrowid or 0), element_id, leg, delta_m, stamp, note)
+
+
+def void_record(store: RecordStore, kind: VoidKind, record_id: int, reason: str,
+                now: datetime) -> Void:
+    """Withdraw a wrong measurement, trim or cut (by its row number) without deleting it: the
+    ledger then ignores it. RecordError for an unknown row or one already voided."""
+    if kind not in VOID_KINDS:
+        raise RecordError(f"void: kind must be one of {', '.join(VOID_KINDS)}, got {kind!r}")
+    table = {"measurement": "measurements", "trim": "trims", "cut": "cuts"}[kind]
+    stamp = iso_time(now)
+    with write_transaction(store) as conn:
+        found = conn.execute(f"SELECT element_id FROM {table} WHERE id = ?",
+                             (record_id,)).fetchone()
+        if found is None:
+            raise RecordError(f"void: there is no {kind} number {record_id}; `buildsheet "
+                              "history ID` lists the numbers")
+        history = _history_rows(conn, found[0])
+        record = next((r for r in (*history.measurements, *history.trims, *history.cuts)
+                       if r.id == record_id and _kind(r) == kind), None)
+        if record is None:
+            raise RecordError(f"void: {kind} {record_id} of {found[0]} is already void")
+        key = _void_key(record)
+        cur = conn.execute("INSERT INTO voids (kind, element_id, target, reason, time) VALUES "
+                           "(?, ?, ?, ?, ?)", (kind, found[0], key, reason, stamp))
+        return Void(int(cur.lastrowid or 0), kind, found[0], key, reason, stamp)
+
+
+def _kind(record: Measurement | Trim | LegCut) -> VoidKind:
+    return ("measurement" if isinstance(record, Measurement)
+            else "trim" if isinstance(record, Trim) else "cut")
 
 
 def record_print(store: RecordStore, revision: int, element_id: str, kind: PrintKind,
@@ -592,34 +573,70 @@ def record_print(store: RecordStore, revision: int, element_id: str, kind: Print
         raise RecordError(f"print kind must be one of {', '.join(PRINT_KINDS)}, got {kind!r}")
     get_element(store, element_id)
     stamp = iso_time(now)
-    with _write(store) as conn:
+    with write_transaction(store) as conn:
         cur = conn.execute("INSERT INTO prints (revision, element_id, kind, hash, file, time) "
                            "VALUES (?, ?, ?, ?, ?, ?)",
                            (revision, element_id, kind, digest, file, stamp))
         return PrintRecord(int(cur.lastrowid or 0), revision, element_id, kind, digest, file, stamp)
 
 
-def load_histories(store: RecordStore, ids: Iterable[str] | None = None) -> list[ElementHistory]:
-    """Every element (or the given IDs) with its measurements, trims and prints (4 queries)."""
-    elements = list_elements(store)
-    if ids is not None:
-        keep = set(ids)
-        elements = [e for e in elements if e.id in keep]
-    by_id: dict[str, dict[str, list[Any]]] = {e.id: {"m": [], "t": [], "p": []} for e in elements}
-    for r in _read(store, "SELECT id, element_id, time, dip_hz, swr, note FROM measurements "
-                   "ORDER BY time, id"):
+def get_state(store: RecordStore, key: str) -> str | None:
+    """A value of the store's small key-value state (e.g. used label cells), or None."""
+    rows = _read(store, "SELECT value FROM state WHERE key = ?", (key,))
+    return rows[0][0] if rows else None
+
+
+def set_state(store: RecordStore, key: str, value: str) -> None:
+    """Set a key of the store's state (one transaction)."""
+    with write_transaction(store) as conn:
+        conn.execute("INSERT INTO state (key, value) VALUES (?, ?) ON CONFLICT(key) DO UPDATE "
+                     "SET value = excluded.value", (key, value))
+
+
+def _assemble(elements: Sequence[ElementRow], conn: sqlite3.Connection,
+              only: str | None = None) -> list[ElementHistory]:
+    where, params = ("WHERE element_id = ? ", (only,)) if only else ("", ())
+    by_id: dict[str, dict[str, list[Any]]] = {
+        e.id: {"m": [], "t": [], "p": [], "c": []} for e in elements}
+    for r in conn.execute("SELECT id, element_id, time, dip_hz, swr, note FROM measurements "
+                          f"{where}ORDER BY time, id", params):
         if r[1] in by_id:
             by_id[r[1]]["m"].append(Measurement(*r))
-    for r in _read(store, "SELECT id, element_id, leg, delta_m, time, note FROM trims "
-                   "ORDER BY time, id"):
+    for r in conn.execute("SELECT id, element_id, leg, delta_m, time, note FROM trims "
+                          f"{where}ORDER BY time, id", params):
         if r[1] in by_id:
             by_id[r[1]]["t"].append(Trim(*r))
-    for r in _read(store, "SELECT id, revision, element_id, kind, hash, file, time FROM prints "
-                   "ORDER BY revision, time, id"):
+    for r in conn.execute("SELECT id, revision, element_id, kind, hash, file, time FROM prints "
+                          f"{where}ORDER BY revision, time, id", params):
         if r[2] in by_id:
             by_id[r[2]]["p"].append(PrintRecord(*r))
-    return [ElementHistory(e, tuple(by_id[e.id]["m"]), tuple(by_id[e.id]["t"]),
-                           tuple(by_id[e.id]["p"])) for e in elements]
+    for r in conn.execute(f"SELECT {_CUT_COLS} FROM cuts {where}ORDER BY time, id", params):
+        if r[1] in by_id:
+            by_id[r[1]]["c"].append(LegCut(*r))
+    voided = {r[0] for r in conn.execute(f"SELECT target FROM voids {where}", params)}
+    out = []
+    for e in elements:
+        rec = by_id[e.id]
+        gone = tuple(x for x in (*rec["c"], *rec["t"], *rec["m"]) if _void_key(x) in voided)
+        keep = [tuple(x for x in rec[k] if _void_key(x) not in voided) for k in ("m", "t", "c")]
+        out.append(ElementHistory(e, keep[0], keep[1], tuple(rec["p"]), keep[2], gone))
+    return out
+
+
+def load_histories(store: RecordStore, ids: Iterable[str] | None = None) -> list[ElementHistory]:
+    """Every element (or the given IDs) with its as-built records and prints, in one snapshot."""
+    try:
+        store.conn.execute("BEGIN")
+        try:
+            elements = list_elements(store)
+            if ids is not None:
+                keep = set(ids)
+                elements = [e for e in elements if e.id in keep]
+            return _assemble(elements, store.conn)
+        finally:
+            store.conn.execute("COMMIT")
+    except sqlite3.DatabaseError as exc:
+        raise corrupt_error(store.path, exc) from exc
 
 
 def element_history(store: RecordStore, element_id: str) -> ElementHistory:
@@ -656,7 +673,7 @@ def save_calibration(store: RecordStore, design_key: str, fingerprint: str,
         raise RecordError("a calibration needs a design key and a geometry fingerprint")
     stamp = iso_time(now)
     text, sources = json.dumps(dict(data), sort_keys=True), json.dumps(list(source_ids))
-    with _write(store) as conn:
+    with write_transaction(store) as conn:
         cur = conn.execute("INSERT INTO calibrations (design, fingerprint, data, sources, created)"
                            " VALUES (?, ?, ?, ?, ?)", (design_key, fingerprint, text, sources, stamp))
         return CalibrationRecord(int(cur.lastrowid or 0), design_key, fingerprint,
@@ -679,15 +696,3 @@ def list_calibrations(store: RecordStore, design_key: str | None = None) -> list
     return [_calibration(r) for r in _read(
         store, f"SELECT id, design, fingerprint, data, sources, created FROM calibrations{where}"
         " ORDER BY created, id", () if design_key is None else (design_key,))]
-
-
-_IO_NAMES = frozenset({"EXPORT_FORMAT", "ImportReport", "export_json", "import_json"})
-
-
-def __getattr__(name: str) -> Any:
-    """Export/import names, moved to :mod:`buildsheet.store.exchange`, still reachable from here."""
-    if name in _IO_NAMES:
-        from buildsheet.store import exchange as records_io
-
-        return getattr(records_io, name)
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

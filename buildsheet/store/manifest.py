@@ -54,6 +54,9 @@ class Manifest:
     format: str = MANIFEST_FORMAT
     spec: str = ""  # the spec's file name, for people reading the manifest
     notes: tuple[str, ...] = ()  # what this packet wrote (e.g. a changed-only build), plain text
+    items: Mapping[str, str] = field(default_factory=dict)  # printable item -> content hash
+    reprinted: Mapping[str, Any] = field(default_factory=dict)  # kit_sheets, labels, day_pages
+    store: str = ""  # the record store, relative to the packet folder where possible
 
 
 @dataclass(frozen=True)
@@ -175,7 +178,9 @@ def manifest_to_dict(m: Manifest) -> dict[str, Any]:
                            "cut_leg_m": e.cut_leg_m, "files": list(e.files)}
                      for eid, e in sorted(m.elements.items())},
         "files": dict(sorted(m.files.items())),
-        "spec": m.spec, "notes": list(m.notes),
+        "spec": m.spec, "notes": list(m.notes), "store": m.store,
+        "items": dict(sorted(m.items.items())),
+        "reprinted": {k: list(v) for k, v in sorted(m.reprinted.items())},
     }
 
 
@@ -214,8 +219,19 @@ def manifest_from_dict(data: Any) -> Manifest:
     notes = data.get("notes", [])
     if not isinstance(notes, list) or not all(isinstance(n, str) for n in notes):
         raise ValueError("notes must be a list of text lines")
+    items = data.get("items", {})
+    if not isinstance(items, Mapping) or not all(isinstance(v, str) for v in items.values()):
+        raise ValueError("items must map item names to content hashes")
+    reprinted = data.get("reprinted", {})
+    if not isinstance(reprinted, Mapping) or not all(
+            isinstance(v, list) and all(isinstance(x, str) for x in v) for v in reprinted.values()):
+        raise ValueError("reprinted must map kit_sheets, labels and day_pages to lists of names")
+    store = data.get("store", "")
+    if not isinstance(store, str):
+        raise ValueError("store must be a path (text)")
     return Manifest(data["spec_hash"], data["revision"], data["built_at"], elements, files_map,
-                    spec=str(data.get("spec", "")), notes=tuple(notes))
+                    spec=str(data.get("spec", "")), notes=tuple(notes), items=dict(items),
+                    reprinted={k: list(v) for k, v in reprinted.items()}, store=store)
 
 
 # --------------------------------------------------------------------------- files
