@@ -37,7 +37,7 @@ SIXTY_IN_FAN = '''
 
 
 def small_spec(folder: Path, *, record_url: str | None = None, sixty_in_fan: bool = False,
-               start_cell: int = 0) -> Path:
+               start_cell: int | None = None) -> Path:
     """The demo spec cut down to two fan kits and one 60 m kit (same designs, fewer kits)."""
     text = demo_spec_text()
     text = re.sub(r"count = 10\nbuilders = \[.*?\]", 'count = 2\nbuilders = ["Ada", "Ben"]',
@@ -51,7 +51,10 @@ def small_spec(folder: Path, *, record_url: str | None = None, sixty_in_fan: boo
     if sixty_in_fan:
         head, sep, tail = text.partition("  bearing = 90")
         text = head + sep + tail.replace("\n", "\n" + SIXTY_IN_FAN.strip("\n") + "\n", 1)
-    text = text.replace("start_cell = 0", f"start_cell = {start_cell}")
+    if start_cell is not None:
+        line = "# start_cell = 0   # unset: labels continue where the last packet left the sheet"
+        assert line in text
+        text = text.replace(line, f"start_cell = {start_cell}")
     folder.mkdir(parents=True, exist_ok=True)
     path = folder / "club.toml"
     path.write_text(text, encoding="utf-8")

@@ -12,7 +12,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from buildsheet.calc import safety
-from buildsheet.calc.cuts import DesignCuts, ElementCut, expected_dip_hz, printed_parts
+from buildsheet.calc.asbuilt import design_target_m, expected_dip_hz
+from buildsheet.calc.cuts import DesignCuts, ElementCut, printed_parts
 from buildsheet.calc.logistics import BALUN_LOOP_CORD_M
 from buildsheet.calc.exposure import ExposureScreen
 from buildsheet.calc.feedline import coax
@@ -193,7 +194,8 @@ def dip_lines(cuts: DesignCuts) -> tuple[str, ...]:
     falls outside the band (normal for a leg cut long)."""
     out = []
     for c in cuts.elements:
-        f = expected_dip_hz(c)
+        f = expected_dip_hz(c.cut_leg_m, design_target_m(c), c.element.frequency_hz,
+                            c.prediction.slope_m_per_hz)  # as prescribed
         e = c.element
         text = (f"{e.band_label}: as cut (long by the trim allowance) the first dip should be "
                 f"near {format_frequency(f)}")
