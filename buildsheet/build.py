@@ -212,7 +212,8 @@ def render_documents(packet: Packet, selection: Selection, start_cell: int) -> D
         buf = io.BytesIO()
         stock = packet.design.labels.stock
         render_labels(labels, stock, buf, start_cell=start_cell,  # type: ignore[arg-type]
-                      title=f"{packet.design.event.name} winder labels")
+                      title=f"{packet.design.event.name} winder labels",
+                      where=f"{packet.design.source}: labels.stock")
         files[labels_name] = buf.getvalue()
         for lb in labels:
             label_of[lb.element_id] = labels_name

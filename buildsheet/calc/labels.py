@@ -51,6 +51,11 @@ MIN_TEXT_HEIGHT_MM: float = (MIN_BAND_PT + MIN_TEXT_LINES * MIN_TEXT_PT) * LEADI
 
 #: QR error correction levels allowed on labels: Q (25 %) or better (ISO/IEC 18004 clause 4.10).
 EC_LEVELS: tuple[str, ...] = ("q", "h")
+#: Levels tried for each label, best first: H (30 %) wherever the symbol still fits the label.
+EC_PREFERENCE: tuple[str, ...] = ("h", "q")
+#: Smallest module of the symbol chosen for survival (mm): the version is raised as long as the
+#: modules stay at least this large (0.6 mm: 3.5 px at 150 dpi; bench/labels.py).
+ROBUST_MODULE_MM: float = 0.6
 #: Placeholders allowed in a record URL template.
 URL_PLACEHOLDERS: tuple[str, ...] = ("kit", "element", "leg")
 #: Page sizes by name, (width, height) mm (ISO 216 A4; ANSI Letter 8.5 x 11 in).
@@ -198,9 +203,17 @@ def offline_record(
     kit_id: str,
     revision: int | str,
 ) -> str:
-    """Compact plain-text record for a phone to show offline (about 60-90 characters)."""
-    rev = f" rev {revision}" if revision != "" else ""
-    return f"{leg_id}\n{band_name} {frequency_text}\ncut {cut_text}\nkit {kit_id}{rev}"
+    """Compact plain-text record for a phone to show offline (about 40 characters):
+    "K03-40m-A\n40m 7.150 MHz\ncut 10.43 m\nrev 12".
+
+    The leg ID already names the kit, so ``kit_id`` is not repeated; an empty ``revision``
+    leaves the revision line out. ``cut_text`` is the cut
+    length or "CUT now CURRENT"; of a length given in both unit systems ("10.43 m / 34 ft
+    2 5/8 in") only the first is kept, so the symbol stays small.
+    """
+    lengths = " now ".join(part.split(" / ")[0] for part in cut_text.split(" now "))
+    rev = f"\nrev {revision}" if revision != "" else ""
+    return f"{leg_id}\n{band_name} {frequency_text}\ncut {lengths}{rev}"
 
 
 # --- QR symbols and the fit check ----------------------------------------------------------
@@ -225,6 +238,40 @@ def check_ec(ec: str, where: str = "labels.ec") -> str:
 def make_symbol(payload: str, ec: str = "q") -> segno.QRCode:
     """The QR symbol (never Micro QR) for ``payload`` at level ``ec`` or higher if free."""
     return segno.make_qr(payload, error=check_ec(ec), boost_error=True)
+
+
+def robust_version(stock: LabelStock) -> int:
+    """Version whose symbol best survives scuffs on ``stock``: the largest that keeps modules of
+    at least ROBUST_MODULE_MM in the label's layout (0 if none).
+
+    Scuffs are millimetres across whatever the module size; the more (and smaller) codewords
+    a symbol has, the fewer of them one scuff spoils (bench/labels.py measures this).
+    """
+    for version in range(40, 0, -1):
+        layout = layout_label(stock.label_width, stock.label_height, symbol_modules(version))
+        if layout.fits and layout.module >= ROBUST_MODULE_MM - 1e-9:
+            return version
+    return 0
+
+
+def label_symbol(payload: str, stock: LabelStock, ec: str = "q") -> segno.QRCode | None:
+    """The QR symbol of one label (None when none fits ``stock``).
+
+    The best level of EC_PREFERENCE, never below ``ec``, at the :func:`robust_version` of the
+    stock, or at the smallest version that holds the payload when that is larger and still
+    fits. Built once when the payload fits the robust version at level H.
+    """
+    floor = EC_PREFERENCE.index(check_ec(ec)) if check_ec(ec) in EC_PREFERENCE else 0
+    largest, robust = _largest_version(stock), robust_version(stock)
+    for level in EC_PREFERENCE[: floor + 1]:
+        for version in ((robust, None) if robust else (None,)):
+            try:
+                symbol = segno.make_qr(payload, error=level, version=version, boost_error=False)
+            except segno.DataOverflowError:
+                continue
+            if symbol.version <= largest:
+                return symbol
+    return None
 
 
 def symbol_modules(version: int) -> int:

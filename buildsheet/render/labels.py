@@ -27,8 +27,8 @@ from buildsheet.calc.labels import (
     check_ec,
     check_fit,
     check_start_cell,
+    label_symbol,
     layout_label,
-    make_symbol,
     pages_needed,
 )
 from buildsheet.errors import BuildError, Problem, SpecError
@@ -167,7 +167,7 @@ def _draw_symbol(
     canvas.addLiteral("\n".join([*ops, "f"]))
 
 
-def _draw_label(canvas: Canvas, plan: _Plan, left: float, top: float) -> None:
+def _draw_label(canvas: Canvas, plan: LabelPlan, left: float, top: float) -> None:
     """Draw one label whose top-left corner is at (left, top) in PDF points."""
     layout, set_lines = plan.layout, plan.lines
     qz = layout.quiet_zone * mm
@@ -191,20 +191,36 @@ def _draw_label(canvas: Canvas, plan: _Plan, left: float, top: float) -> None:
 
 
 @dataclass(frozen=True)
-class _Plan:
-    """Everything needed to draw one label: layout (mm), set text and the QR matrix."""
+class LabelPlan:
+    """Everything needed to draw one label: layout (mm), set text, the QR matrix and level."""
 
     layout: LabelLayout
     lines: list[SetLine]
     matrix: tuple[bytearray, ...]
+    error: str  # error correction level of the symbol, "H" or "Q"
 
 
-def _plan(labels: Sequence[LabelContent], stock: LabelStock, ec: str, where: str) -> list[_Plan]:
-    """Layout and set text for every label, or raise SpecError naming each that cannot fit."""
-    plans: list[_Plan] = []
+def plan_labels(labels: Sequence[LabelContent], stock: LabelStock, *, start_cell: int = 0,
+                ec: str = "q", where: str = "labels.stock") -> list[LabelPlan]:
+    """Layout, QR symbol and set text of every label, exactly as :func:`render_labels` draws
+    them; raise SpecError naming each label that cannot fit (``buildsheet check`` runs this).
+
+    Each symbol is built once, at level H where it fits the stock, else at Q (never below
+    ``ec``). ``where`` locates problems (file and key of the spec's stock).
+    """
+    level = check_ec(ec)
+    check_start_cell(stock, start_cell, where=where.replace("labels.stock", "labels.start_cell"))
+    plans: list[LabelPlan] = []
     problems: list[Problem] = []
     for i, label in enumerate(labels):
-        matrix = make_symbol(label.payload, ec).matrix
+        symbol = label_symbol(label.payload, stock, level)
+        if symbol is None:
+            try:
+                check_fit(stock, [label.payload], ec=level, where=f"{where} (label {label.leg_id})")
+            except SpecError as exc:
+                problems += [p for p in exc.problems if p not in problems]
+            continue
+        matrix = symbol.matrix
         layout = layout_label(stock.label_width, stock.label_height, len(matrix))
         set_lines = set_text(label_lines(label), layout.text.width * mm, layout.text.height * mm)
         if set_lines is None:
@@ -217,7 +233,7 @@ def _plan(labels: Sequence[LabelContent], stock: LabelStock, ec: str, where: str
                 )
             )
         else:
-            plans.append(_Plan(layout, set_lines, matrix))
+            plans.append(LabelPlan(layout, set_lines, matrix, symbol.error.upper()))
     if problems:
         raise SpecError(problems)
     return plans
@@ -241,10 +257,7 @@ def render_labels(
     """
     if not labels:
         raise BuildError([Problem("labels", "no labels to render")])
-    level = check_ec(ec)
-    check_start_cell(stock, start_cell)
-    check_fit(stock, [label.payload for label in labels], ec=level, where=where)
-    plans = _plan(labels, stock, level, where)
+    plans = plan_labels(labels, stock, start_cell=start_cell, ec=ec, where=where)
 
     buf = io.BytesIO()
     page_size = (stock.page_width * mm, stock.page_height * mm)
@@ -268,4 +281,5 @@ def render_labels(
     return pages_needed(stock, len(labels), start_cell)
 
 
-__all__ = ["SetLine", "label_lines", "render_labels", "set_text", "symbol_rects"]
+__all__ = ["LabelPlan", "SetLine", "label_lines", "plan_labels", "render_labels", "set_text",
+           "symbol_rects"]
