@@ -141,7 +141,9 @@ def design_cuts(design: AntennaDesign, prediction: DesignPrediction,
                               bool(prediction.calibrated_from),
                               uncalibrated.element(e.key).leg_length_m if uncalibrated else None)
         except ValueError as exc:
-            raise ValueError(f"designs.{design.key}.elements[{i}] ({e.key}): {exc}") from None
+            raise ValueError(f"designs.{design.key}.elements[{i}] ({e.key}): {exc}; allowed: a "
+                             "drop from apex_height to end_height shorter than the leg (lower "
+                             "the apex, raise the ends or choose a lower frequency)") from None
         cuts.append(cut)
         if design.mount == "inverted_v" and cut.included_angle_deg < MIN_INCLUDED_ANGLE_DEG:
             warnings.append(f"{design.key} {e.key}: included angle {cut.included_angle_deg:.0f} deg "

@@ -25,7 +25,7 @@ _LENGTH_UNITS: dict[str, float] = {
 }
 _FREQ_UNITS: dict[str, float] = {"hz": 1.0, "khz": 1e3, "mhz": 1e6, "ghz": 1e9}
 
-_NUMBER = r"(?:\d+(?:\.\d*)?|\.\d+)(?:\s+\d+/\d+|/\d+)?"
+_NUMBER = r"(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?(?:\s+\d+/\d+|/\d+)?"
 _TERM = re.compile(rf"\s*({_NUMBER})\s*([a-zA-Z]+|'|\")")
 
 LENGTH_HELP = 'a number with a unit: m, cm, mm, ft, in (e.g. "7.5 m", "230 mm", "6 ft 3 in")'
@@ -33,11 +33,14 @@ FREQUENCY_HELP = 'a number with a unit: MHz, kHz or Hz (e.g. "7.15 MHz", "7150 k
 
 
 def _number(text: str) -> float:
-    """Parse "6", "6.5", "3/8" or "6 3/8" to a float."""
+    """Parse "6", "6.5", "1e3", "3/8" or "6 3/8" to a float; ValueError for "1/0"."""
     parts = text.split()
     total = 0.0
     for part in parts:
-        total += float(Fraction(part)) if "/" in part else float(part)
+        top, slash, bottom = part.partition("/")
+        if slash and int(bottom) == 0:
+            raise ValueError(f"the fraction {part} divides by zero")
+        total += float(top) / int(bottom) if slash else float(part)
     return total
 
 
@@ -47,7 +50,7 @@ def parse_length(text: str | float) -> float:
     Several terms add up ("6 ft 3 in" = 1.9050 m). A bare number is refused: units are required.
     """
     if isinstance(text, bool) or not isinstance(text, (str, int, float)):
-        raise ValueError(f"expected {LENGTH_HELP}, got {text!r}")
+        raise ValueError(f"expected {LENGTH_HELP}, in quotes")
     if not isinstance(text, str):
         raise ValueError(f"a length needs a unit: write e.g. \"{text} m\" ({LENGTH_HELP})")
     s = text.strip()
@@ -64,17 +67,21 @@ def parse_length(text: str | float) -> float:
         if unit not in _LENGTH_UNITS:
             raise ValueError(f"unknown length unit {m.group(2)!r} in {text!r}; expected {LENGTH_HELP}")
         total += _number(m.group(1)) * _LENGTH_UNITS[unit]
+        if not math.isfinite(total):
+            break
         terms += 1
         pos = m.end()
-    if terms == 0 or s[pos:].strip():
+    if math.isfinite(total) and (terms == 0 or s[pos:].strip()):
         raise ValueError(f"cannot read {text!r} as a length; expected {LENGTH_HELP}")
     if not math.isfinite(total):
-        raise ValueError(f"length {text!r} is not finite")
+        raise ValueError(f"length {text!r} is too large to be a number of metres")
     return -total if negative else total
 
 
 def parse_frequency(text: str | float) -> float:
     """Parse a frequency with units ("7.15 MHz", "7150 kHz") to hertz. Raises ValueError."""
+    if isinstance(text, bool) or not isinstance(text, (str, int, float)):
+        raise ValueError(f"expected {FREQUENCY_HELP}, in quotes")
     if not isinstance(text, str):
         raise ValueError(f"a frequency needs a unit: write e.g. \"{text} MHz\" ({FREQUENCY_HELP})")
     m = re.fullmatch(r"\s*(\d+(?:\.\d*)?|\.\d+)\s*([a-zA-Z]+)\s*", text)
