@@ -12,7 +12,6 @@ from __future__ import annotations
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from fractions import Fraction
-from xml.sax.saxutils import escape
 
 from reportlab.lib import colors
 from reportlab.lib.enums import TA_LEFT
@@ -31,6 +30,7 @@ from reportlab.platypus import (
 from buildsheet.calc.bom import BomLine
 from buildsheet.calc.safety import STATION_CAUTIONS
 from buildsheet.calc.stock import SpoolPlan, SpoolUse
+from buildsheet.render.markup import plain
 from buildsheet.spec.units import feet_inches_eighths, format_metric
 
 LengthFormat = Callable[[float], str]
@@ -72,7 +72,7 @@ def default_feet_inches(m: float) -> str:
 
 def _p(text: str, style: ParagraphStyle = _CELL) -> Paragraph:
     """Paragraph of plain (escaped) text."""
-    return Paragraph(escape(text), style)
+    return Paragraph(plain(text), style)
 
 
 def _count(q: float) -> str:

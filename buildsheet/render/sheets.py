@@ -7,7 +7,6 @@ from __future__ import annotations
 
 import io
 from collections.abc import Callable, Collection
-from xml.sax.saxutils import escape
 from pathlib import Path
 from typing import BinaryIO
 
@@ -35,6 +34,7 @@ from buildsheet.calc.performance import DesignPerformance
 from buildsheet.calc.safety import SITE_CAUTIONS
 from buildsheet.packet import ElementEntry, Packet
 from buildsheet.render import buildday, charts, drawings
+from buildsheet.render.markup import plain, shorten
 from buildsheet.spec.design import Kit
 from buildsheet.spec.units import format_both, format_frequency, format_length
 from buildsheet.store.files import write_output
@@ -245,7 +245,7 @@ def coverage_page(packet: Packet, cuts: DesignCuts) -> list[Flowable]:
     units = packet.design.event.units
     perf = packet.performance_for(cuts.design.key)
     d = cuts.design
-    story: list[Flowable] = [_p(f"Coverage and exposure: {d.title}", "h1"),
+    story: list[Flowable] = [_p(f"Coverage and exposure: {plain(d.title)}", "h1"),
                              _p(perf.method_note, "small"), Spacer(1, 3), nvis_table(perf, units),
                              Spacer(1, 4)]
     n = len(perf.bands)
@@ -267,19 +267,22 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list
     d = cuts.design
     if len(kits) == 1:
         k = kits[0]
-        heading = f"Kit {k.kit_id}: {d.title}" + (f" ({k.builder})" if k.builder else "")
+        heading = f"Kit {k.kit_id}: {plain(d.title)}" + (f" ({plain(k.builder)})" if k.builder
+                                                         else "")
     else:
-        heading = f"Design {d.key}: {d.title} ({len(kits)} kits)"
+        heading = f"Design {d.key}: {plain(d.title)} ({len(kits)} kits)"
     story: list[Flowable] = [_p(heading, "h1")]
     if cuts.prediction.calibrated_from:
-        story.append(_p(f"<b>CALIBRATED</b> cut lengths: {cuts.prediction.model_note}", "body"))
+        story.append(_p(f"<b>CALIBRATED</b> cut lengths: {plain(cuts.prediction.model_note)}",
+                        "body"))
     story.append(_p(
-        f"{ev.name} - {ev.date}. {d.kind} ({len(d.elements)} element"
+        f"{plain(ev.name)} - {plain(ev.date)}. {d.kind} ({len(d.elements)} element"
         f"{'s' if len(d.elements) > 1 else ''}) on one 1:1 balun, {d.mount.replace('_', ' ')}, "
-        f"apex {format_both(d.apex_height_m, units)}. Wire: {d.wire.title}. "
-        f"Ground: {packet.design.site.ground.title}.", "body"))
+        f"apex {format_both(d.apex_height_m, units)}. Wire: {plain(d.wire.title)}. "
+        f"Ground: {plain(packet.design.site.ground.title)}.", "body"))
     if len(kits) > 1:
-        roster = ", ".join(f"{k.kit_id}{' ' + k.builder if k.builder else ''}" for k in kits)
+        roster = ", ".join(f"{k.kit_id}{' ' + plain(k.builder) if k.builder else ''}"
+                           for k in kits)
         story.append(_p(f"<b>Kit roster:</b> {roster}", "body"))
     ids = []
     for k in kits[:1] if len(kits) == 1 else ():
@@ -290,7 +293,7 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list
     story += [_p("Cut list", "h2"), element_table(cuts, units), Spacer(1, 3)]
     story.append(_p(
         f"Cut = model leg + trim allowance + termination at the end insulator + feed allowance "
-        f"(pigtail to the balun terminal). Model: {cuts.prediction.model_note}. The 468/f rule and the straight-dipole closed form are "
+        f"(pigtail to the balun terminal). Model: {plain(cuts.prediction.model_note)}. The 468/f rule and the straight-dipole closed form are "
         "shown for comparison.", "small"))
     story += tuning_lines(cuts, units)
     story += [_p(t, "body") for t in packet.advice[d.key].dips]
@@ -303,12 +306,12 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list
     story += [KeepTogether([geometry_table(cuts, units), Spacer(1, 4),
                             drawings.plan_view(cuts, 270, units, dims)])]
     for w in cuts.warnings:
-        story.append(_p(f"<b>Note:</b> {w}", "small"))
+        story.append(_p(f"<b>Note:</b> {plain(w)}", "small"))
     advice = packet.advice[d.key]
     kit_name = kits[0].kit_id if len(kits) == 1 else "K.."
     story += [CondPageBreak(50 * mm), _p("Assembly", "h2")]
-    story += [_p(escape(t.replace("{kit}", kit_name)), "body") for t in advice.assembly]
-    story += [_p("Feed line", "h2")] + [_p(escape(t), "body") for t in advice.feed_line]
+    story += [_p(plain(t.replace("{kit}", kit_name)), "body") for t in advice.assembly]
+    story += [_p("Feed line", "h2")] + [_p(plain(t), "body") for t in advice.feed_line]
     if len(kits) == 1:
         story += as_built_flowables(packet.kit_entries(kits[0].kit_id), units)
     if len(kits) == 1:
@@ -363,7 +366,8 @@ class _PageNumberForms(Flowable):
 
 def contents_table(entries: list[tuple[int, str]]) -> Table:
     """Contents with one row per heading; the page numbers are filled in at the end."""
-    rows = [[("    " * level) + text, _PageNumber(i)] for i, (level, text) in enumerate(entries)]
+    rows = [[shorten(("    " * level) + text, 430, "Helvetica-Bold", 8), _PageNumber(i)]
+            for i, (level, text) in enumerate(entries)]
     t = Table(rows, colWidths=[440, 50], rowHeights=11)
     t.setStyle(TableStyle([("FONT", (0, 0), (-1, -1), "Helvetica", 8),
                            ("ALIGN", (1, 0), (1, -1), "RIGHT"),
@@ -384,13 +388,14 @@ def _qty(line: buildday.BomLine, units: str) -> str:
 def cover(packet: Packet) -> list[Flowable]:
     ev = packet.design.event
     units = ev.units
-    story: list[Flowable] = [_p(ev.name, "title"),
-                             _p(f"{ev.club} - {ev.date} - ITU region {ev.region}", "body"),
+    story: list[Flowable] = [_p(plain(ev.name), "title"),
+                             _p(f"{plain(ev.club)} - {plain(ev.date)} - ITU region {ev.region}",
+                                "body"),
                              Spacer(1, 6)]
     rows = [[_p("<b>Design</b>"), _p("<b>Kits</b>"), _p("<b>Elements</b>"), _p("<b>Cut per leg</b>")]]
     for c in packet.cuts:
         kits = packet.kits_of(c.design.key)
-        rows.append([_p(c.design.title), _p(str(len(kits))),
+        rows.append([_p(plain(c.design.title)), _p(str(len(kits))),
                      _p(", ".join(e.element.band_label for e in c.elements)),
                      _p("<br/>".join(f"{e.element.band_label}: {format_both(e.cut_leg_m, units)}"
                                      for e in c.elements))])
@@ -400,11 +405,11 @@ def cover(packet: Packet) -> list[Flowable]:
     story += [t, Spacer(1, 4), _p(
         f"<b>Totals:</b> {len(packet.design.kits)} kits, {n_elements} elements, "
         f"{2 * n_elements} legs and labels. <b>What to bring:</b> "
-        + "; ".join(f"{_qty(line, units)} {line.item}" for line in packet.day_bom)
+        + "; ".join(f"{_qty(line, units)} {plain(line.item)}" for line in packet.day_bom)
         + ". Details in the bill of materials and the spool cut plan.", "body"), Spacer(1, 6)]
     if packet.warnings:
         story.append(_p("Warnings", "h2"))
-        story += [_p(w, "small") for w in packet.warnings]
+        story += [_p(plain(w), "small") for w in packet.warnings]
     story += [_p("Contents", "h2"), CONTENTS_MARK, PageBreak()]
     return story
 
@@ -458,7 +463,7 @@ def as_built_flowables(entries: tuple[ElementEntry, ...], units: str) -> list[Fl
                              as_built_table(entries, units), Spacer(1, 3)]
     for e in entries:
         if e.state.is_cut:
-            story.append(_p(f"<b>{e.element_id}:</b> " + " ".join(e.advice), "small"))
+            story.append(_p(f"<b>{e.element_id}:</b> " + plain(" ".join(e.advice)), "small"))
     return story
 
 
@@ -468,8 +473,8 @@ def batch_trim_pages(packet: Packet) -> list[Flowable]:
     if not entries:
         return []
     units = packet.design.event.units
-    sources = "; ".join(f"{k}: calibrated from {', '.join(c.source_ids)}, site like "
-                        f"{c.site_like_title}, residual {c.uncertainty:.1%}"
+    sources = "; ".join(f"{k}: calibrated from {plain(', '.join(c.source_ids))}, site like "
+                        f"{plain(c.site_like_title)}, residual {c.uncertainty:.1%}"
                         for k, c in packet.calibrations.items())
     return [_p("Batch trims for kits already cut", "h1"),
             _p("The site calibration moves the target of every element of its design that has "
@@ -524,7 +529,8 @@ def sheet_story(packet: Packet, only: Collection[str] | None = None) -> list[Flo
 
 def footer_text(packet: Packet) -> str:
     d = packet.design
-    return (f"{d.event.name} | spec {d.source} sha256 {d.spec_hash[:12]} | revision "
+    return (f"{shorten(d.event.name, 200, 'Helvetica', 7.5)} | spec "
+            f"{shorten(d.source, 100, 'Helvetica', 7.5)} sha256 {d.spec_hash[:12]} | revision "
             f"{packet.revision} | built {packet.built_at} | buildsheet")
 
 
