@@ -36,3 +36,7 @@ class BuildError(BuildsheetError):
 
 class RecordError(BuildsheetError):
     """A problem with the element record store or a record command."""
+
+
+class UsageError(BuildsheetError):
+    """The command line itself is wrong (a missing or conflicting option): exit code 2."""

@@ -9,7 +9,7 @@ from datetime import UTC, datetime
 from importlib import resources
 from pathlib import Path
 
-from buildsheet.errors import BuildsheetError
+from buildsheet.errors import BuildsheetError, UsageError
 
 
 def build_timestamp() -> str:
@@ -38,6 +38,17 @@ def _cmd_packet(args: argparse.Namespace) -> int:
     return 0
 
 
+def preflight(packet) -> None:
+    """What ``packet`` would refuse beyond the spec and the model: every label's QR payload,
+    stock fit, start cell and text, planned exactly as the labels are rendered."""
+    from buildsheet.build import label_contents
+    from buildsheet.render.labels import plan_labels
+
+    labels = packet.design.labels
+    plan_labels(label_contents(packet), labels.stock, start_cell=labels.start_cell,
+                where=f"{packet.design.source}: labels.stock")
+
+
 def _cmd_check(args: argparse.Namespace) -> int:
     from buildsheet.packet import build_packet
     from buildsheet.render.report import cut_table
@@ -45,6 +56,7 @@ def _cmd_check(args: argparse.Namespace) -> int:
 
     spec = load_spec(args.spec)
     packet = build_packet(spec, built_at=build_timestamp(), model=args.model)
+    preflight(packet)
     print(cut_table(packet))
     for w in packet.warnings:
         print(f"warning: {w}", file=sys.stderr)
@@ -117,15 +129,37 @@ def make_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def report(exc: BuildsheetError, stream=None) -> None:
+    """Print each problem of ``exc`` once, one line each, in order."""
+    stream = stream or sys.stderr
+    for line in dict.fromkeys(str(p) for p in exc.problems):
+        print(f"error: {line}", file=stream)
+
+
 def main(argv: list[str] | None = None) -> int:
-    """Entry point. Exit 0 on success, 1 for a problem in the spec or build, 2 for usage."""
-    args = make_parser().parse_args(argv)
+    """Entry point. Exit 0 on success, 1 for a problem in the spec, build or records, 2 for
+    usage; a closed output pipe (``| head``) ends quietly with 141 (128 + SIGPIPE)."""
     try:
-        return int(args.handler(args))
-    except BuildsheetError as exc:
-        for problem in exc.problems:
-            print(f"error: {problem}", file=sys.stderr)
-        return 1
+        parser = make_parser()
+        args = parser.parse_args(argv)
+        try:
+            return int(args.handler(args))
+        except UsageError as exc:
+            report(exc)  # one line, like the other errors; the exit code says "usage"
+            return 2
+        except BuildsheetError as exc:
+            report(exc)
+            return 1
+        finally:
+            sys.stdout.flush()
+    except BrokenPipeError:
+        # The reader went away: send further output nowhere so the exit flush stays quiet.
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 141
+    except KeyboardInterrupt:
+        print("interrupted", file=sys.stderr)
+        return 130
 
 
 if __name__ == "__main__":

@@ -17,7 +17,7 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any, TextIO
 
-from buildsheet.errors import RecordError
+from buildsheet.errors import RecordError, UsageError
 from buildsheet.store.ledger import STORE_SUFFIX
 
 #: Where a record command looks, in order, when no option names the store.
@@ -221,7 +221,7 @@ def handle_trim(args: argparse.Namespace, out: TextIO | None = None) -> int:
 
     out = out or sys.stdout
     if (args.removed is None) == (args.added is None):
-        raise RecordError("trim: give exactly one of --removed LENGTH or --added LENGTH")
+        raise UsageError("trim: give exactly one of --removed LENGTH or --added LENGTH")
     delta = (_length("--removed", args.removed) if args.removed is not None
              else -_length("--added", args.added))
     store, choice = _open(args, sys.stderr)
