@@ -312,7 +312,8 @@ def _read_design(r: _Reader, key: str, table: Any, wires: dict[str, WireType],
                       values.number(float, 10.0, 80.0))
     parts = (kind, mount, apex, end, wire, trim, min_trim, coax, coax_length, angle,
              *lengths.values())
-    if any(v is None for v in parts) or len(elements) != len(elements_raw or []):
+    if any(v is None for v in parts) or not isinstance(elements_raw, list) or \
+            len(elements) != len(elements_raw):
         return None
     assert trim is not None and min_trim is not None  # both checked just above
     allowances = Allowances(trim[0], trim[1], min_trim[0], lengths["termination"],
