@@ -252,8 +252,9 @@ def render_labels(
     """Write the labels PDF (labels in the order given) and return the number of pages.
 
     ``start_cell`` skips that many cells of the first page (a partly used sheet). ``title``
-    becomes the PDF document title. ``where`` locates fit problems in SpecErrors (the spec's
-    stock key). A path is written atomically; a stream gets the bytes.
+    becomes the PDF document title. ``ec`` is the lowest error correction level allowed (each
+    label gets H where it fits). ``where`` locates fit problems in SpecErrors (the spec's file
+    and stock key). A path is written atomically; a stream gets the bytes.
     """
     if not labels:
         raise BuildError([Problem("labels", "no labels to render")])
