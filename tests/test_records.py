@@ -264,7 +264,8 @@ def test_bad_input_fails_cleanly_and_changes_nothing(
         store_path: Path, argv: list[str], message: str,
         capsys: pytest.CaptureFixture[str]) -> None:
     before = dump(store_path)
-    assert run([*argv, "--store", str(store_path)]) == 1
+    usage = message == "exactly one"  # a missing option is a usage error: exit 2 (README)
+    assert run([*argv, "--store", str(store_path)]) == (2 if usage else 1)
     err = capsys.readouterr().err
     assert message in err and "Traceback" not in err
     assert dump(store_path) == before
