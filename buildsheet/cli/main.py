@@ -41,11 +41,10 @@ def _cmd_packet(args: argparse.Namespace) -> int:
 def preflight(packet) -> None:
     """What ``packet`` would refuse beyond the spec and the model: every label's QR payload,
     stock fit, start cell and text, planned exactly as the labels are rendered."""
-    from buildsheet.build import label_contents
     from buildsheet.render.labels import plan_labels
 
-    labels = packet.design.labels
-    plan_labels(label_contents(packet), labels.stock, start_cell=labels.start_cell,
+    settings = packet.design.labels
+    plan_labels(packet.labels, settings.stock, start_cell=settings.start_cell or 0,
                 where=f"{packet.design.source}: labels.stock")
 
 
