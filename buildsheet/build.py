@@ -19,6 +19,7 @@ from pathlib import Path
 from typing import Any
 
 from buildsheet.em.prediction import ModelName
+from buildsheet.errors import BuildError, Problem
 from buildsheet.packet import DAY_PAGES, ElementEntry, Packet, build_packet, entry_fingerprint
 from buildsheet.records import ElementHistory, ElementRow, PrintRecord
 from buildsheet.spec.design import Design
@@ -28,6 +29,7 @@ from buildsheet.store.files import (
     discard,
     prepare_staging,
     recover,
+    remove_new_store,
     swap_in,
     write_atomic,
 )
@@ -343,12 +345,43 @@ def _record_prints(store: RecordStore, packet: Packet, hashes: Mapping[str, str]
 
 def build(spec_path: str | Path, out_dir: str | Path, *, built_at: str,
           model: ModelName = "mom", store_path: str | Path | None = None,
-          changed_only: bool = False, tolerance: float = RECHECK_TOLERANCE) -> BuildResult:
-    """Build the packet for the spec at ``spec_path`` into ``out_dir``."""
+          changed_only: bool = False, tolerance: float = RECHECK_TOLERANCE,
+          new_store: bool = False) -> BuildResult:
+    """Build the packet for the spec at ``spec_path`` into ``out_dir``.
+
+    A build that creates the record store and then fails removes it again. A store missing
+    where the previous packet was built with one is an error unless ``new_store``.
+    """
+    store_file = Path(store_path) if store_path is not None else default_store(spec_path)
+    fresh = not store_file.exists()
+    try:
+        return _build(spec_path, out_dir, built_at=built_at, model=model, store_file=store_file,
+                      changed_only=changed_only, tolerance=tolerance, new_store=new_store)
+    except BaseException:
+        if fresh:
+            remove_new_store(store_file)
+        raise
+
+
+def missing_store(store_file: Path, out: Path, previous: Manifest | None,
+                  new_store: bool) -> None:
+    """BuildError when the store is gone but the previous packet in ``out`` had records."""
+    if new_store or store_file.exists() or previous is None or not previous.elements:
+        return
+    raise BuildError([Problem(str(store_file), (
+        f"the record store is missing, but the packet in {out} (revision {previous.revision}, "
+        f"{len(previous.elements)} elements) was built with one. Restore it from a JSON export "
+        f"with `buildsheet import BACKUP.json --store {store_file}`, or start a new, empty "
+        "store with `buildsheet packet ... --new-store` (its cuts, readings and trims are then "
+        "gone)"))])
+
+
+def _build(spec_path: str | Path, out_dir: str | Path, *, built_at: str, model: ModelName,
+           store_file: Path, changed_only: bool, tolerance: float,
+           new_store: bool) -> BuildResult:
     from buildsheet.store.ledger import get_state, open_store, set_state, sync_elements
 
     spec = load_spec(spec_path)                                              # 1. the design
-    store_file = Path(store_path) if store_path is not None else default_store(spec_path)
     out = check_output_folder(out_dir, (("spec", spec_path), ("record store", store_file)))
     now = _moment(built_at)
     try:
@@ -356,6 +389,7 @@ def build(spec_path: str | Path, out_dir: str | Path, *, built_at: str,
     except OSError:
         pass  # prepare_staging reports an unwritable folder with its location
     previous = read_manifest(out / MANIFEST_JSON) if out.is_dir() else None
+    missing_store(store_file, out, previous, new_store)
     with open_store(store_file, verify=True) as store:
         draft, histories = packet_from_store(spec, store, built_at=built_at,    # 2-3. ledger,
                                              model=model)                         # packet

@@ -29,7 +29,8 @@ def _cmd_packet(args: argparse.Namespace) -> int:
     from buildsheet.build import build
 
     result = build(args.spec, args.output, built_at=build_timestamp(), model=args.model,
-                   store_path=args.store, changed_only=args.changed_only)
+                   store_path=args.store, changed_only=args.changed_only,
+                   new_store=args.new_store)
     for w in result.packet.warnings:
         print(f"warning: {w}", file=sys.stderr)
     print(result.report)
@@ -100,6 +101,9 @@ def make_parser() -> argparse.ArgumentParser:
     p.add_argument("--store", metavar="PATH",
                    help="element record store (default: <spec stem>.records.sqlite beside the "
                    "spec)")
+    p.add_argument("--new-store", action="store_true",
+                   help="start a new, empty record store although the previous packet in the "
+                   "output folder was built with one that is now missing")
     p.add_argument("--changed-only", action="store_true",
                    help="print only the kit sheets, labels and day pages whose content changed "
                    "since the last packet (labels continue on the current label sheet unless "

@@ -301,6 +301,26 @@ def as_built_export(entries: Any) -> list[dict[str, Any]]:
             for e in entries]
 
 
+def refuse_overwrite(target: Path, data: dict[str, Any], force: bool) -> None:
+    """RecordError unless ``target`` may be replaced by the export ``data``: it must be absent
+    or an export itself, and an export without elements never replaces one with elements
+    unless ``force``."""
+    from buildsheet.store.exchange import EXPORT_FORMAT
+
+    if not target.exists():
+        return
+    try:
+        old = json.loads(target.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, ValueError):
+        old = None
+    if not isinstance(old, dict) or old.get("format") != EXPORT_FORMAT:
+        raise RecordError(f"-o {target}: the file exists and is not a records export; it is "
+                          "left untouched: choose another file name")
+    if not data.get("elements") and old.get("elements") and not force:
+        raise RecordError(f"-o {target}: this store has no elements but {target} holds "
+                          f"{len(old['elements'])}; keeping it (pass --force to replace it)")
+
+
 def handle_export(args: argparse.Namespace, out: TextIO | None = None) -> int:
     """Write the whole store as JSON, with the as-built numbers, to -o FILE or stdout."""
     from buildsheet.build import entries_from_store
@@ -322,6 +342,7 @@ def handle_export(args: argparse.Namespace, out: TextIO | None = None) -> int:
         target = Path(args.output)
         if target.resolve() == choice.path.resolve():
             raise RecordError(f"-o {target}: that is the record store itself; choose another file")
+        refuse_overwrite(target, data, getattr(args, "force", False))
         try:
             write_json_atomic(target, data)
         except OSError as exc:
@@ -351,8 +372,16 @@ def handle_import(args: argparse.Namespace, out: TextIO | None = None) -> int:
     choice = locate_store(args)
     path = choice.path
     print(f"record store: {path} ({choice.how})", file=sys.stderr)
-    with rec.open_store(path, create=True, verify=path.exists()) as store:
-        report = exchange.import_json(store, data)
+    fresh = not path.exists()
+    try:
+        with rec.open_store(path, create=True, verify=not fresh) as store:
+            report = exchange.import_json(store, data)
+    except BaseException:
+        if fresh:  # a refused import leaves no new, empty store behind
+            from buildsheet.store.files import remove_new_store
+
+            remove_new_store(path)
+        raise
     print(f"Imported into {path}: {report.elements} elements, {report.measurements} "
           f"measurements, {report.trims} trims, {report.cuts} cuts, {report.prints} prints "
           f"({report.skipped} already present).", file=out)
@@ -425,6 +454,8 @@ def register(subparsers: Any) -> None:
     p = subparsers.add_parser("export", help="write the whole record store as JSON",
                               epilog=epilog)
     p.add_argument("-o", "--output", metavar="FILE", help="output file (default: stdout)")
+    p.add_argument("--force", action="store_true",
+                   help="replace an export holding elements with one that holds none")
     add_store_options(p)
     p.set_defaults(handler=handle_export)
 

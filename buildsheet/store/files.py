@@ -255,3 +255,15 @@ def swap_in(staging: Path, out_dir: Path, *, keep: tuple[str, ...] = ()) -> None
 
 def discard(staging: Path) -> None:
     shutil.rmtree(staging, ignore_errors=True)
+
+
+def store_files(path: Path) -> tuple[Path, ...]:
+    """The files of an SQLite store: the database and its write-ahead log, shared-memory and
+    rollback journal files."""
+    return (path, *(path.with_name(path.name + suffix) for suffix in ("-wal", "-shm", "-journal")))
+
+
+def remove_new_store(path: Path) -> None:
+    """Remove a store this command created (after it failed), with its side files."""
+    for p in store_files(path):
+        p.unlink(missing_ok=True)

@@ -22,6 +22,7 @@ from __future__ import annotations
 import difflib
 import json
 import math
+import os
 import sqlite3
 from collections.abc import Iterable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
@@ -205,6 +206,15 @@ def open_store(path: str | Path, *, create: bool = True, verify: bool = False) -
     path = Path(path)
     if not create and not path.is_file():
         raise RecordError(f"{path}: no record store there (it is created by `buildsheet packet`)")
+    existed = path.exists()
+    if existed and path.is_file() and path.stat().st_size == 0:
+        raise RecordError(f"{path}: the record store is empty (0 bytes), so its records are "
+                          "lost or were never written. Restore it from a JSON export (`buildsheet "
+                          f"import BACKUP.json --store {path}` after moving this file away), or "
+                          "remove the empty file to start a new store.")
+    if existed and not os.access(path, os.R_OK | os.W_OK):
+        raise RecordError(f"{path}: the record store is read-only (no permission to read and "
+                          f"write it); make it writable, e.g. `chmod u+rw {path}`")
     try:
         conn = _connect(path)
     except sqlite3.Error as exc:
@@ -222,7 +232,13 @@ def open_store(path: str | Path, *, create: bool = True, verify: bool = False) -
             conn.execute("PRAGMA journal_mode = WAL")
         conn.execute("PRAGMA foreign_keys = ON")
         if version < SCHEMA_VERSION:
-            _migrate(conn, path)
+            _migrate(conn, path, existed)
+    except sqlite3.OperationalError as exc:
+        conn.close()
+        if "readonly" in str(exc) or "read-only" in str(exc):
+            raise RecordError(f"{path}: the record store is read-only ({exc}); make it and its "
+                              "folder writable") from exc
+        raise corrupt_error(path, exc) from exc
     except sqlite3.DatabaseError as exc:
         conn.close()
         raise corrupt_error(path, exc) from exc
@@ -232,7 +248,7 @@ def open_store(path: str | Path, *, create: bool = True, verify: bool = False) -
     return RecordStore(path, conn)
 
 
-def _migrate(conn: sqlite3.Connection, path: Path) -> None:
+def _migrate(conn: sqlite3.Connection, path: Path, existed: bool = False) -> None:
     conn.execute("BEGIN IMMEDIATE")
     try:
         version = conn.execute("PRAGMA user_version").fetchone()[0]  # re-read under the lock
@@ -242,6 +258,10 @@ def _migrate(conn: sqlite3.Connection, path: Path) -> None:
             if names:
                 raise RecordError(f"{path}: an SQLite file but not a buildsheet record store "
                                   f"(tables: {', '.join(sorted(names)[:5])})")
+            if existed:  # a file was there but held no store: never recreate it silently
+                raise RecordError(f"{path}: the record store holds no records tables (empty "
+                                  "or truncated). Restore it from a JSON export (`buildsheet "
+                                  "import`) into a new file, or remove it to start over.")
         for target, statements in MIGRATIONS:
             if target > version:
                 for sql in statements:
