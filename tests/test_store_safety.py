@@ -170,3 +170,82 @@ def test_a_read_only_store_is_reported_as_read_only(built, capsys):
         assert "read-only" in err and "not a readable" not in err
     finally:
         store.chmod(0o644)
+
+
+# --------------------------------------------------------------------------- implausible advice
+
+
+def test_implausible_advice_warns_and_absurd_trims_are_refused(built, capsys):
+    """A dip calling for far more than the trim allowance says mis-cut or mis-measured; no
+    trim may leave a leg of zero or negative length ("NOW -39.50 m" before) and adding back
+    more than was trimmed is refused."""
+    spec, out, store = built
+    s = ["--store", str(store)]
+    capsys.readouterr()
+    # A 40 m leg of about 10.7 m dipping at 6.2 MHz: about 10.7 * (1 - 6.2 / 7.15) = 1.4 m
+    # to remove (first order: length scales as 1 / f), several trim allowances.
+    assert main(["measure", "K01-40m", "--dip", "6.2MHz", *s]) == 0
+    assert "probably mis-cut or mis-measured" in capsys.readouterr().out
+    assert main(["trim", "K01-40m", "--removed", "40 m", *s]) == 1
+    assert "cannot remove" in capsys.readouterr().err
+    assert main(["trim", "K01-40m", "--removed", "20 mm", *s]) == 0
+    assert main(["trim", "K01-40m", "--added", "30 mm", *s]) == 1
+    assert "cannot add back" in capsys.readouterr().err
+    assert _packet(spec, out) == 0
+    from pypdf import PdfReader
+
+    text = " ".join(p.extract_text() for p in PdfReader(out / "labels.pdf").pages)
+    assert "NOW -" not in text and "NOW 0.00" not in text
+
+
+# --------------------------------------------------------------------------- generated store rows
+
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+_ROW_VALUES = st.one_of(
+    st.none(), st.booleans(), st.integers(-10, 10**9), st.floats(),
+    st.text(max_size=12), st.sampled_from(["A", "B", "both", "C", "2027-03-01T09:00:00Z",
+                                           "yesterday", "{}", "K01-40m", "K99-40m"]))
+_EDITS = st.lists(st.tuples(st.sampled_from(["measurements", "trims", "cuts", "voids",
+                                             "prints", "elements"]),
+                            st.integers(0, 3), st.text(alphabet="abcdehilmnorstuw_", max_size=1)
+                            | st.sampled_from(["dip_hz", "swr", "time", "delta_m", "leg",
+                                               "length_m", "element_id", "kind", "revision",
+                                               "cut_leg_m", "design_frequency_hz", "target"]),
+                            _ROW_VALUES), min_size=1, max_size=3)
+
+
+@settings(max_examples=40, suppress_health_check=[HealthCheck.function_scoped_fixture,
+                                                  HealthCheck.too_slow])
+@given(edits=_EDITS)
+def test_generated_store_rows_import_cleanly_or_not_at_all(exported, tmp_path_factory, edits):
+    """Near-valid exports: an import either succeeds and the packet still computes over the
+    store, or is refused with a RecordError and the store keeps its bytes."""
+    from buildsheet.build import packet_from_store
+    from buildsheet.errors import RecordError
+    from buildsheet.spec.reader import read_spec_text
+    from buildsheet.store import exchange
+    from buildsheet.store import ledger as rec
+
+    data = copy.deepcopy(exported)
+    data.pop("as_built", None)
+    for table, index, key, value in edits:
+        rows = data.get(table) or []
+        if rows:
+            rows[index % len(rows)][key or "note"] = value
+    folder = tmp_path_factory.mktemp("rows")
+    spec = small_spec(folder)
+    store = folder / "club.records.sqlite"
+    with rec.open_store(store) as st_:
+        exchange.import_json(st_, {k: v for k, v in exported.items() if k != "as_built"})
+    before = store.read_bytes()
+    try:
+        with rec.open_store(store, create=False) as st_:
+            exchange.import_json(st_, data)
+    except RecordError:
+        assert store.read_bytes() == before
+        return
+    with rec.open_store(store, create=False) as st_:
+        packet_from_store(read_spec_text(spec.read_text(encoding="utf-8"), "club.toml"), st_,
+                          built_at=T1, model="closed_form")
