@@ -368,6 +368,11 @@ def missing_store(store_file: Path, out: Path, previous: Manifest | None,
     """BuildError when the store is gone but the previous packet in ``out`` had records."""
     if new_store or store_file.exists() or previous is None or not previous.elements:
         return
+    named = Path(previous.store) if previous.store else None
+    if named is not None and not named.is_absolute():
+        named = out / named
+    if named is None or named.resolve() != store_file.resolve():
+        return  # another store than the previous packet's was chosen (--store)
     raise BuildError([Problem(str(store_file), (
         f"the record store is missing, but the packet in {out} (revision {previous.revision}, "
         f"{len(previous.elements)} elements) was built with one. Restore it from a JSON export "

@@ -140,6 +140,17 @@ def _iso_time(value: Any) -> bool:
     return True
 
 
+def _all_finite(value: Any) -> bool:
+    """True when every number inside JSON data is finite."""
+    if isinstance(value, float):
+        return math.isfinite(value)
+    if isinstance(value, dict):
+        return all(_all_finite(v) for v in value.values())
+    if isinstance(value, list):
+        return all(_all_finite(v) for v in value)
+    return True
+
+
 def _calibration_problem(item: Mapping[str, Any]) -> str | None:
     """Why a calibrations row would break a later packet, or None."""
     from buildsheet.calc.calibrate import calibration_from_json
@@ -152,6 +163,10 @@ def _calibration_problem(item: Mapping[str, Any]) -> str | None:
         return "data and sources must be JSON text"
     if not isinstance(parsed, dict) or not isinstance(sources, list):
         return "data must be a JSON object and sources a JSON list"
+    if not _all_finite(parsed):
+        return "data holds a number that is not finite"
+    if "design_key" not in parsed:
+        return None  # not written by `calibrate`: kept, never read as a calibration
     try:
         cal = calibration_from_json(parsed)
     except BuildsheetError as exc:
