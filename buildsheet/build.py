@@ -220,6 +220,10 @@ def render_documents(packet: Packet, selection: Selection, start_cell: int) -> D
         for lb in labels:
             label_of[lb.element_id] = labels_name
         next_cell = (start_cell + len(labels)) % stock.cells_per_page  # type: ignore[attr-defined]
+    if files:  # the day's and every kit's bill as CSV, always fresh (bom/)
+        from buildsheet.calc.bom import bom_csv_files
+
+        files.update(bom_csv_files(packet.kit_boms, packet.day_bom))
     return Documents(files, sheet_of, label_of, next_cell)
 
 
@@ -435,6 +439,7 @@ def _build(spec_path: str | Path, out_dir: str | Path, *, built_at: str, model: 
     staging = prepare_staging(out)
     try:
         for name, data in docs.files.items():
+            (staging / name).parent.mkdir(parents=True, exist_ok=True)  # bom/ holds the CSVs
             write_atomic(staging / name, data)
         (staging / SITE_DIR).mkdir()
         for name, text in pages.items():
@@ -445,7 +450,9 @@ def _build(spec_path: str | Path, out_dir: str | Path, *, built_at: str, model: 
         discard(staging)
         raise
     report = change_report(diff, previous, manifest, sync, store_file)
-    return BuildResult(out, (*docs.files, f"{SITE_DIR}/", MANIFEST_JSON), packet, manifest,
+    listed = [n for n in docs.files if "/" not in n]
+    listed += sorted({n.split("/")[0] + "/" for n in docs.files if "/" in n})
+    return BuildResult(out, (*listed, f"{SITE_DIR}/", MANIFEST_JSON), packet, manifest,
                        diff, store_file, sync, report)
 
 

@@ -146,18 +146,18 @@ def record_rows(cut: ElementCut, state: ElementState,
     mean = (state.legs[0].current_m + state.legs[1].current_m) / 2.0
     model_target = design_target_m(cut, uncalibrated=True)
     rows = [("Resonant leg, model" + (" before calibration" if cut.calibrated else ""),
-             format_length(cut.uncalibrated_leg_m if cut.calibrated and cut.uncalibrated_leg_m
-                           else cut.predicted_leg_m)),
+             format_both(cut.uncalibrated_leg_m if cut.calibrated and cut.uncalibrated_leg_m
+                         else cut.predicted_leg_m, units)),  # type: ignore[arg-type]
             ("Dip expected now, model", format_frequency(
                 expected_dip_hz(mean, model_target, f0, slope)))]
     if cut.calibrated:
-        rows += [("Resonant leg, calibrated", format_length(cut.predicted_leg_m)),
+        rows += [("Resonant leg, calibrated", format_both(cut.predicted_leg_m, units)),  # type: ignore[arg-type]
                  ("Dip expected now, calibrated", format_frequency(
                      expected_dip_hz(mean, design_target_m(cut), f0, slope)))]
     if state.latest_dip_hz is not None:
         rows.append(("Latest measured dip", format_frequency(state.latest_dip_hz)))
     rows.append(("Target leg (" + state.target_source + ")",
-                 f"{state.legs[0].target_m:.3f} m"))
+                 format_both(state.legs[0].target_m, units)))  # type: ignore[arg-type]
     rows.append(("Tuning", tuning_words(cut, units)))
     return tuple(rows)
 
@@ -286,11 +286,17 @@ def build_packet(spec: Design, *, built_at: str, revision: int = 1, model: Model
     warnings = list(spec.warnings) + [w for c in cuts for w in c.warnings]
     kit_boms, day_bom, plan = logistics(spec, cuts, already_cut=set(already_cut))
     for buy in plan.to_buy:
-        what = (f"buy {buy.spools} more of {buy.spool_length_m:.0f} m" if buy.spools else buy.note)
-        warnings.append(f"not enough {buy.material} on hand: {buy.short_m:.1f} m short ({what}); "
+        units = spec.event.units
+        what = (f"buy {buy.spools} more of {format_length(buy.spool_length_m, units)}"
+                if buy.spools and buy.spool_length_m else buy.note)
+        warnings.append(f"not enough {buy.material} on hand: "
+                        f"{format_length(buy.short_m, units)} short ({what}); "
                         "see the spool cut plan")
     performance = tuple(design_performance(c, spec.site.ground, spec.exposure) for c in cuts)
-    advice = {c.design.key: design_advice(c, p, spec.event.units) for c, p in zip(cuts, performance)}
+    site_m = (spec.site.width_m, spec.site.depth_m)
+    advice = {c.design.key: design_advice(c, p, spec.event.units, site_m,
+                                          ground=spec.site.ground, model=model)
+              for c, p in zip(cuts, performance)}
     warnings += [w for a in advice.values() for w in a.warnings]
     for key in sorted(set(calibrations or {}) - set(cals)):
         warnings.append(f"the stored calibration of design {key} no longer applies (its geometry "

@@ -139,5 +139,5 @@ def test_packet_prints_changes_and_keeps_the_store_beside_the_spec(tmp_path, dem
     second = capsys.readouterr().out
     assert other.is_file() and "revision 1 (previous 1)" in second
     assert "nothing changed" in second
-    assert sorted(p.name for p in out.iterdir()) == ["labels.pdf", "manifest.json", "sheets.pdf",
-                                                     "site"]
+    assert sorted(p.name for p in out.iterdir()) == ["bom", "labels.pdf", "manifest.json",
+                                                     "sheets.pdf", "site"]

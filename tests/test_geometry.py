@@ -21,8 +21,8 @@ def test_three_four_five_leg():
     assert included_angle_deg(5.0, 3.0) == pytest.approx(2 * math.degrees(math.atan2(4, 3)))
 
 
-def test_flat_leg_cord_at_45_degrees():
-    leg = leg_geometry("B", 180.0, 10.0, 6.0, 6.0, knot_m=0.0, hitch_m=0.0)
+def test_flat_leg_cord_at_45_degrees_without_supports():
+    leg = leg_geometry("B", 180.0, 10.0, 6.0, 6.0, knot_m=0.0, hitch_m=0.0, end_supports=False)
     assert leg.reach_m == pytest.approx(10.0)
     assert leg.cord_line_m == pytest.approx(6 * math.sqrt(2))
     assert leg.stake_distance_m == pytest.approx(16.0)
@@ -50,3 +50,29 @@ def test_crossed_pair_cords_near_common_practice():
     # the four cord lines average within a metre or so of that.
     cords = [leg_geometry("A", 0, L, 7.5, 2.0, knot_m=0, hitch_m=0).cord_line_m for L in (19.0, 10.0)]
     assert sum(cords) / 2 == pytest.approx(5.5, abs=1.2)
+
+
+def test_flat_top_on_end_supports_by_hand():
+    # Hand-worked flat 40 m dipole, leg 10.0 m, at 10 m: common practice puts a 1.5 m cord from
+    # the end insulator to a support of the same height (support 11.5 m out), a halyard of
+    # twice the height plus 2 m (22 m), three guys with anchors half the height out (5 m), each
+    # sqrt(10^2 + 5^2) = 11.18 m plus knots.
+    leg = leg_geometry("A", 90.0, 10.0, 10.0, 10.0, knot_m=0.3, hitch_m=0.5)
+    assert leg.has_support and leg.slope_deg == 0.0
+    assert leg.reach_m == pytest.approx(10.0)
+    assert leg.support_distance_m == pytest.approx(11.5)
+    assert leg.support_height_m == pytest.approx(10.0)
+    assert leg.cord_line_m == pytest.approx(1.5) and leg.cord_cut_m == pytest.approx(2.3)
+    assert leg.halyard_m == pytest.approx(22.0)
+    assert leg.support_guy_m == pytest.approx(math.hypot(10, 5) + 0.8)
+    assert leg.stake_distance_m == pytest.approx(16.5)  # outermost guy anchor
+    assert leg.stake_xy == pytest.approx((16.5, 0.0), abs=1e-9)
+
+
+def test_site_fit_orientation():
+    # Hand-worked: stakes over 24 m E-W x 48.9 m N-S fit a 60 x 45 m site only turned 90 degrees.
+    from buildsheet.calc.geometry import Footprint
+    fp = Footprint(-12.0, 12.0, -24.45, 24.45)
+    assert fp.orientation(60.0, 45.0) == "turned"
+    assert fp.orientation(45.0, 60.0) == "as drawn"
+    assert fp.orientation(40.0, 40.0) is None

@@ -38,7 +38,9 @@ def test_every_leg_and_cord_is_cut_once(demo_packet):
     ids = [pc.cut.cut_id for spool in plan.spools for pc in spool.cuts]
     assert len(ids) == len(set(ids))
     legs = {leg for e in demo_packet.packet.entries for leg in e.leg_ids}
-    assert legs | {f"{leg}-T" for leg in legs} == set(ids)
+    kits = {e.kit.kit_id for e in demo_packet.packet.entries}
+    loops = {f"{k}-{name}" for k in kits for name in ("hang", "balun", "spare")}
+    assert legs | {f"{leg}-T" for leg in legs} | loops == set(ids)  # every piece on the bill
     assert {spool.material for spool in plan.spools} == {"awg16-pvc", CORD}
 
 

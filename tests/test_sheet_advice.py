@@ -160,3 +160,88 @@ def test_assembly_steps_use_the_kit_numbers(demo_packet):
         assert phrase in steps, phrase
     notes = " ".join(a.feed_line)
     assert "common-mode choke" in notes and "cannot fix the antenna" in notes
+
+
+def test_fan_elements_on_one_bearing_are_warned(tmp_path):
+    # Common practice (REFERENCES.md 11): elements about 30 degrees or more apart interact
+    # little; two on the same bearing interact and move each other's resonance. The sheet
+    # warns, shows the legs against the crossed layout and gives spreader guidance.
+    p = packet_of(tmp_path, spec_text([element(band="80m", bearing=0),
+                                       element(band="40m", bearing=10)], apex="10 m"), "mom")
+    assert any("only 10 deg apart" in w for w in p.warnings)
+    a = p.advice["d"]
+    text = " ".join(a.spacing)
+    assert "crossed at 90 deg" in text and "spreaders" in text
+    crossed = packet_of(tmp_path, spec_text([element(band="80m", bearing=0),
+                                             element(band="40m", bearing=90)], apex="10 m"), "mom")
+    assert not crossed.advice["d"].spacing
+    leg40 = crossed.cuts[0].elements[1].predicted_leg_m
+    from buildsheet.spec.units import format_both
+    assert f"against {format_both(leg40)}" in text  # the crossed layout's own solve
+
+
+def test_flat_dipole_gets_end_supports_halyards_and_bill(tmp_path):
+    # Common practice: a flat dipole hangs between end supports, with halyards (twice the
+    # height plus a tie-off) and guyed supports; the bill lists supports, pulleys, halyards and
+    # guy cord, and no 45-degree tie-off cords to stakes.
+    p = packet_of(tmp_path, spec_text([element(band="40m", bearing=90)], mount="flat",
+                                      apex="10 m"))
+    leg = p.cuts[0].elements[0].legs[0]
+    assert leg.has_support and leg.support_height_m == pytest.approx(10.0)
+    assert leg.halyard_m == pytest.approx(22.0)
+    bom = {line.item: line for line in p.kit_boms["K01"]}
+    assert bom["end support, at least 10.0 m high (mast, pole or tree)"].quantity == 2
+    assert bom["pulley or ring for the halyard"].quantity == 2
+    halyards = next(v for k, v in bom.items() if k.endswith("halyards"))
+    assert halyards.quantity == pytest.approx(44.0)
+    assert bom["ground stake, steel"].quantity == 6  # three guys per support
+    from buildsheet.calc.logistics import day_cuts
+    ids = [c.cut_id for c in day_cuts(p.design, {"d": p.cuts[0]})]
+    assert sum(i.endswith("-H") for i in ids) == 2 and sum("-G" in i for i in ids) == 6
+
+
+def test_demo_qr_codes_lead_to_its_record_pages(demo_packet):
+    # The demo's codes decode (zxing-cpp, PyPI, an independent QR reader) to URLs whose page is
+    # in the packet's site/ folder, so serving that folder makes every code lead to its record.
+    from urllib.parse import urlparse
+
+    import numpy as np
+    import pypdfium2 as pdfium
+    import zxingcpp
+    from PIL import Image
+
+    doc = pdfium.PdfDocument(str(demo_packet.out_dir / "labels.pdf"))
+    try:
+        px = np.asarray(doc[0].render(scale=6).to_pil().convert("L"))
+    finally:
+        doc.close()
+    urls = [r.text for r in zxingcpp.read_barcodes(Image.fromarray(px),
+                                                   formats=zxingcpp.BarcodeFormat.QRCode)]
+    assert urls
+    for url in urls:
+        u = urlparse(url)
+        assert u.scheme in ("http", "https") and u.netloc
+        assert (demo_packet.out_dir / "site" / u.path.rsplit("/", 1)[-1]).is_file(), url
+
+
+def test_site_fit_alternatives_with_their_figures(tmp_path):
+    # A 40 m inverted V at 10 m with ends at 3 m on a 20 x 20 m site fits in no orientation. The
+    # sheet offers lower ends, end supports and a higher apex; each offered end height is checked
+    # by hand: stake distance = reach x apex / drop (similar triangles), reach by Pythagoras.
+    import math
+    import re
+
+    p = packet_of(tmp_path, spec_text([element(band="40m", bearing=0)], apex="10 m", end="3 m",
+                                      site='width = "20 m"\ndepth = "20 m"'))
+    lines = p.advice["d"].site_fit
+    assert "DOES NOT FIT" in lines[0]
+    text = " ".join(lines)
+    assert "lower ends" in text and "end supports" in text and "narrower included angle" in text
+    leg = p.cuts[0].elements[0].predicted_leg_m
+    h = float(re.search(r"ends at ([\d.]+) m", text).group(1))
+    drop = 10.0 - h
+    stake = math.sqrt(leg**2 - drop**2) * 10.0 / drop
+    assert 2 * stake <= 20.0 + 0.2  # fits N-S (0.1 m print resolution on the height)
+    apex = float(re.search(r"apex at ([\d.]+) m", text).group(1))
+    drop = apex - 3.0
+    assert 2 * math.sqrt(leg**2 - drop**2) * apex / drop <= 20.0 + 0.1

@@ -379,3 +379,90 @@ def test_csv_bad_input():
         bom_from_csv("a,b\n")
     with pytest.raises(SpecError, match="bom.csv:2"):
         bom_from_csv("category,item,quantity,unit,note\r\nwire,x,lots,m,\r\n")
+
+
+def perfect_instance(rng: random.Random, spools: int, cap_mm: int, parts: int) -> list[float]:
+    """Pieces made by cutting ``spools`` spools of ``cap_mm`` into ``parts`` random pieces each,
+    so the optimum is known by construction: every spool full, ``spools`` opened."""
+    pieces = []
+    for _ in range(spools):
+        marks = sorted(rng.sample(range(300, cap_mm - 300), parts - 1))
+        pieces += [(b - a) / 1000 for a, b in zip([0, *marks], [*marks, cap_mm])]
+    rng.shuffle(pieces)
+    return pieces
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_integer_program_reaches_known_optimum(seed):
+    # Optimum by construction (pieces of full spools) and, for the smallest, by the exhaustive
+    # search above; the integer program (scipy.optimize.milp, HiGHS) must reach it.
+    from buildsheet.calc.stock import _milp, _q
+
+    rng = random.Random(seed)
+    pieces = perfect_instance(rng, 5, 30_000, 3)
+    needs = [_q(p) for p in pieces]
+    caps = [_q(30.0)] * 7
+    packing, proven = _milp(needs, caps)
+    assert proven and not packing.unassigned and len(packing.bins) == 5
+    assert sorted(i for b in packing.bins for i in b) == list(range(len(needs)))
+    for b in packing.bins:
+        assert sum(needs[i] for i in b) <= _q(30.0)
+    small = perfect_instance(rng, 3, 10_000, 2)
+    assert brute_min_spools_uniform(small, 10.0) == 3
+    p2, ok = _milp([_q(p) for p in small], [_q(10.0)] * 4)
+    assert ok and len(p2.bins) == 3
+
+
+def test_build_day_plan_covers_every_cut_of_the_bill(demo_packet):
+    # The bill's cord (tie-offs, loops, spare) and wire are all planned: the plan's needed
+    # length is the bill's plus the cutting tolerance per cut (arithmetic on the bill), and the
+    # number opened meets the lower bound ceil(needed / spool) (first-fit bound, Coffman,
+    # Garey and Johnson 1996).
+    p = demo_packet.packet
+    for m in p.spool_plan.materials:
+        cuts = [c for s in p.spool_plan.spools if s.material == m.material for c in s.cuts]
+        cuts_total = sum(c.cut.length_m for c in cuts) + sum(c.length_m for c in m.unassigned)
+        bill = sum(line.quantity for line in p.day_bom if line.unit == "m" and (
+            (m.material == "cord" and line.category == "cord")
+            or (m.material != "cord" and line.category == "wire")))
+        n = len(cuts) + len(m.unassigned)
+        tol = n * p.spool_plan.tolerance_m
+        if m.material != "cord":  # the wire line already includes the tolerance (its note)
+            bill -= tol
+        assert cuts_total == pytest.approx(bill, abs=1e-4)  # the bill rounds to the micrometre
+        assert m.needed_m == pytest.approx(bill + tol, abs=1e-4)
+        assert m.spools_used == m.lower_bound and m.proven_optimal
+
+
+def test_bom_csv_in_packet_matches_the_pdf(demo_packet):
+    # The CSV files re-read with the standard csv module (RFC 4180), the kits summed, against
+    # the day's CSV and against the quantities printed in the PDF's day bill (text extraction
+    # with pypdf).
+    import csv
+    from collections import defaultdict
+
+    from pypdf import PdfReader
+
+    from buildsheet.calc.bom import shop_length_text
+
+    out = demo_packet.out_dir
+    def read(name):
+        with open(out / name, newline="", encoding="utf-8") as f:
+            return list(csv.DictReader(f))
+    day = read("bom/day.csv")
+    kits = [read(f"bom/{k.kit_id}.csv") for k in demo_packet.packet.design.kits]
+    summed = defaultdict(float)
+    for rows in kits:
+        for r in rows:
+            summed[(r["item"], r["unit"])] += float(r["quantity"])
+    assert {(r["item"], r["unit"]): pytest.approx(float(r["quantity"]), abs=1e-6) for r in day} \
+        == dict(summed)
+    pages = PdfReader(out / "sheets.pdf").pages
+    bill = next(" ".join(p.extract_text().split()) for p in pages
+                if "Bill of materials for the day" in p.extract_text()
+                and "Category" in p.extract_text())
+    for r in day:
+        q = float(r["quantity"])
+        # lengths to buy print rounded up to whole metres (common practice: sold by the metre)
+        printed = shop_length_text(q, "metric") if r["unit"] == "m" else f"{q:.0f} pc"
+        assert printed in bill, (r["item"], printed)

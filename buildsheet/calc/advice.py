@@ -7,7 +7,7 @@ Lengths in metres inside, formatted for the packet's unit system.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -17,6 +17,7 @@ from buildsheet.calc.cuts import DesignCuts, ElementCut, printed_parts
 from buildsheet.calc.logistics import BALUN_LOOP_CORD_M
 from buildsheet.calc.exposure import ExposureScreen
 from buildsheet.calc.feedline import coax
+from buildsheet.calc.geometry import Footprint, footprint, included_angle_deg, leg_geometry
 from buildsheet.calc.performance import DesignPerformance
 from buildsheet.spec import bands
 from buildsheet.spec.units import (
@@ -42,6 +43,10 @@ class DesignAdvice:
     dips: tuple[str, ...] = ()  # where the first dip lands as cut (kit sheets)
     assembly: tuple[str, ...] = ()  # numbered steps; "{kit}" stands for the kit ID
     feed_line: tuple[str, ...] = ()  # feed-line notes (common practice)
+    site_fit: tuple[str, ...] = ()  # how the stakes fit the site, and what would
+    spacing: tuple[str, ...] = ()  # fan elements too close in bearing: length change, spreaders
+    cautions: tuple[str, ...] = ()  # the kit sheet's safety cautions, in the packet's units
+    station_cautions: tuple[str, ...] = ()  # the short list, in the packet's units
 
 
 def trim_words(metres: float, units: UnitSystem, *, each_leg: bool = False) -> str:
@@ -273,8 +278,180 @@ def feed_line_notes(cuts: DesignCuts, perf: DesignPerformance) -> tuple[str, ...
     )
 
 
-def design_advice(cuts: DesignCuts, perf: DesignPerformance, units: UnitSystem) -> DesignAdvice:
-    """Word the advice for one solved design."""
+def _layout(cuts: DesignCuts, *, apex_m: float | None = None, end_m: float | None = None,
+            supports: bool | None = None) -> Footprint:
+    """Footprint of the design's legs (as modelled) with a different apex, end height or end
+    supports (same leg lengths and bearings)."""
+    d = cuts.design
+    a = d.allowances
+    apex = d.apex_height_m if apex_m is None else apex_m
+    legs = [leg_geometry(leg.leg_id, leg.bearing_deg, c.predicted_leg_m, apex,
+                         c.element.end_height_m if end_m is None else min(end_m, c.element.end_height_m),
+                         knot_m=a.cord_knot_m, hitch_m=a.cord_stake_m, end_supports=supports)
+            for c in cuts.elements for leg in c.legs]
+    return footprint(legs)
+
+
+def _span(fp: Footprint, units: UnitSystem) -> str:
+    return (f"{format_distance(fp.width_m, units)} E-W x {format_distance(fp.depth_m, units)} "
+            "N-S")
+
+
+def _fit_words(fp: Footprint, w: float, d: float) -> str:
+    o = fp.orientation(w, d)
+    return {"as drawn": "fits as drawn", "turned": "fits turned 90 degrees",
+            None: "does not fit"}[o]
+
+
+def _bisect(fits, lo: float, hi: float, want_high: bool, steps: int = 30) -> float | None:
+    """The extreme value in [lo, hi] where ``fits`` holds, assuming it holds on one side only:
+    the largest (``want_high``) or the smallest value; None if it holds nowhere."""
+    good = hi if not want_high else lo
+    if not fits(good):
+        return None
+    bad = lo if not want_high else hi
+    if fits(bad):
+        return bad
+    for _ in range(steps):
+        mid = (good + bad) / 2
+        if fits(mid):
+            good = mid
+        else:
+            bad = mid
+    return good
+
+
+def site_fit_lines(cuts: DesignCuts, width_m: float | None, depth_m: float | None,
+                   units: UnitSystem) -> tuple[str, ...]:
+    """Which orientation of the layout fits the site (width taken as E-W), and when none does,
+    what would: lower ends, end supports with short cords, or a higher apex (a narrower
+    included angle), each with its figures. Leg lengths as modelled."""
+    fp = cuts.footprint
+    span = f"Stakes span {_span(fp, units)}"
+    if not width_m or not depth_m:
+        return (span + ".",)
+    site = f"the site of {format_distance(width_m, units)} (E-W) x {format_distance(depth_m, units)} (N-S)"
+    o = fp.orientation(width_m, depth_m)
+    if o == "as drawn":
+        return (f"{span}: fits {site} as drawn (bearings as given).",)
+    if o == "turned":
+        return (f"{span}: does not fit {site} as drawn, but fits turned 90 degrees: add 90 "
+                "degrees to every bearing (or lay the long axis along the site's longer side); "
+                f"the stakes then span {format_distance(fp.depth_m, units)} E-W x "
+                f"{format_distance(fp.width_m, units)} N-S.",)
+    lines = [f"{span}: DOES NOT FIT {site} in either orientation. What would:"]
+    d = cuts.design
+    if d.mount == "flat":
+        lines.append("- a flat dipole needs its full length plus the end supports and their "
+                     "guys; an inverted V (ends lower than the apex) takes less room.")
+        return tuple(lines)
+
+    def fits(**change: float) -> bool:
+        try:
+            return _layout(cuts, **change).fits(width_m, depth_m)  # type: ignore[arg-type]
+        except ValueError:  # a leg too short for that drop
+            return False
+
+    top_end = max(c.element.end_height_m for c in cuts.elements)
+    shortest = min(c.predicted_leg_m for c in cuts.elements)
+    low_end = max(0.3, d.apex_height_m - shortest + 0.05)
+    h = _bisect(lambda x: fits(end_m=x), low_end, top_end, want_high=True) \
+        if low_end < top_end else None
+    if h is not None:
+        f = _layout(cuts, end_m=h)
+        lines.append(f"- lower ends (a shorter reach): ends at {format_distance(h, units, round_up=False)} "
+                     f"give stakes over {_span(f, units)}, {_fit_words(f, width_m, depth_m)}"
+                     + ("; ends that low are within reach and need the keep-out."
+                        if h < safety.REACH_HEIGHT_M else "."))
+    else:
+        lines.append("- lower ends alone are not enough.")
+    f = _layout(cuts, supports=True)
+    lines.append(f"- end supports at the end insulators (their own height, {format_distance(1.5, units)} "
+                 f"cords, guys half their height out): {_span(f, units)}, "
+                 f"{_fit_words(f, width_m, depth_m)}.")
+
+    top_apex = min(3.0 * d.apex_height_m,
+                   min(c.element.end_height_m + c.predicted_leg_m for c in cuts.elements) - 0.05)
+    apex = (_bisect(lambda x: fits(apex_m=x), d.apex_height_m, top_apex, want_high=False)
+            if top_apex > d.apex_height_m else None)
+    if apex is not None:
+        f = _layout(cuts, apex_m=apex)
+        c0 = max(cuts.elements, key=lambda c: c.predicted_leg_m)
+        angle = included_angle_deg(c0.predicted_leg_m, apex - c0.element.end_height_m)
+        lines.append(f"- a narrower included angle: apex at {format_distance(apex, units)} "
+                     f"({c0.element.band_label} {angle:.0f} deg included) gives "
+                     f"{_span(f, units)}, {_fit_words(f, width_m, depth_m)}.")
+    return tuple(lines)
+
+
+#: Fan elements closer than this in bearing (between their wire axes) get a warning, degrees
+#: (common practice: elements about 30 degrees or more apart interact little; 90 is usual).
+FAN_SEPARATION_WARN_DEG: float = 45.0
+FAN_SEPARATION_STRONG_DEG: float = 30.0
+
+
+def axis_separation_deg(a_deg: float, b_deg: float) -> float:
+    """Angle between two dipole axes, degrees (0-90): a dipole runs both ways from the feed."""
+    d = abs(a_deg - b_deg) % 180.0
+    return min(d, 180.0 - d)
+
+
+def crossed_bearings(bearings: list[float]) -> list[float]:
+    """The same elements spread evenly over 180 degrees from the first bearing (two: crossed)."""
+    n = len(bearings)
+    return [(bearings[0] + k * 180.0 / n) % 360.0 for k in range(n)]
+
+
+def fan_spacing_advice(cuts: DesignCuts, ground: object | None, model: str,
+                       units: UnitSystem) -> tuple[tuple[str, ...], tuple[str, ...]]:
+    """(lines, warnings) for fan elements closer than about 30-45 degrees: which pairs, how far
+    each modelled leg moves against the same elements spread evenly (crossed, for two), and
+    spreader guidance (common practice). ``ground``/``model`` re-solve the spread layout."""
+    els = cuts.elements
+    d = cuts.design
+    close = [(a, b, axis_separation_deg(a.element.bearing_deg, b.element.bearing_deg))
+             for i, a in enumerate(els) for b in els[i + 1:]]
+    close = [x for x in close if x[2] < FAN_SEPARATION_WARN_DEG]
+    if not close:
+        return (), ()
+    warnings = []
+    for a, b, sep in close:
+        how = "strongly" if sep < FAN_SEPARATION_STRONG_DEG else "noticeably"
+        warnings.append(f"{d.key}: elements {a.element.key} and {b.element.key} are only "
+                        f"{sep:.0f} deg apart on one feed; they interact {how} (below about "
+                        "30-45 deg). See the spacing note on the sheet.")
+    lines = []
+    if ground is not None:
+        from buildsheet.em.solve import predict
+
+        spread = crossed_bearings([c.element.bearing_deg for c in els])
+        variant = replace(d, elements=tuple(replace(c.element, bearing_deg=b)
+                                            for c, b in zip(els, spread)))
+        ref = predict(variant, ground, model)  # type: ignore[arg-type]
+        what = "crossed at 90 deg" if len(els) == 2 else f"spread {180 / len(els):.0f} deg apart"
+        moves = []
+        for c in els:
+            here = c.uncalibrated_leg_m if c.calibrated and c.uncalibrated_leg_m else c.predicted_leg_m
+            other = ref.element(c.element.key).leg_length_m
+            delta = here - other
+            moves.append(f"{c.element.band_label} {format_both(here, units)} against "
+                         f"{format_both(other, units)} ({'+' if delta >= 0 else '-'}"
+                         f"{format_length(abs(delta), units)})")
+        lines.append(f"Element spacing: modelled legs at these bearings against the same "
+                     f"elements {what}: " + "; ".join(moves)
+                     + ". The cut list is for the bearings as given.")
+    lines.append("If the elements must share a bearing, hold them apart with non-conductive "
+                 "spreaders every 1-2 m (about 15-30 cm apart, common practice), tie the "
+                 "shorter element's end off separately, tune the longest element first, then the "
+                 "next, and repeat once: the shorter elements move most.")
+    return tuple(lines), tuple(warnings)
+
+
+def design_advice(cuts: DesignCuts, perf: DesignPerformance, units: UnitSystem,
+                  site_m: tuple[float | None, float | None] = (None, None), *,
+                  ground: object | None = None, model: str = "closed_form") -> DesignAdvice:
+    """Word the advice for one solved design (``site_m``: site width E-W and depth N-S, m;
+    ``ground`` and ``model`` let the fan-spacing note re-solve an evenly spread layout)."""
     d = cuts.design
     screens = [b.exposure for b in perf.bands]
     keep = max(x.keep_out_m for x in screens)
@@ -283,17 +460,23 @@ def design_advice(cuts: DesignCuts, perf: DesignPerformance, units: UnitSystem) 
                                                   units)) is not None]
     rules, sixty_warnings = sixty_metre_advice(cuts, screens)
     warnings += sixty_warnings
+    spacing, spacing_warnings = fan_spacing_advice(cuts, ground, model, units)
+    warnings += spacing_warnings
     return DesignAdvice(
         exposure_head=exposure_head(screens[0]),
         exposure_bands=tuple(exposure_band_line(b.band_label, b.exposure, units)
                              for b in perf.bands),
         keep_out=safety.keep_out_text(keep, low_end_labels(cuts), units),
-        exposure_cautions=screens[0].cautions,
+        exposure_cautions=safety.exposure_cautions(screens[0].near_field_m, units),
+        cautions=safety.site_cautions(units),
+        station_cautions=safety.station_cautions(units),
         warnings=tuple(warnings),
         band_rules=rules,
         height=height_lines(cuts, perf, units),
         dips=dip_lines(cuts),
         assembly=assembly_steps(cuts, units),
         feed_line=feed_line_notes(cuts, perf),
+        site_fit=site_fit_lines(cuts, site_m[0], site_m[1], units),
+        spacing=spacing,
     )
 

@@ -10,7 +10,12 @@ Pure core: lengths in metres, no file or clock access. Two parts:
   packing: a survey", 1996) followed by a load-shifting improvement step (empty the least-loaded
   spool by moves and swaps), and an exact branch-and-bound over set partitions when a material
   has at most ``EXACT_MAX_CUTS`` cuts (in the spirit of Martello and Toth, "Knapsack Problems",
-  1990, ch. 8).
+  1990, ch. 8). Larger instances of build-day shape (few distinct lengths: every kit repeats
+  its cuts) go to an integer program solved by scipy.optimize.milp (HiGHS): the number of cuts
+  of each length on each spool, lexicographically least unassigned length, fewest spools,
+  least length opened, with lengths rounded up (cuts) and down (spools) to the millimetre so any
+  plan it finds is feasible. When the solver stops at its node limit the best plan so far is
+  kept and the lower bound is printed beside it.
 Bills of materials live in ``buildsheet.calc.bom``.
 """
 
@@ -31,6 +36,10 @@ DEFAULT_TOLERANCE_M: float = 0.01
 EXACT_MAX_CUTS: int = 10
 #: Node budget of the exact search (keeps the worst case well under a second).
 EXACT_NODE_BUDGET: int = 400_000
+#: The integer program is used for at most this many distinct cut lengths x spools.
+MILP_MAX_CELLS: int = 2000
+#: Node limit of each integer-program solve (deterministic, unlike a time limit).
+MILP_NODE_LIMIT: int = 2000
 #: Most swaps tried per spool the improvement step tries to empty.
 _SWAP_ROUNDS: int = 50
 #: Internal length quantum, m (micrometre integers avoid float ties in feasibility tests).
@@ -111,7 +120,8 @@ class MaterialPlan:
     needed_m: float
     opened_m: float
     waste_m: float
-    method: str  # "exact" (search completed), "heuristic", or "none" (nothing to pack)
+    method: str  # "exact" (search or integer program completed), "heuristic", "integer
+    # program" (stopped at its node limit), or "none" (nothing to pack)
     proven_optimal: bool  # exact search completed, or the plan meets the lower bound
     unassigned: tuple[Cut, ...]
     to_buy: ToBuy | None
@@ -368,6 +378,94 @@ def _exact(needs: Sequence[int], caps: Sequence[int], incumbent: _Packing,
     return _Packing(bins, list(m), sorted(unassigned)), proven
 
 
+def _milp(needs: Sequence[int], caps: Sequence[int]) -> tuple[_Packing, bool] | None:
+    """Integer program over cut lengths (types) and spools, scipy.optimize.milp (HiGHS).
+
+    z[t, j] = cuts of type t on spool j (integer), y[j] = spool j opened (binary), u[t] = cuts
+    of type t left unassigned. Rows: sum_j z[t, j] + u[t] = n[t]; sum_t len[t] z[t, j] <=
+    cap[j] y[j]; identical spools open in order (y[j] >= y[j+1]). Three solves, each fixing the
+    optimum of the one before: unassigned length, spools opened, length opened. Lengths in mm
+    (cuts rounded up, spools down). Returns (packing, proven optimal) or None if no plan.
+    """
+    import numpy as np
+    from scipy.optimize import Bounds, LinearConstraint, milp
+
+    types = sorted(set(needs), reverse=True)
+    T, J = len(types), len(caps)
+    if T * J > MILP_MAX_CELLS:
+        return None
+    count = [sum(1 for x in needs if x == t) for t in types]
+    length = np.array([-(-t // 1000) for t in types], dtype=float)  # mm, rounded up
+    cap = np.array([c // 1000 for c in caps], dtype=float)  # mm, rounded down
+    nz, ny = T * J, J
+    nvar = nz + ny + T
+    rows, lo, hi = [], [], []
+    for t in range(T):  # every cut placed or left over
+        r = np.zeros(nvar)
+        r[t * J:(t + 1) * J] = 1.0
+        r[nz + ny + t] = 1.0
+        rows.append(r)
+        lo.append(count[t])
+        hi.append(count[t])
+    for j in range(J):  # spool capacity, only when opened
+        r = np.zeros(nvar)
+        r[j:nz:J] = length
+        r[nz + j] = -cap[j]
+        rows.append(r)
+        lo.append(-np.inf)
+        hi.append(0.0)
+    order = sorted(range(J), key=lambda j: (caps[j], j))
+    for a, b in zip(order, order[1:]):  # symmetry: identical spools open in order
+        if caps[a] == caps[b]:
+            r = np.zeros(nvar)
+            r[nz + a], r[nz + b] = 1.0, -1.0
+            rows.append(r)
+            lo.append(0.0)
+            hi.append(np.inf)
+    ub = np.concatenate([np.repeat(np.array(count, float), J), np.ones(ny), np.array(count, float)])
+    bounds = Bounds(np.zeros(nvar), ub)
+    integrality = np.ones(nvar)
+    objectives = []
+    c_lost = np.zeros(nvar)
+    c_lost[nz + ny:] = length
+    c_open = np.zeros(nvar)
+    c_open[nz:nz + ny] = 1.0
+    c_len = np.zeros(nvar)
+    c_len[nz:nz + ny] = cap
+    objectives = [c_lost, c_open, c_len] if len(set(caps)) > 1 else [c_lost, c_open]
+    proven = True
+    x = None
+    for c in objectives:
+        res = milp(c, constraints=LinearConstraint(np.array(rows), lo, hi),
+                   integrality=integrality, bounds=bounds,
+                   options={"node_limit": MILP_NODE_LIMIT, "presolve": True})
+        if res.x is None:
+            break
+        x = np.round(res.x)
+        proven = proven and res.status == 0
+        best = float(c @ x)
+        rows.append(c.copy())  # keep this optimum while improving the next objective
+        lo.append(-np.inf)
+        hi.append(best + 0.5)
+    if x is None:
+        return None
+    z = x[:nz].reshape(T, J)
+    pool = {t: sorted((i for i, v in enumerate(needs) if v == t)) for t in types}
+    bins: list[list[int]] = []
+    spool: list[int] = []
+    for j in range(J):
+        if x[nz + j] < 0.5 or z[:, j].sum() < 0.5:
+            continue
+        items = []
+        for t_idx, t in enumerate(types):
+            for _ in range(int(z[t_idx, j])):
+                items.append(pool[t].pop(0))
+        bins.append(items)
+        spool.append(j)
+    unassigned = sorted(i for t in types for i in pool[t])
+    return _Packing(bins, spool, unassigned), proven
+
+
 def _pack(needs: Sequence[int], caps: Sequence[int]) -> tuple[_Packing, str, bool]:
     """Best of the greedy variants after improvement; exact search for few cuts.
     Returns (packing, method, proven optimal)."""
@@ -389,6 +487,13 @@ def _pack(needs: Sequence[int], caps: Sequence[int]) -> tuple[_Packing, str, boo
     if len(needs) <= EXACT_MAX_CUTS:
         best, proven = _exact(needs, caps, best, EXACT_NODE_BUDGET)
         method = "exact" if proven else "heuristic"
+    else:
+        found = _milp(needs, caps)
+        if found is not None and _key(found[0], needs, caps) <= _key(best, needs, caps):
+            best, proven = found
+            method = "exact" if proven else "integer program"
+        if not best.unassigned and len(set(caps)) == 1 and len(best.bins) <= lb:
+            proven = True
     return best, method, proven
 
 

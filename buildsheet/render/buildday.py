@@ -130,10 +130,10 @@ class TickBox(Flowable):
         self.canv.rect(0, 0, self.side, self.side, stroke=1, fill=0)
 
 
-def safety_flowables() -> list[Flowable]:
+def safety_flowables(cautions: Sequence[str] = SAFETY_LINES) -> list[Flowable]:
     """The usual cautions for masts, guy lines and stakes (common practice)."""
     out: list[Flowable] = [_p("Safety", _H2)]
-    out += [_p(f"- {line}", _SMALL) for line in SAFETY_LINES]
+    out += [_p(f"- {line}", _SMALL) for line in cautions]
     return out
 
 
@@ -142,7 +142,7 @@ def safety_flowables() -> list[Flowable]:
 
 def bom_flowables(lines: Iterable[BomLine], *, title: str = "Bill of materials",
                   fmt: LengthFormat = default_metric, width: float = DEFAULT_WIDTH,
-                  safety: bool = True) -> list[Flowable]:
+                  safety: bool = True, cautions: Sequence[str] = SAFETY_LINES) -> list[Flowable]:
     """BOM table (category, item, quantity, note); lengths through ``fmt``, counts as pcs."""
     rows: list[list[object]] = [["Category", "Item", "Quantity", "Note"]]
     for line in lines:
@@ -151,7 +151,7 @@ def bom_flowables(lines: Iterable[BomLine], *, title: str = "Bill of materials",
     w = [0.13 * width, 0.35 * width, 0.15 * width, 0.37 * width]
     out: list[Flowable] = [_p(title, _H1), _grid(rows, w, right_cols=(2,))]
     if safety:
-        out += [Spacer(1, 4 * mm)] + safety_flowables()
+        out += [Spacer(1, 4 * mm)] + safety_flowables(cautions)
     return out
 
 
@@ -173,9 +173,12 @@ def spool_plan_flowables(plan: SpoolPlan, *, title: str = "Spool cut plan",
     rows: list[list[object]] = [["Material", "On hand", "Opened", "Lower bound", "Needed",
                                  "Remainder", "Plan"]]
     for m in plan.materials:
-        how = {"exact": "exact search", "heuristic": "heuristic", "none": "-"}[m.method]
-        if m.proven_optimal and m.method == "heuristic":
-            how = "heuristic, meets bound"
+        how = {"exact": "exact (optimal)", "heuristic": "heuristic",
+               "integer program": "integer program (stopped early)", "none": "-"}[m.method]
+        if m.proven_optimal and m.method != "exact":
+            how += ", meets bound"
+        elif not m.proven_optimal and m.method != "none":
+            how += f"; not proven: the bound is {m.lower_bound}"
         rows.append([_p(m.material), str(m.spools_on_hand), str(m.spools_used),
                      str(m.lower_bound), fmt(m.needed_m), fmt(m.waste_m), _p(how, _SMALL)])
     out.append(_grid(rows, [w * width for w in (0.2, 0.1, 0.1, 0.12, 0.16, 0.16, 0.16)],
@@ -208,37 +211,41 @@ def spool_plan_flowables(plan: SpoolPlan, *, title: str = "Spool cut plan",
 
 def station_list_flowables(spool: SpoolUse, *, metric: LengthFormat = default_metric,
                            imperial: LengthFormat = default_feet_inches,
-                           width: float = DEFAULT_WIDTH, station: str = "") -> list[Flowable]:
+                           width: float = DEFAULT_WIDTH, station: str = "",
+                           primary: str = "metric") -> list[Flowable]:
     """One page for the cutting table: the spool's cuts in order, a tick box each, the cut ID
-    (element ID and leg), the length and the running mark in metric and feet-inches."""
+    (element ID and leg), the length and the running mark in both systems, ``primary`` first."""
+    first, second = (metric, imperial) if primary == "metric" else (imperial, metric)
     tol = (spool.cuts[0].mark_m - spool.cuts[0].start_m - spool.cuts[0].cut.length_m
            if spool.cuts else 0.0)
     head = f"Cutting station{(' ' + station) if station else ''}: spool {spool.spool_id}"
     out: list[Flowable] = [
         _p(head, _H1),
-        _p(f"{spool.title}, {metric(spool.length_m)} ({imperial(spool.length_m)}) of "
+        _p(f"{spool.title}, {first(spool.length_m)} ({second(spool.length_m)}) of "
            f"{spool.material}", _BIG),
         Spacer(1, 2 * mm),
         _p("Measure from the free end of the spool. At each mark: check the "
            f"{'cord' if spool.material == 'cord' else 'wire'} for damage, cut, tag the "
            "piece with its ID, tick the box. Each piece includes "
-           f"{metric(tol)} cutting tolerance. Eye protection on while unspooling and cutting.",
+           f"{first(tol)} cutting tolerance. Eye protection on while unspooling and cutting.",
            _BODY),
         Spacer(1, 3 * mm),
     ]
-    rows: list[list[object]] = [["Done", "#", "Cut ID", "Label", "Length", "Mark at (m)",
-                                 "Mark at (ft-in)"]]
+    heads = ("Mark at (m)", "Mark at (ft-in)")
+    rows: list[list[object]] = [["Done", "#", "Cut ID", "Label", "Length",
+                                 *(heads if primary == "metric" else heads[::-1])]]
     for n, pc in enumerate(spool.cuts, start=1):
         rows.append([TickBox(), str(n), _p(pc.cut.cut_id, _BIG_BOLD), _p(pc.cut.label),
-                     metric(pc.cut.length_m), metric(pc.mark_m), imperial(pc.mark_m)])
+                     first(pc.cut.length_m), first(pc.mark_m), f"({second(pc.mark_m)})"])
     table = _grid(rows, [w * width for w in (0.09, 0.05, 0.26, 0.17, 0.12, 0.13, 0.18)],
-                  font_size=10, row_height=9 * mm, right_cols=(4, 5, 6))
+                  font_size=10, row_height=(9 if len(spool.cuts) <= 9 else 7) * mm,
+                  right_cols=(4, 5, 6))
     table.setStyle(TableStyle([("ALIGN", (0, 1), (0, -1), "CENTER"),
                                ("FONT", (5, 1), (5, -1), "Helvetica-Bold", 10)]))
     out.append(table)
     out.append(Spacer(1, 4 * mm))
-    out.append(_p(f"Remainder on the spool after the last mark: {metric(spool.remainder_m)} "
-                  f"({imperial(spool.remainder_m)}). Write it on the spool.", _BIG))
+    out.append(_p(f"Remainder on the spool after the last mark: {first(spool.remainder_m)} "
+                  f"({second(spool.remainder_m)}). Write it on the spool.", _BIG))
     out.append(Spacer(1, 6 * mm))
     out.append(_grid([["Cut by", "Checked by", "Date"], ["", "", ""]],
                      [width / 3] * 3, font_size=9, row_height=10 * mm))
@@ -280,8 +287,8 @@ def log_form_flowables(kit_id: str, builder: str, rows: Sequence[LogRow], *, pas
     re-measuring), with blank boxes for dip frequency, SWR, trim made and initials."""
     out: list[Flowable] = [
         _p(f"Measurement log: kit {kit_id}", _H1),
-        _grid([["Builder", builder or "", "Date", "", "Site", ""]],
-              [w * width for w in (0.12, 0.3, 0.1, 0.16, 0.1, 0.22)], header_rows=1,
+        _grid([["Builder", "Date", "Site"], [_p(builder or ""), "", ""]],
+              [w * width for w in (0.42, 0.26, 0.32)], header_rows=1,
               font_size=9, row_height=9 * mm),
         Spacer(1, 3 * mm),
         _p("Measure in the deployed shape and height. Tune the longest element first, then the "

@@ -15,6 +15,7 @@ from reportlab.lib.enums import TA_LEFT
 from reportlab.lib.pagesizes import A4, LETTER
 from reportlab.lib.styles import ParagraphStyle, getSampleStyleSheet
 from reportlab.lib.units import mm
+from reportlab.pdfbase.pdfmetrics import stringWidth
 from reportlab.platypus import (
     BaseDocTemplate,
     CondPageBreak,
@@ -29,6 +30,7 @@ from reportlab.platypus import (
     TableStyle,
 )
 
+from buildsheet.calc.bom import DAY_BOM_CSV, catalogue_title, kit_bom_csv_name, shop_length_text
 from buildsheet.calc.cuts import DesignCuts, printed_parts
 from buildsheet.calc.performance import DesignPerformance
 from buildsheet.calc.safety import SITE_CAUTIONS
@@ -70,7 +72,7 @@ class SheetDoc(BaseDocTemplate):
     """Doc template that turns h1/h2 paragraphs into PDF bookmarks and contents entries."""
 
     def __init__(self, out: BinaryIO, *, pagesize: tuple[float, float], footer: str, title: str):
-        super().__init__(out, pagesize=pagesize, leftMargin=14 * mm, rightMargin=14 * mm,
+        super().__init__(out, pagesize=pagesize, leftMargin=MARGIN_X, rightMargin=MARGIN_X,
                          topMargin=13 * mm, bottomMargin=16 * mm, title=title,
                          author="buildsheet", invariant=1)
         frame = Frame(self.leftMargin, self.bottomMargin, self.width, self.height, id="body")
@@ -84,8 +86,13 @@ class SheetDoc(BaseDocTemplate):
 
     def _footer(self, canvas, doc) -> None:
         canvas.saveState()
-        canvas.setFont("Helvetica", 7.5)
+        room = self.pagesize[0] - self.leftMargin - self.rightMargin - 40
+        size = 7.5
+        while size > 5.5 and stringWidth(self._footer_text, "Helvetica", size) > room:
+            size -= 0.25  # a long event name must not run into the page number
+        canvas.setFont("Helvetica", size)
         canvas.drawString(self.leftMargin, 8 * mm, self._footer_text)
+        canvas.setFont("Helvetica", 7.5)
         canvas.drawRightString(self.pagesize[0] - self.rightMargin, 8 * mm, f"page {doc.page}")
         canvas.restoreState()
 
@@ -98,6 +105,15 @@ class SheetDoc(BaseDocTemplate):
             self.canv.bookmarkPage(key)
             self.canv.addOutlineEntry(text, key, level=level, closed=level > 0)
             self.headings.append((level, text, self.page))
+
+
+#: Page margins, points (left and right).
+MARGIN_X = 14 * mm
+
+
+def content_width(paper: str) -> float:
+    """Width of the text frame on ``paper`` ("a4" or "letter"), points."""
+    return (LETTER if paper == "letter" else A4)[0] - 2 * MARGIN_X
 
 
 def _p(text: str, style: str = "cell") -> Paragraph:
@@ -176,6 +192,8 @@ def feed_lines(cuts: DesignCuts) -> list[Flowable]:
 
 
 def geometry_table(cuts: DesignCuts, units: str) -> Table:
+    if any(leg.has_support for c in cuts.elements for leg in c.legs):
+        return support_table(cuts, units)
     rows = [["Leg", "Bearing", "Reach", "Slope", "End height", "Cord line", "Cord to cut",
              "Stake from mast"]]
     for c in cuts.elements:
@@ -189,9 +207,24 @@ def geometry_table(cuts: DesignCuts, units: str) -> Table:
     return _table(rows, [50, 44, 66, 36, 66, 70, 74, 78], bold_cols=(6,))
 
 
-def cautions_box() -> Table:
+def support_table(cuts: DesignCuts, units: str) -> Table:
+    """Flat mount: end supports, the cord to each, halyards and the guy anchors."""
+    rows = [["Leg", "Bearing", "Reach", "Support\nfrom mast", "Support\nheight",
+             "Cord to\nsupport", "Halyard", "Guys (3),\neach", "Guy anchors\nfrom mast"]]
+    for c in cuts.elements:
+        for leg in c.legs:
+            rows.append([
+                f"{c.element.band_label} {leg.leg_id}", f"{leg.bearing_deg:.0f} deg",
+                _two_line(leg.reach_m, units), _two_line(leg.support_distance_m or 0.0, units),
+                _two_line(leg.support_height_m or 0.0, units), _two_line(leg.cord_cut_m, units),
+                _two_line(leg.halyard_m, units), _two_line(leg.support_guy_m, units),
+                _two_line(leg.stake_distance_m, units)])
+    return _table(rows, [44, 40, 58, 60, 58, 58, 58, 58, 62], bold_cols=(5, 6))
+
+
+def cautions_box(cautions: tuple[str, ...] = SITE_CAUTIONS) -> Table:
     paras = [_p("<b>Safety cautions</b>", "body")] + [
-        Paragraph(text, STYLES["caution"], bulletText="\u2022") for text in SITE_CAUTIONS]
+        Paragraph(plain(text), STYLES["caution"], bulletText="\u2022") for text in cautions]
     t = Table([[paras]], colWidths=[500])
     t.setStyle(TableStyle([("BOX", (0, 0), (-1, -1), 1.2, colors.black),
                            ("LEFTPADDING", (0, 0), (-1, -1), 6),
@@ -264,6 +297,7 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list
     """Flowables of one build sheet for ``kits`` (one kit, or a roster for per-design layout)."""
     ev = packet.design.event
     units = ev.units
+    width = content_width(ev.paper)
     d = cuts.design
     if len(kits) == 1:
         k = kits[0]
@@ -278,7 +312,8 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list
     story.append(_p(
         f"{plain(ev.name)} - {plain(ev.date)}. {d.kind} ({len(d.elements)} element"
         f"{'s' if len(d.elements) > 1 else ''}) on one 1:1 balun, {d.mount.replace('_', ' ')}, "
-        f"apex {format_both(d.apex_height_m, units)}. Wire: {plain(d.wire.title)}. "
+        f"apex {format_both(d.apex_height_m, units)}. Wire: "
+        f"{plain(catalogue_title(d.wire.title, units))}. "
         f"Ground: {plain(packet.design.site.ground.title)}.", "body"))
     if len(kits) > 1:
         roster = ", ".join(f"{k.kit_id}{' ' + plain(k.builder) if k.builder else ''}"
@@ -297,14 +332,17 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list
         "shown for comparison.", "small"))
     story += tuning_lines(cuts, units)
     story += [_p(t, "body") for t in packet.advice[d.key].dips]
+    story += [_p(plain(t), "body") for t in packet.advice[d.key].spacing]
     story += [_p(t, "body") for t in packet.advice[d.key].band_rules]
     story += [_p("Feed point", "h2")] + feed_lines(cuts) + [swr_row(cuts)]
     story += [CondPageBreak(120 * mm), _p("Deployment", "h2"),
-              drawings.side_view(cuts, 500, 165, units), Spacer(1, 4)]
-    site = packet.design.site
-    dims = (site.width_m, site.depth_m) if site.width_m and site.depth_m else None
+              drawings.side_view(cuts, width, 165, units), Spacer(1, 4)]
+    size = drawings.plan_size(width)
+    plan = drawings.plan_view(cuts, size, units)
+    fit = [_p(plain(t), "small") for t in packet.advice[d.key].site_fit]
     story += [KeepTogether([geometry_table(cuts, units), Spacer(1, 4),
-                            drawings.plan_view(cuts, 270, units, dims)])]
+                            Table([[plan, fit]], colWidths=[size + 8, width - size - 14],
+                                  style=[("VALIGN", (0, 0), (-1, -1), "TOP")])])]
     for w in cuts.warnings:
         story.append(_p(f"<b>Note:</b> {plain(w)}", "small"))
     advice = packet.advice[d.key]
@@ -319,7 +357,7 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list
         story += buildday.bom_flowables(packet.kit_boms[kits[0].kit_id], title="",
                                         fmt=_fmt(units), safety=False)[1:]
     story += [Spacer(1, 6), KeepTogether([exposure_box(packet, d.key)]),
-              Spacer(1, 6), KeepTogether([cautions_box()]), PageBreak()]
+              Spacer(1, 6), KeepTogether([cautions_box(advice.cautions)]), PageBreak()]
     return story
 
 
@@ -381,7 +419,7 @@ def contents_table(entries: list[tuple[int, str]]) -> Table:
 
 
 def _qty(line: buildday.BomLine, units: str) -> str:
-    return (format_length(line.quantity, units) if line.unit == "m"  # type: ignore[arg-type]
+    return (shop_length_text(line.quantity, units).split(" (")[0] if line.unit == "m"
             else f"{line.quantity:g}")
 
 
@@ -424,9 +462,18 @@ def logistics_pages(packet: Packet, only: Collection[str] | None = None) -> list
     units = packet.design.event.units
     story: list[Flowable] = []
     if only is None or "day:bom" in only:
-        story += buildday.bom_flowables(
-            packet.day_bom, title="Bill of materials for the day", fmt=_fmt(units))
-        story.append(PageBreak())
+        first = packet.advice[packet.cuts[0].design.key] if packet.cuts else None
+        bom = buildday.bom_flowables(
+            packet.day_bom, title="Bill of materials for the day",
+            fmt=lambda m: shop_length_text(m, units).replace(" (", "\n("),
+            cautions=first.station_cautions if first else buildday.SAFETY_LINES)
+        bom[1:1] = [_p(f"Lengths to buy, rounded up to whole "
+                       f"{'metres' if units == 'metric' else 'feet'}. Also in the packet folder "
+                       f"as CSV (exact lengths in metres): {DAY_BOM_CSV} for the day and "
+                       f"{kit_bom_csv_name('KIT')} per kit (e.g. "
+                       f"{kit_bom_csv_name(packet.design.kits[0].kit_id) if packet.design.kits else ''}).",
+                       "small"), Spacer(1, 4)]
+        story += bom + [PageBreak()]
     if only is None or "day:spool-plan" in only:
         if packet.already_cut:
             story.append(_p(f"{len(packet.already_cut)} legs already cut (recorded in the "
@@ -438,7 +485,7 @@ def logistics_pages(packet: Packet, only: Collection[str] | None = None) -> list
     if packet.spool_plan.spools and (only is None or "day:stations" in only):
         story += buildday.station_lists_flowables(
             packet.spool_plan, metric=lambda m: format_length(m, "metric"),
-            imperial=lambda m: format_length(m, "imperial"))
+            imperial=lambda m: format_length(m, "imperial"), primary=units)
         story.append(PageBreak())
     return story
 
