@@ -229,7 +229,7 @@ def assembly_steps(cuts: DesignCuts, units: UnitSystem) -> tuple[str, ...]:
     text stands for the kit ID (the sheet fills it in)."""
     d = cuts.design
     a = d.allowances
-    per = "; ".join(f"{c.element.band_label} {format_both(printed_parts(c, units).cut_m, units)}"
+    per = "; ".join(f"{c.element.band_label} {format_both(c.cut_leg_m, units)}"
                     for c in cuts.elements)
     tags = ", ".join(f"{{kit}}-{c.element.key}-A/B" for c in cuts.elements)
     trims = "; ".join(f"{c.element.band_label} {format_length(printed_parts(c, units).trim_m, units)}"
