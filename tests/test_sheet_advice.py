@@ -198,6 +198,11 @@ def test_flat_dipole_gets_end_supports_halyards_and_bill(tmp_path):
     from buildsheet.calc.logistics import day_cuts
     ids = [c.cut_id for c in day_cuts(p.design, {"d": p.cuts[0]})]
     assert sum(i.endswith("-H") for i in ids) == 2 and sum("-G" in i for i in ids) == 6
+    # an option that no longer applies is reported, not dropped silently (DESIGN.md, lesson 4)
+    odd = packet_of(tmp_path, spec_text([element(band="40m", bearing=90)], mount="flat",
+                                        apex="10 m").replace('coax = "rg8x"',
+                                                             'coax = "rg8x"\ntie_off_angle = 30'))
+    assert any("tie_off_angle is not used" in w for w in odd.warnings)
 
 
 def test_demo_qr_codes_lead_to_its_record_pages(demo_packet):

@@ -462,6 +462,9 @@ def design_advice(cuts: DesignCuts, perf: DesignPerformance, units: UnitSystem,
     warnings += sixty_warnings
     spacing, spacing_warnings = fan_spacing_advice(cuts, ground, model, units)
     warnings += spacing_warnings
+    if d.mount == "flat" and d.tie_off_angle_deg != 45.0:
+        warnings.append(f"{d.key}: tie_off_angle is not used: a flat dipole hangs from end "
+                        "supports with horizontal cords and halyards")
     return DesignAdvice(
         exposure_head=exposure_head(screens[0]),
         exposure_bands=tuple(exposure_band_line(b.band_label, b.exposure, units)
