@@ -28,7 +28,12 @@ from buildsheet.calc.advice import DesignAdvice, design_advice, tuning_words
 from buildsheet.calc.bom import BomLine
 from buildsheet.calc.calibrate import Calibration, calibrated_prediction, design_fingerprint
 from buildsheet.calc.cuts import DesignCuts, ElementCut, design_cuts
-from buildsheet.calc.labels import LabelContent, offline_record, record_url
+from buildsheet.calc.labels import (
+    LabelContent,
+    offline_record,
+    record_url,
+    station_record_url,
+)
 from buildsheet.calc.logistics import logistics
 from buildsheet.calc.performance import DesignPerformance, design_performance
 from buildsheet.calc.safety import SITE_CAUTIONS
@@ -184,6 +189,8 @@ def label_contents(spec: Design, entries: Sequence[ElementEntry]) -> tuple[Label
                 f" now {format_length(leg.current_m, ev.units)}" if trimmed else "")
             if ev.record_url:
                 payload = record_url(ev.record_url, entry.kit.kit_id, entry.element_id, leg_id)
+            elif ev.station_url:
+                payload = station_record_url(ev.station_url, entry.element_id)
             else:
                 payload = offline_record(leg_id, cut.element.band_label, freq, short,
                                          entry.kit.kit_id, "")

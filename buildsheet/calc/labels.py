@@ -195,6 +195,28 @@ def record_url(
     return template.format(**values)
 
 
+def check_station_url(value: object, where: str = "station_url") -> str:
+    """A build-day station address, ``http(s)://host[:port][/prefix]`` with no query, fragment
+    or placeholders; returned without a trailing slash. SpecError naming ``where`` otherwise."""
+    text = value.strip() if isinstance(value, str) else ""
+    parts = urllib.parse.urlsplit(text)
+    if (parts.scheme not in ("http", "https") or not parts.hostname or parts.query
+            or parts.fragment or "{" in text or "}" in text or " " in text):
+        raise SpecError([Problem(where, f"{value!r} is not a station address; write it like "
+                                 '"http://192.168.4.10:8080" (http or https, host, optional port'
+                                 " and path; no query or placeholders)")])
+    try:
+        parts.port  # noqa: B018 - raises ValueError for a bad port
+    except ValueError:
+        raise SpecError([Problem(where, f"{value!r}: the port must be 1-65535")]) from None
+    return text.rstrip("/")
+
+
+def station_record_url(station_url: str, element: str) -> str:
+    """The element page of the build-day station: ``<station_url>/e/<element ID>``."""
+    return station_url.rstrip("/") + "/e/" + urllib.parse.quote(element, safe="")
+
+
 def offline_record(
     leg_id: str,
     band_name: str,

@@ -126,9 +126,11 @@ def make_parser() -> argparse.ArgumentParser:
 
     from buildsheet.cli.calibrate import register as register_calibrate
     from buildsheet.cli.records import register
+    from buildsheet.cli.serve import register as register_serve
 
     register(sub)  # cut, measure, trim, void, history, export, import
     register_calibrate(sub)  # calibrate
+    register_serve(sub)  # serve (the build-day station)
     return parser
 
 

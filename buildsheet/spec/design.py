@@ -29,6 +29,7 @@ class Event:
     paper: Paper
     record_url: str | None  # template with {kit}, {element}, {leg}
     layout: Layout
+    station_url: str | None = None  # the build-day station's address: labels lead to /e/<ID>
 
 
 @dataclass(frozen=True)

@@ -39,7 +39,8 @@ from buildsheet.spec.values import kind_of, shown
 from buildsheet.spec.wires import BUILTIN_WIRES, MATERIALS, WireType, awg_diameter
 
 _TOP_KEYS = ("event", "site", "wires", "designs", "kits", "labels", "exposure", "stock")
-_EVENT_KEYS = ("name", "club", "date", "region", "units", "paper", "record_url", "layout")
+_EVENT_KEYS = ("name", "club", "date", "region", "units", "paper", "record_url", "layout",
+               "station_url")
 _SITE_KEYS = ("ground", "width", "depth")
 _WIRE_KEYS = ("title", "gauge", "diameter", "material", "stranding", "insulation",
               "permittivity", "cladding_fraction")
@@ -400,9 +401,11 @@ def read_spec_text(text: str, source: str = "spec.toml") -> Design:
     paper = r.choice(ev.get("paper", "a4"), "event.paper", ("a4", "letter"))
     layout = r.choice(ev.get("layout", "per_kit"), "event.layout", ("per_kit", "per_design"))
     url = _record_url(r, ev.get("record_url"))
+    station = _station_url(r, ev.get("station_url"))
     day = r.convert(ev.get("date"), "event.date", values.date) if "date" in ev else ""
     event = Event(r.text(ev, "name", "event", "Build day"), r.text(ev, "club", "event", ""),
-                  day or "", region, units or "metric", paper or "a4", url, layout or "per_kit")
+                  day or "", region, units or "metric", paper or "a4", url, layout or "per_kit",
+                  station)
 
     st = r.keys(raw.get("site", {}), "site", _SITE_KEYS)
     ground_key = r.choice(st.get("ground", "medium_dry"), "site.ground", _GROUNDS)
@@ -500,6 +503,22 @@ def _label_stock(r: _Reader, value: Any) -> object:
         return None
     try:
         return labels.stock_from_mapping(value, f"{r.source}: labels.stock")
+    except SpecError as exc:
+        r.problems.extend(exc.problems)
+        return None
+
+
+def _station_url(r: _Reader, url: Any) -> str | None:
+    """The build-day station's address (labels then lead to <station_url>/e/<element ID>)."""
+    if url is None:
+        return None
+    from buildsheet.calc.labels import check_station_url
+
+    url = r.convert(url, "event.station_url", values.text(values.URL_MAX))
+    if url is None:
+        return None
+    try:
+        return check_station_url(url, f"{r.source}: event.station_url")
     except SpecError as exc:
         r.problems.extend(exc.problems)
         return None

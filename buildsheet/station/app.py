@@ -1,0 +1,454 @@
+"""The station's web application (Starlette): routes, forms, cookies, limits.
+
+Pages: ``/e/<element ID>`` (the element page a winder label's QR opens; leg IDs redirect to
+their element), ``/board`` (the day board, refreshing itself), ``/organiser`` (PIN-protected
+actions). Every POST carries a CSRF token; request bodies are capped at
+:data:`MAX_BODY_BYTES`; store work runs in the thread pool, one open store per request.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import time
+import urllib.parse
+from collections.abc import Awaitable, Callable, MutableMapping
+from dataclasses import dataclass, field
+from typing import Any
+
+from starlette.applications import Starlette
+from starlette.concurrency import run_in_threadpool
+from starlette.datastructures import UploadFile
+from starlette.requests import Request
+from starlette.responses import HTMLResponse, PlainTextResponse, RedirectResponse, Response
+from starlette.routing import Route
+
+from buildsheet.calc.sweep import MAX_SWEEP_BYTES
+from buildsheet.errors import BuildsheetError
+from buildsheet.station import ledger_api as api
+from buildsheet.station import security as sec
+from buildsheet.station import views
+
+#: Largest request body accepted, bytes: one sweep file plus the form fields around it.
+MAX_BODY_BYTES = MAX_SWEEP_BYTES + 64 * 1024
+#: Longest free-text field (a note) kept, characters; longer text is refused.
+MAX_TEXT = 500
+#: How often the day board refreshes itself, seconds.
+BOARD_REFRESH_S = 10
+
+SECURITY_HEADERS = {
+    "Content-Security-Policy": ("default-src 'none'; style-src 'unsafe-inline'; img-src 'self'; "
+                                "script-src 'self'; connect-src 'self'; form-action 'self'; "
+                                "frame-ancestors 'none'; base-uri 'none'"),
+    "X-Content-Type-Options": "nosniff",
+    "Referrer-Policy": "no-referrer",
+    "Cache-Control": "no-store",
+}
+
+BOARD_JS = f"""// Day board: fetch the table every {BOARD_REFRESH_S} s and swap it in (no framework).
+(function () {{
+  var box = document.getElementById("board");
+  if (!box) {{ return; }}
+  function refresh() {{
+    fetch("/board/rows", {{cache: "no-store", credentials: "same-origin"}})
+      .then(function (r) {{ return r.ok ? r.text() : Promise.reject(r.status); }})
+      .then(function (html) {{ box.innerHTML = html; box.dataset.updated = Date.now(); }})
+      .catch(function () {{ /* the station may be restarting: try again next time */ }});
+  }}
+  setInterval(refresh, {BOARD_REFRESH_S * 1000});
+}})();
+"""
+
+
+@dataclass
+class StationState:
+    """What the running app holds: the station (replaced after a calibration), the keys, the
+    template environment and the wrong-PIN counters per browser."""
+
+    station: api.Station
+    keys: sec.Keys
+    env: Any
+    pin_failures: dict[str, tuple[int, float]] = field(default_factory=dict)
+    calibrating: asyncio.Lock = field(default_factory=asyncio.Lock)
+
+
+class BodyLimit:
+    """ASGI middleware: refuse request bodies over ``limit`` bytes with 413 (declared or
+    streamed)."""
+
+    def __init__(self, app: Callable[..., Awaitable[None]], limit: int):
+        self.app, self.limit = app, limit
+
+    async def __call__(self, scope: MutableMapping[str, Any], receive: Callable[..., Any],
+                       send: Callable[..., Any]) -> None:
+        if scope["type"] != "http":
+            await self.app(scope, receive, send)
+            return
+        declared = dict(scope.get("headers") or []).get(b"content-length")
+        if declared is not None and (not declared.isdigit() or int(declared) > self.limit):
+            await _too_large(self.limit)(scope, receive, send)
+            return
+        seen = 0
+
+        async def limited() -> Any:
+            nonlocal seen
+            message = await receive()
+            if message["type"] == "http.request":
+                seen += len(message.get("body", b""))
+                if seen > self.limit:
+                    raise _TooLarge
+            return message
+
+        try:
+            await self.app(scope, limited, send)
+        except _TooLarge:
+            await _too_large(self.limit)(scope, receive, send)
+
+
+class _TooLarge(Exception):
+    pass
+
+
+def _too_large(limit: int) -> Response:
+    return PlainTextResponse(f"upload refused: more than {limit:,} bytes (a sweep file may be "
+                             f"at most {MAX_SWEEP_BYTES:,} bytes)", status_code=413)
+
+
+# --------------------------------------------------------------------------- helpers
+
+
+def _state(request: Request) -> StationState:
+    return request.app.state.station_state  # type: ignore[no-any-return]
+
+
+def _client(request: Request) -> tuple[str, bool]:
+    """The browser's client ID from its cookie, or a new one (True when new)."""
+    found = request.cookies.get(sec.CLIENT_COOKIE, "")
+    if len(found) == 32 and all(c in "0123456789abcdef" for c in found):
+        return found, False
+    return sec.new_client_id(), True
+
+
+def _finish(response: Response, client: str, new: bool) -> Response:
+    for name, value in SECURITY_HEADERS.items():
+        response.headers[name] = value
+    if new:
+        response.set_cookie(sec.CLIENT_COOKIE, client, httponly=True, samesite="strict",
+                            max_age=7 * 24 * 3600)
+    return response
+
+
+def _page(request: Request, template: str, page: Any, status: int = 200,
+          client: tuple[str, bool] | None = None) -> Response:
+    cid, new = client or _client(request)
+    html = _state(request).env.get_template(template).render(page=page)
+    return _finish(HTMLResponse(html, status_code=status), cid, new)
+
+
+def _message(request: Request, title: str, text: str, status: int) -> Response:
+    page = {"title": title, "text": text, "event": _state(request).station.spec.event.name}
+    return _page(request, "station_message.html", page, status)
+
+
+def _one_line(exc: BuildsheetError) -> str:
+    return "; ".join(p.message if p.where in ("buildsheet",) else str(p) for p in exc.problems)
+
+
+async def _form(request: Request) -> tuple[dict[str, Any], str, bool] | Response:
+    """The posted form with its CSRF token checked, or the refusal to send."""
+    cid, new = _client(request)
+    try:
+        form = await request.form(max_files=1, max_fields=40, max_part_size=MAX_SWEEP_BYTES)
+    except Exception:  # noqa: BLE001 - python-multipart raises several types for bad bodies
+        return _message(request, "Form not readable", "The form could not be read; reload the "
+                        "page and try again.", 400)
+    fields: dict[str, Any] = {}
+    for key, value in form.multi_items():
+        if isinstance(value, UploadFile):
+            fields[key] = value
+        elif key in fields:
+            fields[key] = [*fields[key], value] if isinstance(fields[key], list) else [
+                fields[key], value]
+        else:
+            fields[key] = value
+    token = fields.get(sec.CSRF_FIELD)
+    if new or not isinstance(token, str) or not sec.csrf_ok(_state(request).keys.secret, cid,
+                                                            token):
+        await form.close()
+        return _message(request, "Form refused", "This form did not come from this station's "
+                        "page in this browser (missing or wrong security token). Reload the "
+                        "page and send it again.", 403)
+    for key, value in fields.items():
+        if isinstance(value, str) and len(value) > MAX_TEXT:
+            await form.close()
+            return _message(request, "Form refused", f"The field {key!r} is longer than "
+                            f"{MAX_TEXT} characters.", 400)
+    return fields, cid, new
+
+
+def _text(fields: dict[str, Any], key: str) -> str:
+    value = fields.get(key, "")
+    return value if isinstance(value, str) else ""
+
+
+def _csrf(request: Request) -> tuple[str, tuple[str, bool]]:
+    client = _client(request)
+    return sec.csrf_token(_state(request).keys.secret, client[0]), client
+
+
+# --------------------------------------------------------------------------- element page
+
+
+async def _element_response(request: Request, element_id: str, *, status: int = 200,
+                            error: str = "", notice: str = "",
+                            form: dict[str, str] | None = None,
+                            client: tuple[str, bool] | None = None) -> Response:
+    st = _state(request)
+    token_client = client or _client(request)
+    token = sec.csrf_token(st.keys.secret, token_client[0])
+    facts = await run_in_threadpool(api.element_facts, st.station, element_id)
+    page = views.element_page(facts, st.station.spec.event.units, st.station.spec.event.name,
+                              token, error=error, notice=notice, form=form)
+    return _page(request, "station_element.html", page, status, token_client)
+
+
+async def element(request: Request) -> Response:
+    wanted = request.path_params["element_id"]
+    st = _state(request)
+    try:
+        element_id = await run_in_threadpool(api.resolve, st.station, wanted)
+    except BuildsheetError as exc:
+        return _message(request, "Unknown element", _one_line(exc), 404)
+    if element_id != wanted:
+        return RedirectResponse(views.element_url(element_id), status_code=303)
+    notice = ""
+    if request.query_params.get("reading", "").isdigit():
+        notice = f"Reading {request.query_params['reading']} recorded."
+    elif request.query_params.get("trim", "").isdigit():
+        notice = f"Trim {request.query_params['trim']} recorded."
+    return await _element_response(request, element_id, notice=notice)
+
+
+async def _post(request: Request, action: Callable[..., int], args: Callable[[dict[str, Any]],
+                tuple[Any, ...]], done: str, keep: tuple[str, ...]) -> Response:
+    element_id = request.path_params["element_id"]
+    got = await _form(request)
+    if isinstance(got, Response):
+        return got
+    fields, cid, new = got
+    st = _state(request)
+    try:
+        values = args(fields)
+        number = await run_in_threadpool(action, st.station, element_id, *values)
+    except BuildsheetError as exc:
+        form = {k: _text(fields, k) for k in keep}
+        try:
+            return await _element_response(request, element_id, status=400,
+                                           error=_one_line(exc), form=form, client=(cid, new))
+        except BuildsheetError as missing:
+            return _message(request, "Unknown element", _one_line(missing), 404)
+    finally:
+        for value in fields.values():
+            if isinstance(value, UploadFile):
+                await value.close()
+    url = f"{views.element_url(element_id)}?{done}={number}#advice"
+    return _finish(RedirectResponse(url, status_code=303), cid, new)
+
+
+async def post_dip(request: Request) -> Response:
+    def args(f: dict[str, Any]) -> tuple[Any, ...]:
+        return (_text(f, "dip"), _text(f, "swr"), _text(f, "r"), _text(f, "x"), _text(f, "note"))
+
+    return await _post(request, api.record_dip, args, "reading", ("dip", "swr", "r", "x", "note"))
+
+
+async def post_sweep(request: Request) -> Response:
+    async def read(request: Request) -> Response:
+        return await _post(request, api.record_sweep, args, "reading", ("note",))
+
+    def args(f: dict[str, Any]) -> tuple[Any, ...]:
+        upload = f.get("sweep")
+        if not isinstance(upload, UploadFile) or not upload.filename:
+            raise BuildsheetError("choose a sweep file (.s1p or .csv) first")
+        upload.file.seek(0)
+        data = upload.file.read(MAX_SWEEP_BYTES + 1)
+        name = upload.filename.replace("\\", "/").rsplit("/", 1)[-1]
+        return (name, data, _text(f, "note"))
+
+    return await read(request)
+
+
+async def post_trim(request: Request) -> Response:
+    def args(f: dict[str, Any]) -> tuple[Any, ...]:
+        return (_text(f, "amount"), _text(f, "direction") or "removed", _text(f, "leg") or "both",
+                _text(f, "note"))
+
+    return await _post(request, api.record_trim, args, "trim",
+                       ("amount", "direction", "leg", "note"))
+
+
+async def sweep_plot(request: Request) -> Response:
+    from buildsheet.station.plot import sweep_svg
+
+    st = _state(request)
+    number = request.path_params["number"]
+    try:
+        facts = await run_in_threadpool(api.element_facts, st.station,
+                                        request.path_params["element_id"])
+    except BuildsheetError as exc:
+        return _message(request, "Unknown element", _one_line(exc), 404)
+    if not any(m.id == number for m in facts.readings):
+        return _message(request, "No such sweep", f"{facts.element_id} has no reading {number}.",
+                        404)
+    found = await run_in_threadpool(api.stored_sweep, st.station, number)
+    if found is None:
+        return _message(request, "No sweep", f"Reading {number} has no sweep stored.", 404)
+    sweep, fit = found
+    svg = sweep_svg(sweep, fit, facts.band_low_hz, facts.band_high_hz, facts.design_hz,
+                    title=f"{facts.element_id} reading {number}")
+    cid, new = _client(request)
+    return _finish(Response(svg, media_type="image/svg+xml"), cid, new)
+
+
+# --------------------------------------------------------------------------- day board
+
+
+def _is_organiser(request: Request) -> bool:
+    cid, _new = _client(request)
+    return sec.organiser_ok(_state(request).keys.secret, cid,
+                            request.cookies.get(sec.ORGANISER_COOKIE))
+
+
+async def _board_page(request: Request) -> tuple[views.BoardPage, tuple[str, bool]]:
+    st = _state(request)
+    token, client = _csrf(request)
+    facts = await run_in_threadpool(api.board_facts, st.station)
+    return views.board_page(facts, st.station.spec.event.units, st.station.spec.event.name,
+                            token, _is_organiser(request)), client
+
+
+async def board(request: Request) -> Response:
+    page, client = await _board_page(request)
+    return _page(request, "station_board.html", page, client=client)
+
+
+async def board_rows(request: Request) -> Response:
+    page, client = await _board_page(request)
+    return _page(request, "station_board_rows.html", page, client=client)
+
+
+async def board_js(request: Request) -> Response:
+    return Response(BOARD_JS, media_type="text/javascript",
+                    headers={"X-Content-Type-Options": "nosniff"})
+
+
+async def home(request: Request) -> Response:
+    return RedirectResponse("/board", status_code=303)
+
+
+# --------------------------------------------------------------------------- organiser
+
+
+async def _organiser_page(request: Request, *, error: str = "", notice: str = "",
+                          status: int = 200) -> Response:
+    st = _state(request)
+    token, client = _csrf(request)
+    if not _is_organiser(request):
+        page = views.OrganiserPage(st.station.spec.event.name, token, False, error=error)
+        return _page(request, "station_organiser.html", page, status, client)
+    facts = await run_in_threadpool(api.board_facts, st.station)
+    board_view = views.board_page(facts, st.station.spec.event.units, "", token, True)
+    reprint = await run_in_threadpool(api.labels_to_reprint, st.station)
+    page = views.OrganiserPage(st.station.spec.event.name, token, True, board_view.offers,
+                               tuple((eid, views.element_url(eid)) for eid in reprint),
+                               error, notice)
+    return _page(request, "station_organiser.html", page, status, client)
+
+
+async def organiser(request: Request) -> Response:
+    notice = request.query_params.get("done", "")
+    known = {"calibrated": "Calibration stored; cut lengths and batch trims updated.",
+             "signed-in": "Signed in as organiser."}
+    return await _organiser_page(request, notice=known.get(notice, ""))
+
+
+async def organiser_pin(request: Request) -> Response:
+    got = await _form(request)
+    if isinstance(got, Response):
+        return got
+    fields, cid, new = got
+    st = _state(request)
+    count, since = st.pin_failures.get(cid, (0, 0.0))
+    if count >= sec.PIN_ATTEMPTS and time.monotonic() - since < sec.PIN_LOCKOUT_S:
+        return await _organiser_page(request, status=429, error="Too many wrong PINs from this "
+                                     f"browser: wait {sec.PIN_LOCKOUT_S:.0f} s.")
+    if not sec.pin_ok(st.keys.pin, _text(fields, "pin")):
+        st.pin_failures[cid] = (count + 1 if count < sec.PIN_ATTEMPTS else 1, time.monotonic())
+        return await _organiser_page(request, status=403, error="Wrong PIN. The PIN is printed "
+                                     "on the organiser's cover page of the sheets.")
+    st.pin_failures.pop(cid, None)
+    response = RedirectResponse("/organiser?done=signed-in", status_code=303)
+    response.set_cookie(sec.ORGANISER_COOKIE, sec.organiser_token(st.keys.secret, cid),
+                        httponly=True, samesite="strict", max_age=12 * 3600)
+    return _finish(response, cid, new)
+
+
+async def organiser_calibrate(request: Request) -> Response:
+    got = await _form(request)
+    if isinstance(got, Response):
+        return got
+    fields, cid, new = got
+    if not _is_organiser(request):
+        return _message(request, "Organiser only", "Sign in with the organiser PIN first.", 403)
+    st = _state(request)
+    sources = fields.get("source", [])
+    sources = [sources] if isinstance(sources, str) else [s for s in sources if isinstance(s, str)]
+    async with st.calibrating:
+        try:
+            st.station = await run_in_threadpool(api.calibrate, st.station,
+                                                 _text(fields, "design"), sources)
+        except BuildsheetError as exc:
+            return await _organiser_page(request, error=_one_line(exc), status=400)
+    return _finish(RedirectResponse("/organiser?done=calibrated", status_code=303), cid, new)
+
+
+async def organiser_signout(request: Request) -> Response:
+    got = await _form(request)
+    if isinstance(got, Response):
+        return got
+    _fields, cid, new = got
+    response = RedirectResponse("/board", status_code=303)
+    response.delete_cookie(sec.ORGANISER_COOKIE)
+    return _finish(response, cid, new)
+
+
+# --------------------------------------------------------------------------- the app
+
+
+def make_app(station: api.Station, keys: sec.Keys | None = None) -> Any:
+    """The ASGI application for ``station`` (body limit outside, Starlette inside)."""
+    from buildsheet.render.site import environment
+
+    routes = [
+        Route("/", home),
+        Route("/board", board),
+        Route("/board/rows", board_rows),
+        Route("/board.js", board_js),
+        Route("/e/{element_id}", element),
+        Route("/e/{element_id}/dip", post_dip, methods=["POST"]),
+        Route("/e/{element_id}/sweep", post_sweep, methods=["POST"]),
+        Route("/e/{element_id}/trim", post_trim, methods=["POST"]),
+        Route("/e/{element_id}/sweep/{number:int}.svg", sweep_plot),
+        Route("/organiser", organiser),
+        Route("/organiser/pin", organiser_pin, methods=["POST"]),
+        Route("/organiser/calibrate", organiser_calibrate, methods=["POST"]),
+        Route("/organiser/signout", organiser_signout, methods=["POST"]),
+    ]
+    app = Starlette(routes=routes)
+    app.state.station_state = StationState(station, keys or sec.Keys(sec.new_secret(),
+                                                                     station.pin), environment())
+    return BodyLimit(app, MAX_BODY_BYTES)
+
+
+def element_link(base_url: str, element_id: str) -> str:
+    """The full URL of an element page under a station address."""
+    return base_url.rstrip("/") + "/e/" + urllib.parse.quote(element_id, safe="")

@@ -1,0 +1,152 @@
+"""The station over HTTP on loopback: forms, CSRF, escaping, limits, concurrency, sweeps.
+
+Outside references: the series RLC resonance f0 = 1/(2 pi sqrt(LC)) (see test_sweep.py), SQLite's
+own row count and integrity_check, and the HTML escaping rules of the HTML standard (``<`` must
+never come back raw from user text).
+"""
+
+from __future__ import annotations
+
+import http.client
+import re
+import sqlite3
+from concurrent.futures import ThreadPoolExecutor
+
+import pytest
+
+from buildsheet.cli.main import main
+from buildsheet.station.app import MAX_BODY_BYTES
+
+from .conftest import HOSTILE_BUILDER, Browser, LiveStation, error_text
+from .test_sweep import F0_HZ, R_OHM, touchstone_text
+
+HOSTILE = '<script>alert("x")</script>&"\'<img src=x onerror=alert(1)>'
+
+
+def rows(store, element_id: str) -> int:
+    with sqlite3.connect(store) as conn:
+        return conn.execute("SELECT count(*) FROM measurements WHERE element_id = ?",
+                            (element_id,)).fetchone()[0]
+
+
+def test_leg_id_redirects_and_unknown_names_nearest(live_station: LiveStation) -> None:
+    b = Browser(live_station.url)
+    status, _text, url = b.get("/e/K02-75m-A")
+    assert status == 200 and url.endswith("/e/K02-75m")
+    status, text, _url = b.get("/e/K02-57m")
+    assert status == 404 and "K02-75m" in error_text(text)
+
+
+def test_posts_without_the_token_are_refused(live_station: LiveStation) -> None:
+    b = Browser(live_station.url)
+    before = rows(live_station.store, "K02-40m")
+    for path, fields in (("/e/K02-40m/dip", {"dip": "7.1 MHz"}),
+                         ("/e/K02-40m/dip", {"dip": "7.1 MHz", "csrf": "0" * 40}),
+                         ("/e/K02-40m/trim", {"amount": "5 mm"}),
+                         ("/organiser/pin", {"pin": live_station.pin})):
+        status, _text, _url = b.post(path, fields)
+        assert status == 403, path
+    # a token from another browser does not carry over
+    other = Browser(live_station.url).token("/e/K02-40m")
+    status, _text, _url = b.post("/e/K02-40m/dip", {"dip": "7.1 MHz", "csrf": other})
+    assert status == 403
+    assert rows(live_station.store, "K02-40m") == before
+
+
+def test_validation_matches_the_cli(live_station: LiveStation, capsys) -> None:
+    b = Browser(live_station.url)
+    token = b.token("/e/K02-40m")
+    cases = [(["--dip", "7.1"], {"dip": "7.1"}),
+             (["--dip", "71 MHz"], {"dip": "71 MHz"}),
+             (["--dip", "7.1 MHz", "--swr", "0.5"], {"dip": "7.1 MHz", "swr": "0.5"})]
+    for argv, fields in cases:
+        code = main(["measure", "K02-40m", *argv, "--store", str(live_station.store)])
+        cli = capsys.readouterr().err.strip().removeprefix("error: ")
+        status, text, _url = b.post("/e/K02-40m/dip", {"csrf": token, **fields})
+        assert code == 1 and status == 400
+        assert error_text(text).endswith(cli.split(": ", 1)[-1])
+
+
+def test_hostile_text_comes_back_escaped(live_station: LiveStation) -> None:
+    b = Browser(live_station.url)
+    token = b.token("/e/K01-75m")
+    fields = {"csrf": token, "dip": HOSTILE, "swr": HOSTILE, "r": HOSTILE, "x": HOSTILE,
+              "note": HOSTILE}
+    status, text, _url = b.post("/e/K01-75m/dip", fields)
+    assert status == 400 and "<script>alert" not in text and "onerror=alert(1)>" not in text
+    assert "&lt;script&gt;" in text
+    status, text, _url = b.post("/e/K01-75m/trim", {"csrf": token, "amount": HOSTILE,
+                                                    "direction": HOSTILE, "leg": HOSTILE,
+                                                    "note": HOSTILE})
+    assert status == 400 and "<script>alert" not in text
+    # a note that is recorded comes back escaped in the history, and so does the spec's text
+    status, text, _url = b.post("/e/K01-75m/dip", {"csrf": token, "dip": "3.85 MHz",
+                                                   "note": HOSTILE})
+    assert status == 200 and "<script>alert" not in text and "&lt;img src=x" in text
+    status, text, _url = b.get("/board")
+    assert "<script>alert" not in text and HOSTILE_BUILDER.split("<")[0] in text
+
+
+def test_upload_limits_and_types(live_station: LiveStation) -> None:
+    b = Browser(live_station.url)
+    token = b.token("/e/K02-40m")
+    status, text, _url = b.post_file("/e/K02-40m/sweep", {"csrf": token}, "sweep",
+                                     b"MZ\x90\x00" * 10, "tool.exe")
+    assert status == 400 and "not a sweep file type" in error_text(text)
+    # a body declared larger than the limit is refused before it is read
+    host, port = live_station.url.removeprefix("http://").split(":")
+    conn = http.client.HTTPConnection(host, int(port), timeout=30)
+    conn.putrequest("POST", "/e/K02-40m/sweep")
+    conn.putheader("Content-Type", "multipart/form-data; boundary=x")
+    conn.putheader("Content-Length", str(MAX_BODY_BYTES + 1))
+    conn.endheaders()
+    response = conn.getresponse()
+    assert response.status == 413 and b"at most" in response.read()
+    conn.close()
+
+
+def test_sweep_upload_finds_the_rlc_resonance(live_station: LiveStation) -> None:
+    b = Browser(live_station.url)
+    token = b.token("/e/K01-40m")
+    status, text, url = b.post_file("/e/K01-40m/sweep", {"csrf": token, "note": "rlc"},
+                                    "sweep", touchstone_text().encode(), "k01.s1p")
+    assert status == 200, error_text(text)
+    number = re.search(r"reading=(\d+)", url).group(1)
+    with sqlite3.connect(live_station.store) as conn:
+        dip = conn.execute("SELECT dip_hz FROM measurements WHERE id = ?", (number,)).fetchone()
+        r = conn.execute("SELECT r_ohm FROM station_readings WHERE measurement_id = ?",
+                         (number,)).fetchone()
+    assert abs(dip[0] - F0_HZ) < 1e3  # f0 = 1/(2 pi sqrt(LC))
+    assert r[0] == pytest.approx(R_OHM, rel=0.01)
+    status, svg, _url = b.get(f"/e/K01-40m/sweep/{number}.svg")
+    assert status == 200 and svg.lstrip().startswith("<svg") and "polyline" in svg
+
+
+def test_fifty_concurrent_readings_lose_nothing(live_station: LiveStation) -> None:
+    browsers = [Browser(live_station.url) for _ in range(50)]
+    tokens = [b.token("/e/K03-60m-us") for b in browsers]
+    before = rows(live_station.store, "K03-60m-us")
+
+    def send(i: int) -> int:
+        dip = f"{5.33 + 0.0001 * i:.4f} MHz"
+        return browsers[i].post("/e/K03-60m-us/dip", {"csrf": tokens[i], "dip": dip})[0]
+
+    with ThreadPoolExecutor(max_workers=50) as pool:
+        statuses = list(pool.map(send, range(50)))
+    assert statuses == [200] * 50
+    assert rows(live_station.store, "K03-60m-us") == before + 50
+    with sqlite3.connect(live_station.store) as conn:
+        assert conn.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+        assert conn.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
+
+
+def test_organiser_needs_the_pin(live_station: LiveStation) -> None:
+    b = Browser(live_station.url)
+    token = b.token("/organiser")
+    status, text, _url = b.post("/organiser/pin", {"csrf": token, "pin": "not it"})
+    assert status == 403 and "Wrong PIN" in error_text(text)
+    status, _text, _url = b.post("/organiser/calibrate", {"csrf": token, "design": "phonefan",
+                                                          "source": "K01-40m"})
+    assert status == 403
+    status, text, _url = b.post("/organiser/pin", {"csrf": token, "pin": live_station.pin})
+    assert status == 200 and "Labels to reprint" in text
