@@ -198,34 +198,57 @@ def _csrf(request: Request) -> tuple[str, tuple[str, bool]]:
 # --------------------------------------------------------------------------- element page
 
 
+def _render_element(st: StationState, facts: api.ElementFacts, token: str, *,
+                    status: int, error: str = "", notice: str = "",
+                    form: dict[str, str] | None = None) -> tuple[str, int]:
+    page = views.element_page(facts, st.station.spec.event.units, st.station.spec.event.name,
+                              token, error=error, notice=notice, form=form)
+    return st.env.get_template("station_element.html").render(page=page), status
+
+
 async def _element_response(request: Request, element_id: str, *, status: int = 200,
                             error: str = "", notice: str = "",
                             form: dict[str, str] | None = None,
                             client: tuple[str, bool] | None = None) -> Response:
     st = _state(request)
-    token_client = client or _client(request)
-    token = sec.csrf_token(st.keys.secret, token_client[0])
-    facts = await run_in_threadpool(api.element_facts, st.station, element_id)
-    page = views.element_page(facts, st.station.spec.event.units, st.station.spec.event.name,
-                              token, error=error, notice=notice, form=form)
-    return _page(request, "station_element.html", page, status, token_client)
+    cid, new = client or _client(request)
+    token = sec.csrf_token(st.keys.secret, cid)
+
+    def work() -> tuple[str, int]:
+        facts = api.element_facts(st.station, element_id)
+        return _render_element(st, facts, token, status=status, error=error, notice=notice,
+                               form=form)
+
+    html, code = await run_in_threadpool(work)
+    return _finish(HTMLResponse(html, status_code=code), cid, new)
 
 
 async def element(request: Request) -> Response:
     wanted = request.path_params["element_id"]
     st = _state(request)
-    try:
-        element_id = await run_in_threadpool(api.resolve, st.station, wanted)
-    except BuildsheetError as exc:
-        return _message(request, "Unknown element", _one_line(exc), 404)
-    if element_id != wanted:
-        return RedirectResponse(views.element_url(element_id), status_code=303)
     notice = ""
     if request.query_params.get("reading", "").isdigit():
         notice = f"Reading {request.query_params['reading']} recorded."
     elif request.query_params.get("trim", "").isdigit():
         notice = f"Trim {request.query_params['trim']} recorded."
-    return await _element_response(request, element_id, notice=notice)
+    cid, new = _client(request)
+    token = sec.csrf_token(st.keys.secret, cid)
+
+    def work() -> tuple[str, str, int]:
+        element_id = api.resolve(st.station, wanted)
+        if element_id != wanted:
+            return element_id, "", 303
+        facts = api.element_facts(st.station, element_id)
+        return (element_id, *_render_element(st, facts, token, status=200, notice=notice))
+
+    try:
+        element_id, html, code = await run_in_threadpool(work)
+    except BuildsheetError as exc:
+        return _message(request, "Unknown element", _one_line(exc), 404)
+    if code == 303:
+        return _finish(RedirectResponse(views.element_url(element_id), status_code=303), cid,
+                       new)
+    return _finish(HTMLResponse(html, status_code=code), cid, new)
 
 
 async def _post(request: Request, action: Callable[..., int], args: Callable[[dict[str, Any]],
