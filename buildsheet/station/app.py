@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import asyncio
 import time
-import urllib.parse
 from collections.abc import Awaitable, Callable, MutableMapping
 from dataclasses import dataclass, field
 from typing import Any
@@ -285,19 +284,16 @@ async def post_dip(request: Request) -> Response:
 
 
 async def post_sweep(request: Request) -> Response:
-    async def read(request: Request) -> Response:
-        return await _post(request, api.record_sweep, args, "reading", ("note",))
-
     def args(f: dict[str, Any]) -> tuple[Any, ...]:
         upload = f.get("sweep")
         if not isinstance(upload, UploadFile) or not upload.filename:
             raise BuildsheetError("choose a sweep file (.s1p or .csv) first")
         upload.file.seek(0)
-        data = upload.file.read(MAX_SWEEP_BYTES + 1)
+        data = upload.file.read(MAX_SWEEP_BYTES + 1)  # one byte over: read_sweep says too large
         name = upload.filename.replace("\\", "/").rsplit("/", 1)[-1]
         return (name, data, _text(f, "note"))
 
-    return await read(request)
+    return await _post(request, api.record_sweep, args, "reading", ("note",))
 
 
 async def post_trim(request: Request) -> Response:
@@ -471,7 +467,3 @@ def make_app(station: api.Station, keys: sec.Keys | None = None) -> Any:
                                                                      station.pin), environment())
     return BodyLimit(app, MAX_BODY_BYTES)
 
-
-def element_link(base_url: str, element_id: str) -> str:
-    """The full URL of an element page under a station address."""
-    return base_url.rstrip("/") + "/e/" + urllib.parse.quote(element_id, safe="")

@@ -42,14 +42,9 @@ def serve(spec: str | Path, *, host: str = DEFAULT_HOST, port: int = DEFAULT_POR
 
     out = out or sys.stdout
     station = load_station(spec, store, model)
-    for line in address_lines(host, port, station.pin, station_url_of(station)):
+    for line in address_lines(host, port, station.pin, station.spec.event.station_url):
         print(line, file=out, flush=True)
     uvicorn.run(make_app(station), host=host, port=port, log_level="warning",
                 access_log=False, server_header=False)
     return 0
 
-
-def station_url_of(station: object) -> str | None:
-    """The spec's ``[event] station_url``, if the spec has one."""
-    spec = getattr(station, "spec", None)
-    return getattr(getattr(spec, "event", None), "station_url", None)

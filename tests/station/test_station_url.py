@@ -40,3 +40,16 @@ def test_element_page_url_round_trips() -> None:
     parts = urllib.parse.urlsplit(url)
     assert (parts.scheme, parts.hostname, parts.port) == ("http", "10.0.0.2", 8080)
     assert urllib.parse.unquote(parts.path) == "/e/K03-40m"
+
+
+def test_serve_refuses_a_bad_port_and_prints_the_address(capsys) -> None:
+    from buildsheet.cli.main import main
+    from buildsheet.station.server import address_lines
+
+    with pytest.raises(SystemExit) as info:
+        main(["serve", "club.toml", "--port", "70000"])
+    assert info.value.code == 2 and "65535" in capsys.readouterr().err
+    local = "\n".join(address_lines("127.0.0.1", 8080, "123456", None))
+    assert "this computer only" in local and "--host" in local
+    lan = "\n".join(address_lines("192.168.4.10", 8080, "123456", None))
+    assert 'station_url = "http://192.168.4.10:8080"' in lan
