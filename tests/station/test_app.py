@@ -150,3 +150,67 @@ def test_organiser_needs_the_pin(live_station: LiveStation) -> None:
     assert status == 403
     status, text, _url = b.post("/organiser/pin", {"csrf": token, "pin": live_station.pin})
     assert status == 200 and "Labels to reprint" in text
+
+
+def test_killed_mid_write_keeps_every_acknowledged_reading(live_station: LiveStation) -> None:
+    """A second station process on the same store is killed (SIGKILL, as a laptop that dies)
+    while readings stream in: SQLite's integrity_check passes and every reading that was
+    answered is there."""
+    import signal
+    import socket
+    import subprocess
+    import sys
+    import threading
+    import time
+
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        port = s.getsockname()[1]
+    proc = subprocess.Popen([sys.executable, "-m", "buildsheet", "serve", str(live_station.spec),
+                             "--port", str(port), "--model", "closed_form"],
+                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    base = f"http://127.0.0.1:{port}"
+    try:
+        deadline = time.monotonic() + 60
+        while True:
+            try:
+                Browser(base).get("/board")
+                break
+            except OSError:
+                assert time.monotonic() < deadline and proc.poll() is None, "no station"
+                time.sleep(0.1)
+        before = rows(live_station.store, "K02-40m")
+        acked: list[int] = []
+        stop = threading.Event()
+
+        browsers = [Browser(base) for _ in range(8)]
+        tokens = [b.token("/e/K02-40m") for b in browsers]
+
+        def phone(b: Browser, token: str) -> None:
+            while not stop.is_set() and len(acked) < 400:
+                try:
+                    status, _text, url = b.post("/e/K02-40m/dip",
+                                                {"csrf": token, "dip": "7.05 MHz"})
+                except OSError:
+                    return
+                if status == 200 and "reading=" in url:
+                    acked.append(1)
+
+        phones = [threading.Thread(target=phone, args=bt) for bt in zip(browsers, tokens)]
+        for t in phones:
+            t.start()
+        while len(acked) < 40 and time.monotonic() < deadline:
+            time.sleep(0.01)
+        proc.send_signal(signal.SIGKILL)
+        proc.wait(timeout=30)
+        stop.set()
+        for t in phones:
+            t.join(timeout=30)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+            proc.wait(timeout=30)
+    with sqlite3.connect(live_station.store) as conn:
+        assert conn.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+    assert len(acked) >= 40
+    assert rows(live_station.store, "K02-40m") - before >= len(acked)
