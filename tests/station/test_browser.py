@@ -107,7 +107,7 @@ def test_scan_dip_trim_and_board(live_station: LiveStation, driver, tmp_path: Pa
     driver.switch_to.new_window("window")
     driver.get(mine[0])
     assert driver.find_element(By.ID, "element").text.startswith(ELEMENT)
-    legs = driver.find_elements(By.CSS_SELECTOR, "table tr td:nth-child(4)")
+    legs = driver.find_elements(By.CSS_SELECTOR, "#legs td.now")
     leg_m = float(re.match(r"([\d.]+) m", legs[0].text).group(1))
     shot("2-element")
     send("dip-form", dip="3.82 MHz", swr="1.6")
