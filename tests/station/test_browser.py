@@ -65,6 +65,7 @@ def driver(tmp_path: Path):
 def test_scan_dip_trim_and_board(live_station: LiveStation, driver, tmp_path: Path) -> None:
     from selenium.common.exceptions import StaleElementReferenceException
     from selenium.webdriver.common.by import By
+    from selenium.webdriver.support import expected_conditions
     from selenium.webdriver.support.ui import WebDriverWait
 
     def shot(name: str) -> None:
@@ -78,7 +79,12 @@ def test_scan_dip_trim_and_board(live_station: LiveStation, driver, tmp_path: Pa
             else:
                 box.clear()
                 box.send_keys(value)
+        old = driver.find_element(By.ID, form)
         driver.find_element(By.CSS_SELECTOR, f"#{form} button[type=submit]").click()
+        # the answer is a new page: wait until the form sent is gone and the new one is loaded
+        WebDriverWait(driver, 60).until(expected_conditions.staleness_of(old))
+        WebDriverWait(driver, 60).until(
+            lambda d: d.execute_script("return document.readyState") == "complete")
 
     def board_text(css: str) -> str:
         """Text on the self-refreshing board (the table may be swapped while it is read)."""
