@@ -313,8 +313,14 @@ def packet_from_store(spec: Design, store: RecordStore, *, built_at: str,
     from buildsheet.store.ledger import load_histories
 
     histories = {h.element.id: h for h in load_histories(store)}
+    pin = ""
+    if spec.event.station_url:  # the station's organiser PIN goes on the cover page
+        from buildsheet.station.security import organiser_pin
+
+        pin = organiser_pin(store)
     packet = build_packet(spec, built_at=built_at, model=model,
-                          calibrations=stored_calibrations(store, spec), histories=histories)
+                          calibrations=stored_calibrations(store, spec), histories=histories,
+                          organiser_pin=pin)
     return packet, histories
 
 
@@ -332,6 +338,8 @@ def entries_from_store(spec: Design, store: RecordStore, *, model: ModelName = "
 
 #: Store state key holding the spec of the latest packet (relative to the store's folder).
 SPEC_KEY = "spec"
+#: Store state key holding the folder of the latest packet (relative to the store's folder).
+PACKET_KEY = "packet"
 
 
 def _record_prints(store: RecordStore, packet: Packet, hashes: Mapping[str, str],
@@ -413,6 +421,7 @@ def _build(spec_path: str | Path, out_dir: str | Path, *, built_at: str, model: 
         if docs.next_cell is not None:
             set_state(store, cells_key(spec), str(docs.next_cell))
         set_state(store, SPEC_KEY, _relative(Path(spec_path), store_file.parent))
+        set_state(store, PACKET_KEY, _relative(out, store_file.parent))
     pages = site_pages(packet, histories, docs, previous if not selection.full else None)
 
     carried: dict[str, str] = {}

@@ -89,6 +89,7 @@ class Packet:
     items: dict[str, str] = field(default_factory=dict)  # printable item -> content hash
     already_cut: tuple[str, ...] = ()  # leg IDs left out of the spool plan (cut before)
     advice: dict[str, DesignAdvice] = field(default_factory=dict)  # worded notes by design key
+    organiser_pin: str = ""  # the station's organiser PIN, for the cover page only (not labels)
 
     def performance_for(self, design_key: str) -> DesignPerformance:
         return next(p for c, p in zip(self.cuts, self.performance) if c.design.key == design_key)
@@ -282,9 +283,10 @@ def element_entries(spec: Design, cuts: Sequence[DesignCuts],
 
 def build_packet(spec: Design, *, built_at: str, revision: int = 1, model: ModelName = "mom",
                  calibrations: Mapping[str, Calibration] | None = None,
-                 histories: Mapping[str, ElementHistory] | None = None) -> Packet:
-    """Compute everything to print for ``spec`` and the ledger ``histories`` (by element ID).
-    Raises BuildError for an unbuildable design."""
+                 histories: Mapping[str, ElementHistory] | None = None,
+                 organiser_pin: str = "") -> Packet:
+    """Compute everything to print for ``spec`` and the ledger ``histories`` (by element ID);
+    ``organiser_pin`` goes on the cover page only. Raises BuildError for an unbuildable design."""
     histories = histories or {}
     cals = usable_calibrations(spec, calibrations or {})
     cuts = solve_designs(spec, model, cals)
@@ -311,8 +313,11 @@ def build_packet(spec: Design, *, built_at: str, revision: int = 1, model: Model
     labels = label_contents(spec, entries)
     items = item_fingerprints(spec, cuts, performance, entries, labels, kit_boms, day_bom, plan,
                               warnings, cals, advice)
+    if organiser_pin:
+        items["day:cover"] = fingerprint(items["day:cover"], organiser_pin)
     return Packet(spec, built_at, revision, model, cuts, entries, tuple(warnings),
-                  kit_boms, day_bom, plan, performance, cals, labels, items, already_cut, advice)
+                  kit_boms, day_bom, plan, performance, cals, labels, items, already_cut, advice,
+                  organiser_pin)
 
 
 def entry_fingerprint(packet: Packet, entry: ElementEntry) -> str:

@@ -132,6 +132,46 @@ def _length(option: str, text: str) -> float:
     return value
 
 
+def _number(option: str, text: str | None, minimum: float | None = None,
+            rule: str = "") -> float | None:
+    """An optional number typed after ``option`` (blank: None); RecordError naming the rule."""
+    import math
+
+    if text is None or not str(text).strip():
+        return None
+    try:
+        value = float(text)
+    except ValueError:
+        raise RecordError(f"{option}: not a number: {str(text).strip()!r}") from None
+    if not math.isfinite(value) or (minimum is not None and value < minimum):
+        raise RecordError(f"{option}: {rule or 'a finite number'}, got {str(text).strip()}")
+    return value
+
+
+def parse_reading(dip: str, swr: str | None = None, r: str | None = None,
+                  x: str | None = None) -> tuple[float, float | None, Any]:
+    """A typed reading (``measure`` and the station): dip (Hz), SWR and the ledger's extras
+    (R, X in ohm). RecordError with the option's name for a bad value."""
+    from buildsheet.store.ledger import ReadingExtras
+
+    return (_frequency(dip), _number("--swr", swr, 1.0, "an SWR is 1 or more"),
+            ReadingExtras(_number("--r", r, 0.0, "R is 0 ohm or more"), _number("--x", x)))
+
+
+def sweep_reading(name: str, data: bytes) -> tuple[float, float, Any, Any]:
+    """A reading from a sweep file's bytes (``measure --sweep`` and the station's upload):
+    resonance (Hz), SWR there, the extras (R there, X = 0 at a reactance zero, the sweep) and
+    the fit. RecordError naming the file for a bad one."""
+    from buildsheet.calc.sweep import analyse, read_sweep, sweep_to_csv
+    from buildsheet.store.ledger import ReadingExtras
+
+    sweep = read_sweep(data, name)
+    fit = analyse(sweep)
+    extras = ReadingExtras(fit.r_ohm, 0.0 if fit.r_ohm is not None else None, name,
+                           sweep_to_csv(sweep))
+    return fit.resonance_hz, fit.swr, extras, fit
+
+
 def _entry(store: Any, choice: StoreChoice, args: argparse.Namespace,
            element_id: str) -> tuple[Any, str] | None:
     """The packet entry of one element, computed over the store's ledger now (None when the
@@ -199,15 +239,36 @@ def handle_measure(args: argparse.Namespace, out: TextIO | None = None) -> int:
     from buildsheet.store import ledger as rec
 
     out = out or sys.stdout
-    dip = _frequency(args.dip)
-    if args.swr is not None and not args.swr >= 1.0:
-        raise RecordError(f"--swr: an SWR is 1 or more, got {args.swr}")
+    if (args.dip is None) == (args.sweep is None):
+        raise RecordError("measure: give exactly one of --dip FREQ or --sweep FILE")
+    fit = None
+    note = args.note or ""
+    if args.sweep is not None:
+        path = Path(args.sweep)
+        try:
+            data = path.read_bytes()
+        except OSError as exc:
+            raise RecordError(f"--sweep {path}: cannot read ({exc.strerror or exc})") from exc
+        dip, swr_value, extras, fit = sweep_reading(path.name, data)
+        note = f"sweep {path.name}: {fit.method}" + (f"; {note}" if note else "")
+    else:
+        dip, swr_value, extras = parse_reading(args.dip, args.swr, args.r, args.x)
     store, choice = _open(args, sys.stderr)
     with store:
         row, _leg = rec.resolve_id(store, args.id)
-        m = rec.add_measurement(store, row.id, dip, args.swr, args.note or "", _now())
+        m = rec.add_measurement(store, row.id, dip, swr_value, note, _now(), extras)
         entry = _entry(store, choice, args, row.id)
     swr = f", SWR {m.swr:g}" if m.swr is not None else ""
+    if fit is not None:
+        r = f", R {fit.r_ohm:.1f} ohm" if fit.r_ohm is not None else ""
+        band = (f"; 2:1 band {format_frequency(fit.bandwidth_hz[0])} to "
+                f"{format_frequency(fit.bandwidth_hz[1])}"
+                + (" or wider" if fit.bandwidth_clipped else "") if fit.bandwidth_hz else
+                "; SWR never below 2")
+        print(f"{row.id}: sweep {args.sweep}: resonance {format_frequency(dip)} "
+              f"({fit.method}){r}{swr}{band}.", file=out)
+        for line in fit.notes:
+            print(f"  Note: {line}", file=out)
     print(f"{row.id}: dip {format_frequency(dip)}{swr} recorded "
           f"(design {format_frequency(row.design_frequency_hz)}).", file=out)
     print_state(entry, out)
@@ -416,9 +477,14 @@ def register(subparsers: Any) -> None:
                               epilog=epilog, description="Record the SWR dip of an element and "
                               "print what to do to each leg.")
     p.add_argument("id", help='element ID, e.g. "K03-40m"')
-    p.add_argument("--dip", required=True, metavar="FREQ",
+    p.add_argument("--dip", metavar="FREQ",
                    help='dip frequency with unit, e.g. "7.08MHz" or "7080kHz"')
-    p.add_argument("--swr", type=float, help="SWR at the dip, e.g. 1.4")
+    p.add_argument("--sweep", metavar="FILE",
+                   help="an analyzer sweep instead of --dip: Touchstone .s1p, or CSV of "
+                   "frequency and SWR (or R and X); the resonance is taken from it")
+    p.add_argument("--swr", help="SWR at the dip, e.g. 1.4")
+    p.add_argument("--r", metavar="OHM", help="resistance at the dip, ohm")
+    p.add_argument("--x", metavar="OHM", help="reactance at the dip, ohm")
     p.add_argument("--note", help="free text kept with the reading")
     add_store_options(p)
     p.set_defaults(handler=handle_measure)

@@ -318,7 +318,7 @@ async def sweep_plot(request: Request) -> Response:
     if not any(m.id == number for m in facts.readings):
         return _message(request, "No such sweep", f"{facts.element_id} has no reading {number}.",
                         404)
-    found = await run_in_threadpool(api.stored_sweep, st.station, number)
+    found = await run_in_threadpool(api.stored_sweep, st.station, facts.element_id, number)
     if found is None:
         return _message(request, "No sweep", f"Reading {number} has no sweep stored.", 404)
     sweep, fit = found
@@ -377,16 +377,19 @@ async def _organiser_page(request: Request, *, error: str = "", notice: str = ""
     facts = await run_in_threadpool(api.board_facts, st.station)
     board_view = views.board_page(facts, st.station.spec.event.units, "", token, True)
     reprint = await run_in_threadpool(api.labels_to_reprint, st.station)
+    legs = None if reprint is None else tuple(
+        (leg, views.element_url(leg.rsplit("-", 1)[0])) for leg in reprint)
     page = views.OrganiserPage(st.station.spec.event.name, token, True, board_view.offers,
-                               tuple((eid, views.element_url(eid)) for eid in reprint),
-                               error, notice)
+                               legs, error, notice)
     return _page(request, "station_organiser.html", page, status, client)
 
 
 async def organiser(request: Request) -> Response:
     notice = request.query_params.get("done", "")
     known = {"calibrated": "Calibration stored; cut lengths and batch trims updated.",
-             "signed-in": "Signed in as organiser."}
+             "signed-in": "Signed in as organiser.",
+             "voided": "Reading voided: it stays in the history, struck through, and no "
+                       "longer counts."}
     return await _organiser_page(request, notice=known.get(notice, ""))
 
 
@@ -430,6 +433,23 @@ async def organiser_calibrate(request: Request) -> Response:
     return _finish(RedirectResponse("/organiser?done=calibrated", status_code=303), cid, new)
 
 
+async def organiser_void(request: Request) -> Response:
+    got = await _form(request)
+    if isinstance(got, Response):
+        return got
+    fields, cid, new = got
+    if not _is_organiser(request):
+        return _message(request, "Organiser only", "Sign in with the organiser PIN first.", 403)
+    st = _state(request)
+    try:
+        element_id = await run_in_threadpool(api.resolve, st.station, _text(fields, "element"))
+        await run_in_threadpool(api.void_reading, st.station, element_id,
+                                _text(fields, "number"), _text(fields, "reason"))
+    except BuildsheetError as exc:
+        return await _organiser_page(request, error=_one_line(exc), status=400)
+    return _finish(RedirectResponse("/organiser?done=voided", status_code=303), cid, new)
+
+
 async def organiser_signout(request: Request) -> Response:
     got = await _form(request)
     if isinstance(got, Response):
@@ -460,6 +480,7 @@ def make_app(station: api.Station, keys: sec.Keys | None = None) -> Any:
         Route("/organiser", organiser),
         Route("/organiser/pin", organiser_pin, methods=["POST"]),
         Route("/organiser/calibrate", organiser_calibrate, methods=["POST"]),
+        Route("/organiser/void", organiser_void, methods=["POST"]),
         Route("/organiser/signout", organiser_signout, methods=["POST"]),
     ]
     app = Starlette(routes=routes)

@@ -1,35 +1,37 @@
 """The station's one door to the record store and the packet (the same functions as the CLI).
 
-Every number the station shows or stores comes through here from the core: the packet
-(:func:`buildsheet.packet.build_packet`, computed once at start-up and again after a
-calibration), the ledger (:mod:`buildsheet.store.ledger`) and the CLI's own input parsers
-(:mod:`buildsheet.cli.records`), so a reading typed on a phone is checked exactly as
-``buildsheet measure`` checks it. Pages get plain frozen records (:class:`ElementFacts`,
-:class:`BoardFacts`) in SI units; :mod:`buildsheet.station.views` formats them.
+Every number the station shows or stores comes from the core through here: the designs are
+solved once at start-up (and again after a calibration) with :func:`buildsheet.packet.
+solve_designs`; each page reads the ledger and takes each element's as-built state, trim
+advice and partners from :func:`buildsheet.packet.element_entries` (prescribed cut, as cut,
+current, target and action live in :mod:`buildsheet.calc.asbuilt`); typed readings are parsed
+by :func:`buildsheet.cli.records.parse_reading` and sweeps by :func:`buildsheet.cli.records.
+sweep_reading`, exactly as ``buildsheet measure`` does. Pages get plain frozen records in SI
+units; :mod:`buildsheet.station.views` formats them.
 """
 
 from __future__ import annotations
 
-import math
 import sqlite3
 import threading
-from collections.abc import Iterator, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field, replace
 from datetime import UTC, datetime
 from pathlib import Path
-from typing import Any, Literal
+from typing import Literal
 
-from buildsheet.calc.sweep import Sweep, SweepFit, analyse, read_sweep, sweep_to_csv
+from buildsheet.calc.cuts import DesignCuts
+from buildsheet.calc.sweep import Sweep, SweepFit, analyse, read_sweep
 from buildsheet.em.prediction import ModelName
 from buildsheet.errors import Problem, RecordError
-from buildsheet.packet import ElementEntry, Packet, build_packet
-from buildsheet.spec.design import Design
+from buildsheet.packet import ElementEntry
+from buildsheet.records import ElementHistory, LegCut, Measurement, Trim
+from buildsheet.spec.design import Design, Kit
 from buildsheet.store import ledger as rec
 
 State = Literal["not cut", "cut", "measured", "tuned"]
 STATES: tuple[State, ...] = ("not cut", "cut", "measured", "tuned")
-
 
 #: SQLite sync level of the station's connections. In WAL mode NORMAL syncs at checkpoints
 #: instead of at every commit: the store stays consistent after a crash or power cut, and a
@@ -86,28 +88,30 @@ class StorePool:
 
 @dataclass(frozen=True)
 class Station:
-    """What one run of the station serves: the spec, its store, and the packet computed from
-    both (prescribed cuts, calibrations, batch trims)."""
+    """What one run of the station serves: the spec, its store, the solved designs (with the
+    calibrations that apply) and the organiser PIN."""
 
     spec_path: Path
     store_path: Path
     spec: Design
-    packet: Packet
+    cuts: tuple[DesignCuts, ...]
+    calibrated: frozenset[str]  # design keys with a calibration that applies
     model: ModelName
     pin: str
-    stores: StorePool = field(compare=False, repr=False, default=None)  # type: ignore[assignment]
+    stores: StorePool = field(compare=False, repr=False)
 
 
 @dataclass(frozen=True)
 class LegFacts:
-    """One leg, metres: prescribed by the current design, as cut (None: not recorded as cut),
-    current (after trims) and the target it should end at."""
+    """One leg, metres: prescribed by the current design, as cut (None: not cut), current,
+    target, and the action in words (from :mod:`buildsheet.calc.asbuilt`)."""
 
     leg_id: str
     prescribed_cut_m: float
     cut_m: float | None
     current_m: float
     target_m: float
+    action: str
 
 
 @dataclass(frozen=True)
@@ -126,28 +130,26 @@ class Reading:
 
 
 @dataclass(frozen=True)
-class TrimDone:
-    """A recorded trim: ``delta_m`` > 0 removed, < 0 added back, on leg A, B or both."""
+class Entry:
+    """A trim or a cut confirmation in the history (``delta_m`` > 0 removed; for a cut, the
+    length cut)."""
 
     id: int
     time: str
+    kind: Literal["trim", "cut"]
     leg: str
-    delta_m: float
+    length_m: float
     note: str
     voided: bool = False
 
 
 @dataclass(frozen=True)
 class Instruction:
-    """What to do after a reading: ``action`` shorten / lengthen / none, ``amount_m`` per leg
-    (>= 0), the advice lines of the core and the partner elements to re-check."""
+    """What to do now: the instruction in words for both legs, and the core's advice lines."""
 
-    reading_id: int
-    dip_hz: float
-    action: Literal["shorten", "lengthen", "none"]
-    amount_m: float
-    first_step_m: float
+    headline: str
     lines: tuple[str, ...]
+    reading_id: int | None
 
 
 @dataclass(frozen=True)
@@ -162,12 +164,12 @@ class ElementFacts:
     design_hz: float
     band_low_hz: float
     band_high_hz: float
-    legs: tuple[LegFacts, LegFacts]
-    tuning_m_per_100khz: float
+    legs: tuple[LegFacts, ...]
+    tuning: str
     partners: tuple[str, ...]
     state: State
     readings: tuple[Reading, ...]
-    trims: tuple[TrimDone, ...]
+    entries: tuple[Entry, ...]
     instruction: Instruction | None
     archived: bool = False
 
@@ -175,13 +177,13 @@ class ElementFacts:
 @dataclass(frozen=True)
 class DesignOffer:
     """Per design on the day board: measured elements that could calibrate it, whether a
-    calibration applies, and the batch trims (element ID, remove A, remove B, metres)."""
+    calibration applies, and the batch trims (element ID, leg A words, leg B words)."""
 
     design_key: str
     title: str
     measured: tuple[str, ...]
     calibrated: bool
-    batch: tuple[tuple[str, float, float, str], ...]
+    batch: tuple[tuple[str, str, str], ...]
 
 
 @dataclass(frozen=True)
@@ -207,142 +209,101 @@ def _open(station: Station) -> Iterator[rec.RecordStore]:
     yield station.stores.get()
 
 
-def _writing(station: Station) -> Any:
-    """This thread's open store under the station's write lock."""
-    return station.stores.writing()
+def _solve(spec: Design, store: rec.RecordStore,
+           model: ModelName) -> tuple[tuple[DesignCuts, ...], frozenset[str]]:
+    """The designs solved as the packet solves them, with the calibrations that apply."""
+    from buildsheet.build import stored_calibrations
+    from buildsheet.packet import solve_designs, usable_calibrations
 
-
-def compute_packet(spec: Design, store: rec.RecordStore, model: ModelName) -> Packet:
-    """The packet the build would compute from this spec and store (same functions)."""
-    from buildsheet.build import cut_elements, stored_calibrations
-
-    histories = rec.load_histories(store)
-    return build_packet(spec, built_at=now().strftime("%Y-%m-%dT%H:%M:%SZ"), model=model,
-                        calibrations=stored_calibrations(store, spec),
-                        cut_elements=cut_elements(histories))
-
-
-def organiser_pin(store_path: Path) -> str:
-    """The organiser PIN kept with the record store (created on first use)."""
-    from buildsheet.station.security import new_pin
-    from buildsheet.store.files import write_atomic
-
-    path = store_path.with_name(store_path.name + ".pin")
-    if path.is_file():
-        text = path.read_text(encoding="utf-8").strip()
-        if text.isdigit():
-            return text
-    pin = new_pin()
-    write_atomic(path, pin.encode())
-    return pin
+    cals = usable_calibrations(spec, stored_calibrations(store, spec))
+    return solve_designs(spec, model, cals), frozenset(cals)
 
 
 def load_station(spec_path: str | Path, store_path: str | Path | None = None,
                  model: ModelName = "mom") -> Station:
-    """Read the spec, open its record store (made by ``buildsheet packet``) and compute the
-    packet. RecordError / SpecError for a bad spec or a missing store."""
+    """Read the spec, open its record store (made by ``buildsheet packet``) and solve the
+    designs. RecordError / SpecError for a bad spec or a missing store."""
     from buildsheet.spec.reader import load_spec
+    from buildsheet.station.security import organiser_pin
 
     spec = load_spec(spec_path)
     store_file = Path(store_path) if store_path else rec.default_store(spec_path)
     with rec.open_store(store_file, create=False, verify=True) as store:
-        _ensure_extras(store)
-        packet = compute_packet(spec, store, model)
-    return Station(Path(spec_path), store_file, spec, packet, model, organiser_pin(store_file),
+        cuts, calibrated = _solve(spec, store, model)
+        pin = organiser_pin(store)
+    return Station(Path(spec_path), store_file, spec, cuts, calibrated, model, pin,
                    StorePool(store_file))
 
 
 def refreshed(station: Station) -> Station:
-    """The station with its packet recomputed (after a calibration)."""
+    """The station with its designs solved again (after a calibration)."""
     with _open(station) as store:
-        return replace(station, packet=compute_packet(station.spec, store, station.model))
-
-
-# --------------------------------------------------------------------------- sweeps and R, X
-
-_EXTRAS = ("CREATE TABLE IF NOT EXISTS station_readings (measurement_id INTEGER PRIMARY KEY "
-           "REFERENCES measurements(id), r_ohm REAL, x_ohm REAL, sweep_name TEXT, "
-           "sweep_csv TEXT, resonance_hz REAL, bw_low_hz REAL, bw_high_hz REAL)")
-
-
-def _ensure_extras(store: rec.RecordStore) -> None:
-    store.conn.execute(_EXTRAS)
-
-
-def _extras(store: rec.RecordStore) -> dict[int, tuple[float | None, float | None, bool]]:
-    rows = store.conn.execute(
-        "SELECT measurement_id, r_ohm, x_ohm, sweep_csv IS NOT NULL FROM station_readings")
-    return {r[0]: (r[1], r[2], bool(r[3])) for r in rows}
-
-
-def stored_sweep(station: Station, measurement_id: int) -> tuple[Sweep, SweepFit] | None:
-    """The sweep stored with a reading, re-read and analysed, or None."""
-    with _open(station) as store:
-        row = store.conn.execute("SELECT sweep_name, sweep_csv FROM station_readings WHERE "
-                                 "measurement_id = ?", (measurement_id,)).fetchone()
-    if row is None or row[1] is None:
-        return None
-    sweep = read_sweep(row[1].encode(), "stored.csv")
-    sweep = replace(sweep, name=row[0] or "sweep")
-    return sweep, analyse(sweep)
+        cuts, calibrated = _solve(station.spec, store, station.model)
+    return replace(station, cuts=cuts, calibrated=calibrated)
 
 
 # --------------------------------------------------------------------------- reading
 
 
-def _entry(station: Station, element_id: str) -> ElementEntry | None:
-    return next((e for e in station.packet.entries if e.element_id == element_id), None)
+def _entries(station: Station, histories: Mapping[str, ElementHistory],
+             kits: tuple[Kit, ...] | None = None) -> dict[str, ElementEntry]:
+    """The packet's element entries over these histories (of the given kits only, for one
+    element's page: partners are within a kit)."""
+    from buildsheet.packet import element_entries
+
+    spec = station.spec if kits is None else replace(station.spec, kits=kits)
+    return {e.element_id: e for e in element_entries(spec, station.cuts, histories)}
 
 
-def _state(history: rec.ElementHistory, design_hz: float) -> State:
-    if not (history.measurements or history.trims):
-        return "not cut"
-    if not history.measurements:
-        return "cut"
-    last = history.measurements[-1]
-    later_trim = any(t.time > last.time for t in history.trims)
-    if not later_trim and abs(last.dip_hz - design_hz) <= rec.ON_FREQUENCY_FRACTION * design_hz:
-        return "tuned"
-    return "measured"
+def _headline(entry: ElementEntry, units: str) -> str:
+    """Both legs' action in words, e.g. "Shorten each leg by 45 mm (1 3/4 in)"."""
+    a, b = entry.state.legs
+    if a.action == b.action:
+        return a.action.words(units).capitalize()  # type: ignore[arg-type]
+    return (f"Leg A: {a.action.words(units, both=False)}; "  # type: ignore[arg-type]
+            f"leg B: {b.action.words(units, both=False)}")  # type: ignore[arg-type]
 
 
-def instruction(history: rec.ElementHistory, reading: rec.Measurement) -> Instruction:
-    """The core's trim advice for a reading, given the trims recorded before it."""
-    before = [t for t in history.trims if t.time <= reading.time]
-    advice = rec.trim_advice(history.element, reading.dip_hz, before)
-    action: Literal["shorten", "lengthen", "none"] = (
-        "shorten" if advice.action == "remove" else
-        "lengthen" if advice.action == "add back" else "none")
-    return Instruction(reading.id, reading.dip_hz, action, abs(advice.per_leg_m),
-                       advice.first_step_m, advice.lines)
+def _reading(m: Measurement, extras: Mapping[int, rec.ReadingExtras], voided: bool) -> Reading:
+    x = extras.get(m.id, rec.ReadingExtras())
+    return Reading(m.id, m.time, m.dip_hz, m.swr, x.r_ohm, x.x_ohm, m.note,
+                   x.sweep_name is not None, voided)
 
 
-def _facts(station: Station, history: rec.ElementHistory,
-           extras: dict[int, tuple[float | None, float | None, bool]]) -> ElementFacts:
+def _facts(station: Station, history: ElementHistory, entry: ElementEntry | None,
+           extras: Mapping[int, rec.ReadingExtras]) -> ElementFacts:
+    from buildsheet.calc.advice import tuning_words
+
     row = history.element
-    entry = _entry(station, row.id)
-    touched = bool(history.measurements or history.trims)
-    if entry is not None:
-        cut = entry.cut
-        prescribed, builder = cut.cut_leg_m, entry.kit.builder
-        target = cut.predicted_leg_m + cut.termination_m + cut.feed_m
-        tuning = cut.tuning_m_per_100khz
-    else:  # archived: dropped from the spec, records kept
-        prescribed, builder, target = row.cut_leg_m, "", row.predicted_leg_m
-        tuning = -row.slope_m_per_hz * 100e3
-    legs = tuple(LegFacts(f"{row.id}-{s}", prescribed, row.cut_leg_m if touched else None,
-                          history.current_leg_m(s) if touched else prescribed, target)
-                 for s in ("A", "B"))
-    none: tuple[float | None, float | None, bool] = (None, None, False)
-    readings = tuple(Reading(m.id, m.time, m.dip_hz, m.swr, extras.get(m.id, none)[0],
-                             extras.get(m.id, none)[1], m.note, extras.get(m.id, none)[2])
-                     for m in history.measurements)
-    trims = tuple(TrimDone(t.id, t.time, t.leg, t.delta_m, t.note) for t in history.trims)
-    latest = history.measurements[-1] if history.measurements else None
-    return ElementFacts(row.id, row.kit, builder, row.design, row.key, row.design_frequency_hz,
-                        row.band_low_hz, row.band_high_hz, (legs[0], legs[1]), tuning,
-                        row.partners, _state(history, row.design_frequency_hz), readings, trims,
-                        instruction(history, latest) if latest else None,
+    units = station.spec.event.units
+    readings = [_reading(m, extras, False) for m in history.measurements]
+    readings += [_reading(v, extras, True) for v in history.voided if isinstance(v, Measurement)]
+    entries: list[Entry] = []
+    for record, voided in [*((r, False) for r in (*history.trims, *history.cuts)),
+                           *((v, True) for v in history.voided
+                             if isinstance(v, (Trim, LegCut)))]:
+        if isinstance(record, Trim):
+            entries.append(Entry(record.id, record.time, "trim", record.leg, record.delta_m,
+                                 record.note, voided))
+        elif isinstance(record, LegCut):
+            entries.append(Entry(record.id, record.time, "cut", record.leg, record.length_m,
+                                 record.how + (f"; {record.note}" if record.note else ""),
+                                 voided))
+    readings.sort(key=lambda r: (r.time, r.id))
+    if entry is None:  # archived: dropped from the spec, records kept
+        return ElementFacts(row.id, row.kit, "", row.design, row.key, row.design_frequency_hz,
+                            row.band_low_hz, row.band_high_hz, (), "", row.partners, "not cut",
+                            tuple(readings), tuple(entries), None, True)
+    legs = tuple(LegFacts(leg.leg_id, leg.prescribed_cut_m, leg.cut_m, leg.current_m,
+                          leg.target_m, leg.action.words(units, both=False))
+                 for leg in entry.state.legs)
+    latest = history.measurements[-1].id if history.measurements else None
+    headline = _headline(entry, units)
+    lines = tuple(line for line in entry.advice if line.rstrip(".") != headline)
+    return ElementFacts(row.id, row.kit, entry.kit.builder, row.design, row.key,
+                        row.design_frequency_hz, row.band_low_hz, row.band_high_hz, legs,
+                        tuning_words(entry.cut, units), entry.partners, entry.state.status,
+                        tuple(readings), tuple(entries), Instruction(headline, lines, latest),
                         row.status != "active")
 
 
@@ -357,92 +318,77 @@ def element_facts(station: Station, element_id: str) -> ElementFacts:
     """The element page's facts; RecordError naming the nearest IDs when unknown."""
     with _open(station) as store:
         history = rec.element_history(store, element_id)
-        extras = _extras(store)
-    return _facts(station, history, extras)
+        extras = rec.reading_extras(store, element_id)
+    kit = tuple(k for k in station.spec.kits if k.kit_id == history.element.kit)
+    entry = _entries(station, {element_id: history}, kit).get(element_id)
+    return _facts(station, history, entry, extras)
 
 
 def board_facts(station: Station) -> BoardFacts:
-    """Every active element's facts and, per design, the calibration offer and batch trims."""
+    """Every element of the spec with its facts and, per design, the calibration offer and the
+    batch trims (the packet's: elements of a calibrated design already cut)."""
     with _open(station) as store:
-        histories = [h for h in rec.load_histories(store) if h.element.status == "active"]
-        extras = _extras(store)
-    facts = tuple(_facts(station, h, extras) for h in histories)
+        histories = {h.element.id: h for h in rec.load_histories(store)}
+        extras = rec.reading_extras(store)
+    entries = _entries(station, histories)
+    facts = tuple(_facts(station, histories[eid], e, extras)
+                  for eid, e in entries.items() if eid in histories)
+    units = station.spec.event.units
     offers = []
-    for c in station.packet.cuts:
+    for c in station.cuts:
         key = c.design.key
-        measured = tuple(f.element_id for f in facts if f.design_key == key and f.readings)
-        batch = tuple((t.element_id, t.remove_a_m, t.remove_b_m, t.action)
-                      for t in station.packet.batch_trims
-                      if any(f.element_id == t.element_id and f.design_key == key
-                             for f in facts))
-        offers.append(DesignOffer(key, c.design.title, measured,
-                                  key in station.packet.calibrations, batch))
+        mine = [e for e in entries.values() if e.kit.design_key == key]
+        measured = tuple(e.element_id for e in mine if e.state.latest_dip_hz is not None)
+        calibrated = key in station.calibrated
+        batch = tuple((e.element_id, *(leg.action.words(units, both=False)  # type: ignore[arg-type]
+                                       for leg in e.state.legs))
+                      for e in mine if calibrated and e.state.is_cut)
+        offers.append(DesignOffer(key, c.design.title, measured, calibrated, batch))  # type: ignore[arg-type]
     counts = tuple((s, sum(f.state == s for f in facts)) for s in STATES)
     return BoardFacts(facts, tuple(offers), counts)
+
+
+def stored_sweep(station: Station, element_id: str,
+                 measurement_id: int) -> tuple[Sweep, SweepFit] | None:
+    """The sweep stored with one of an element's readings, re-read and analysed, or None."""
+    with _open(station) as store:
+        found = rec.reading_extras(store, element_id, with_sweeps=True).get(measurement_id)
+    if found is None or found.sweep_csv is None:
+        return None
+    sweep = replace(read_sweep(found.sweep_csv.encode(), "stored.csv"),
+                    name=found.sweep_name or "sweep")
+    return sweep, analyse(sweep)
 
 
 # --------------------------------------------------------------------------- writing
 
 
-def _optional_float(option: str, text: str | None, *, minimum: float | None = None,
-                    what: str = "a number") -> float | None:
-    """An optional numeric form field, checked like argparse's ``type=float`` would read it."""
-    if text is None or not text.strip():
-        return None
-    try:
-        value = float(text)
-    except ValueError:
-        raise RecordError(f"{option}: invalid float value: {text.strip()!r}") from None
-    if not math.isfinite(value) or (minimum is not None and value < minimum):
-        raise RecordError(f"{option}: {what}, got {text.strip()}")
-    return value
-
-
 def record_dip(station: Station, element_id: str, dip_text: str, swr_text: str | None = None,
                r_text: str | None = None, x_text: str | None = None, note: str = "") -> int:
-    """Record a dip typed on the element page; validated as ``buildsheet measure`` validates
-    it (same parsers, same ledger checks, same messages). Returns the reading's number."""
-    from buildsheet.cli.records import _frequency
+    """Record a dip typed on the element page; parsed and checked as ``buildsheet measure``
+    does (same functions, same messages). Returns the reading's number."""
+    from buildsheet.cli.records import parse_reading
 
-    dip = _frequency(dip_text)
-    swr = _optional_float("--swr", swr_text, minimum=1.0, what="an SWR is 1 or more")
-    r = _optional_float("--r", r_text, minimum=0.0, what="R is 0 ohm or more")
-    x = _optional_float("--x", x_text)
-    return _store_reading(station, element_id, dip, swr, r, x, note, None)
+    dip, swr, extras = parse_reading(dip_text, swr_text, r_text, x_text)
+    with station.stores.writing() as store:
+        return rec.add_measurement(store, element_id, dip, swr, note, now(), extras).id
 
 
 def record_sweep(station: Station, element_id: str, file_name: str, data: bytes,
                  note: str = "") -> int:
-    """Record the resonance of an uploaded sweep file (with the sweep itself)."""
-    sweep = read_sweep(data, file_name)
-    fit = analyse(sweep)
+    """Record the resonance of an uploaded sweep file, the sweep stored with the reading (one
+    transaction), as ``buildsheet measure --sweep`` does."""
+    from buildsheet.cli.records import sweep_reading
+
+    dip, swr, extras, fit = sweep_reading(file_name, data)
     text = f"sweep {file_name}: {fit.method}" + (f"; {note}" if note else "")
-    return _store_reading(station, element_id, fit.resonance_hz, fit.swr, fit.r_ohm,
-                          0.0 if fit.r_ohm is not None else None, text, (sweep, fit))
-
-
-def _store_reading(station: Station, element_id: str, dip: float, swr: float | None,
-                   r: float | None, x: float | None, note: str,
-                   sweep: tuple[Sweep, SweepFit] | None) -> int:
-    with _writing(station) as store:
-        m = rec.add_measurement(store, element_id, dip, swr, note, now())
-        if r is not None or x is not None or sweep is not None:
-            s, fit = sweep if sweep else (None, None)
-            bw = fit.bandwidth_hz if fit and fit.bandwidth_hz else (None, None)
-            try:
-                store.conn.execute(
-                    "INSERT INTO station_readings VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
-                    (m.id, r, x, s.name if s else None, sweep_to_csv(s) if s else None,
-                     fit.resonance_hz if fit else None, bw[0], bw[1]))
-            except sqlite3.Error as exc:
-                raise RecordError(f"{station.store_path}: reading {m.id} stored, its sweep "
-                                  f"not ({exc})") from exc
-    return m.id
+    with station.stores.writing() as store:
+        return rec.add_measurement(store, element_id, dip, swr, text, now(), extras).id
 
 
 def record_trim(station: Station, element_id: str, amount_text: str,
                 direction: Literal["removed", "added"], leg: str, note: str = "") -> int:
-    """Record a trim typed on the element page, validated as ``buildsheet trim`` does."""
+    """Record a trim typed on the element page, checked as ``buildsheet trim`` does."""
     from buildsheet.cli.records import _length
 
     if direction not in ("removed", "added"):
@@ -451,13 +397,28 @@ def record_trim(station: Station, element_id: str, amount_text: str,
         raise RecordError(f"--leg: invalid choice: {leg!r} (choose from 'A', 'B', 'both')")
     amount = _length(f"--{direction}", amount_text)
     delta = amount if direction == "removed" else -amount
-    with _writing(station) as store:
+    with station.stores.writing() as store:
         return rec.add_trim(store, element_id, leg, delta, note, now()).id  # type: ignore[arg-type]
+
+
+def void_reading(station: Station, element_id: str, number_text: str, reason: str) -> int:
+    """Void one of an element's readings by its number (as ``buildsheet void --measurement``)."""
+    text = number_text.strip().removeprefix("reading").strip()
+    if not text.isdigit():
+        raise RecordError(f"void: the reading number must be a whole number, got "
+                          f"{number_text.strip()!r}")
+    number = int(text)
+    with station.stores.writing() as store:
+        history = rec.element_history(store, element_id)
+        if number not in {m.id for m in history.measurements}:
+            raise RecordError(f"void: {element_id} has no valid reading {number}")
+        rec.void_record(store, "measurement", number, reason, now())
+    return number
 
 
 def calibrate(station: Station, design_key: str, sources: Sequence[str]) -> Station:
     """Fit the site from the given measured elements (as ``buildsheet calibrate`` does), store
-    the calibration and return the station with its packet recomputed."""
+    the calibration and return the station with its designs solved again."""
     from buildsheet.calc import calibrate as cal
     from buildsheet.cli.calibrate import read_observations
 
@@ -466,27 +427,32 @@ def calibrate(station: Station, design_key: str, sources: Sequence[str]) -> Stat
         raise RecordError([Problem("calibrate", f"no design {design_key!r} (designs: "
                                    f"{', '.join(designs)})")])
     if not sources:
-        raise RecordError("calibrate: no measured element of that design yet")
+        raise RecordError("calibrate: tick at least one measured element of that design")
     design = designs[design_key]
     with _open(station) as store:
-        obs, kit_legs = read_observations(store, design, list(sources))
+        histories = {h.element.id: h for h in rec.load_histories(store)}
+        obs, kit_legs = read_observations(store, design, list(sources), histories)
     calibration = cal.fit_site(design, station.spec.site.ground, obs, kit_legs)  # seconds
-    with _writing(station) as store:
+    with station.stores.writing() as store:
         rec.save_calibration(store, design.key, calibration.fingerprint,
                              cal.calibration_to_json(calibration), calibration.source_ids, now())
     return refreshed(station)
 
 
-def labels_to_reprint(station: Station) -> tuple[str, ...]:
-    """Element IDs whose printed label no longer matches what the packet would print now."""
-    from buildsheet.build import current_legs, element_hashes
+def labels_to_reprint(station: Station) -> tuple[str, ...] | None:
+    """Leg IDs whose label would now print differently from the latest packet's (compared by
+    the packet's own item hashes against its manifest); None when no packet is known."""
+    from buildsheet.build import MANIFEST_JSON, PACKET_KEY, packet_from_store
+    from buildsheet.store.manifest import read_manifest
 
     with _open(station) as store:
-        histories = rec.load_histories(store)
-    hashes = element_hashes(station.packet, current_legs(station.packet, histories))
-    out = []
-    for h in histories:
-        labels = [p for p in h.prints if p.kind == "label"]
-        if h.element.id in hashes and labels and labels[-1].hash != hashes[h.element.id]:
-            out.append(h.element.id)
-    return tuple(out)
+        folder = rec.get_state(store, PACKET_KEY)
+        if folder is None:
+            return None
+        manifest = read_manifest(station.store_path.parent / folder / MANIFEST_JSON)
+        if manifest is None:
+            return None
+        packet, _histories = packet_from_store(station.spec, store, built_at="",
+                                               model=station.model)
+    return tuple(sorted(name.split(":", 1)[1] for name, digest in packet.items.items()
+                        if name.startswith("label:") and manifest.items.get(name) != digest))

@@ -12,7 +12,10 @@ import hashlib
 import hmac
 import secrets
 from dataclasses import dataclass
+from typing import Any
 
+#: Record-store state key of the organiser PIN.
+PIN_KEY = "organiser_pin"
 CLIENT_COOKIE = "bs_client"
 ORGANISER_COOKIE = "bs_organiser"
 CSRF_FIELD = "csrf"
@@ -76,3 +79,11 @@ def organiser_ok(secret: bytes, client: str | None, token: str | None) -> bool:
 def pin_ok(pin: str, entered: str) -> bool:
     """Compare an entered PIN with the organiser's (constant time, spaces ignored)."""
     return hmac.compare_digest(pin.encode(), "".join(entered.split()).encode())
+
+
+def organiser_pin(store: Any) -> str:
+    """The organiser PIN kept in the record store's state, created on first use (the packet
+    prints it on the organiser's cover page; the station asks for it)."""
+    from buildsheet.store.ledger import setdefault_state
+
+    return setdefault_state(store, PIN_KEY, new_pin())

@@ -11,7 +11,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 from buildsheet.spec.units import UnitSystem, format_both, format_frequency, format_length
-from buildsheet.station.ledger_api import BoardFacts, ElementFacts, Instruction
+from buildsheet.station.ledger_api import BoardFacts, ElementFacts
 
 
 def element_url(element_id: str) -> str:
@@ -33,6 +33,7 @@ class LegRow:
     as_cut: str
     current: str
     target: str
+    action: str
 
 
 @dataclass(frozen=True)
@@ -78,16 +79,6 @@ class ElementPage:
     url: str = ""
 
 
-def headline(ins: Instruction, units: UnitSystem) -> str:
-    """The instruction in words: "Shorten each leg by 45 mm (1 3/4 in)"."""
-    if ins.action == "none":
-        return "On frequency: leave both legs as they are"
-    amount = format_both(ins.amount_m, units)
-    if ins.action == "shorten":
-        return f"Shorten each leg by {amount}"
-    return f"Lengthen each leg by {amount}"
-
-
 def _reading_text(dip_hz: float, swr: float | None, r: float | None, x: float | None) -> str:
     parts = [f"dip {format_frequency(dip_hz)}"]
     if swr is not None:
@@ -101,36 +92,39 @@ def _reading_text(dip_hz: float, swr: float | None, r: float | None, x: float | 
 
 def element_page(facts: ElementFacts, units: UnitSystem, event: str, csrf: str, *,
                  error: str = "", notice: str = "", form: Mapping[str, str] | None = None,
-                 show_advice: bool = True) -> ElementPage:
+                 ) -> ElementPage:
     """The element page context."""
     legs = tuple(LegRow(leg.leg_id, tape(leg.prescribed_cut_m, units),
-                        tape(leg.cut_m, units) if leg.cut_m is not None else "not recorded",
-                        tape(leg.current_m, units), tape(leg.target_m, units))
+                        tape(leg.cut_m, units) if leg.cut_m is not None else "not cut yet",
+                        tape(leg.current_m, units), tape(leg.target_m, units), leg.action)
                  for leg in facts.legs)
-    tuning = (f"To raise the dip by 100 kHz shorten EACH leg by "
-              f"{format_both(facts.tuning_m_per_100khz, units)}; to lower it, add back the same."
-              " Trim both legs equally, in steps, and stay long.")
-    rows: list[tuple[str, HistoryRow]] = []
+    tuning = (facts.tuning[:1].upper() + facts.tuning[1:]) if facts.tuning else ""
+    rows: list[tuple[tuple[str, int], HistoryRow]] = []
     base = element_url(facts.element_id)
     for m in facts.readings:
         detail = _reading_text(m.dip_hz, m.swr, m.r_ohm, m.x_ohm)
-        rows.append((m.time, HistoryRow(f"reading {m.id}", m.time, "reading",
-                                        detail + (f" ({m.note})" if m.note else ""),
-                                        f"{base}/sweep/{m.id}.svg" if m.sweep else "", m.voided)))
-    for t in facts.trims:
+        rows.append(((m.time, m.id), HistoryRow(
+            f"reading {m.id}", m.time, "reading", detail + (f" ({m.note})" if m.note else ""),
+            f"{base}/sweep/{m.id}.svg" if m.sweep else "", m.voided)))
+    for t in facts.entries:
         which = "each leg" if t.leg == "both" else f"leg {t.leg}"
-        verb = "removed from" if t.delta_m > 0 else "added back to"
-        rows.append((t.time, HistoryRow(f"trim {t.id}", t.time, "trim",
-                                        f"{format_both(abs(t.delta_m), units)} {verb} {which}"
-                                        + (f" ({t.note})" if t.note else ""), "", t.voided)))
+        if t.kind == "cut":
+            text = f"{which} cut at {tape(t.length_m, units)}"
+        else:
+            verb = "removed from" if t.length_m > 0 else "added back to"
+            text = f"{format_both(abs(t.length_m), units)} {verb} {which}"
+        rows.append(((t.time, t.id), HistoryRow(f"{t.kind} {t.id}", t.time, t.kind,
+                                                text + (f" ({t.note})" if t.note else ""), "",
+                                                t.voided)))
     rows.sort(key=lambda r: r[0], reverse=True)
     advice = None
-    if facts.instruction is not None and show_advice:
+    if facts.instruction is not None and not facts.archived:
         ins = facts.instruction
-        latest = next(m for m in facts.readings if m.id == ins.reading_id)
-        advice = Advice(headline(ins, units), ins.lines,
-                        f"Reading {ins.reading_id}: "
-                        + _reading_text(latest.dip_hz, latest.swr, latest.r_ohm, latest.x_ohm))
+        latest = next((m for m in facts.readings if m.id == ins.reading_id), None)
+        advice = Advice(ins.headline, ins.lines,
+                        f"After reading {latest.id}: " + _reading_text(
+                            latest.dip_hz, latest.swr, latest.r_ohm, latest.x_ohm)
+                        if latest else "No reading yet.")
     latest_plot = next((r.plot_url for _, r in rows if r.plot_url and not r.voided), "")
     return ElementPage(event, facts.element_id, facts.kit, facts.builder, facts.band,
                        format_frequency(facts.design_hz),
@@ -158,7 +152,7 @@ class OfferRow:
     title: str
     measured: tuple[str, ...]
     calibrated: bool
-    batch: tuple[tuple[str, str, str, str], ...]  # (ID, remove A, remove B, action)
+    batch: tuple[tuple[str, str, str], ...]  # (ID, leg A action, leg B action) in words
 
 
 @dataclass(frozen=True)
@@ -171,10 +165,6 @@ class BoardPage:
     organiser: bool = False
 
 
-def _signed_mm(metres: float) -> str:
-    return f"{metres * 1000:+.0f} mm"
-
-
 def board_page(facts: BoardFacts, units: UnitSystem, event: str, csrf: str,
                organiser: bool = False) -> BoardPage:
     """The day board context."""
@@ -185,9 +175,7 @@ def board_page(facts: BoardFacts, units: UnitSystem, event: str, csrf: str,
                   if last else "")
         rows.append(BoardRow(f.element_id, element_url(f.element_id), f.kit, f.builder, f.band,
                              f.state, latest))
-    offers = tuple(OfferRow(o.design_key, o.title, o.measured, o.calibrated,
-                            tuple((eid, _signed_mm(a), _signed_mm(b), action)
-                                  for eid, a, b, action in o.batch))
+    offers = tuple(OfferRow(o.design_key, o.title, o.measured, o.calibrated, o.batch)
                    for o in facts.offers)
     return BoardPage(event, tuple(rows), offers, facts.counts, csrf, organiser)
 
@@ -198,6 +186,6 @@ class OrganiserPage:
     csrf: str
     signed_in: bool
     offers: tuple[OfferRow, ...] = ()
-    reprint: tuple[tuple[str, str], ...] = ()  # (ID, URL)
+    reprint: tuple[tuple[str, str], ...] | None = ()  # (leg ID, URL); None: no packet known
     error: str = ""
     notice: str = ""

@@ -32,8 +32,7 @@ from pathlib import Path
 from typing import Any, Literal, Self
 
 from buildsheet.errors import RecordError
-
-from buildsheet.records import (  # noqa: F401 - the record types, re-exported for callers
+from buildsheet.records import (
     LEGS,
     PRINT_KINDS,
     SIDES,
@@ -118,6 +117,14 @@ MIGRATIONS += (
          "SELECT e.id, l.leg, e.cut_leg_m, e.spec_revision, 'before the ledger', e.updated, '' "
          "FROM elements e, (SELECT 'A' AS leg UNION SELECT 'B') l WHERE e.id IN "
          "(SELECT element_id FROM measurements UNION SELECT element_id FROM trims)"),
+    )),
+)
+MIGRATIONS += (
+    (4, (  # the station (issue 11): R and X at the dip, and the analyzer sweep, per reading
+        ("CREATE TABLE reading_extras (measurement_id INTEGER PRIMARY KEY"
+         " REFERENCES measurements(id), r_ohm REAL CHECK (r_ohm IS NULL OR r_ohm >= 0),"
+         " x_ohm REAL, sweep_name TEXT, sweep_csv TEXT)"),
+        _NO_DELETE.format(t="reading_extras"),
     )),
 )
 SCHEMA_VERSION: int = MIGRATIONS[-1][0]
@@ -495,11 +502,39 @@ def confirm_cut(store: RecordStore, element_id: str, legs: Sequence[Side], now: 
     return tuple(out)
 
 
+@dataclass(frozen=True)
+class ReadingExtras:
+    """What an analyzer gave beside the dip: R and X there (ohm), and the sweep (CSV text of
+    ``buildsheet.calc.sweep.sweep_to_csv``, with the uploaded file's name)."""
+
+    r_ohm: float | None = None
+    x_ohm: float | None = None
+    sweep_name: str | None = None
+    sweep_csv: str | None = None
+
+    @property
+    def empty(self) -> bool:
+        return self == ReadingExtras()
+
+
+def reading_extras(store: RecordStore, element_id: str | None = None,
+                   *, with_sweeps: bool = False) -> dict[int, ReadingExtras]:
+    """R, X and sweeps by measurement number (all, or one element's); sweep text only when
+    ``with_sweeps`` (it can be large)."""
+    sweep = "e.sweep_csv" if with_sweeps else "NULL"
+    where, params = ("WHERE m.element_id = ?", (element_id,)) if element_id else ("", ())
+    return {r[0]: ReadingExtras(r[1], r[2], r[3], r[4]) for r in _read(
+        store, f"SELECT e.measurement_id, e.r_ohm, e.x_ohm, e.sweep_name, {sweep} FROM "
+        f"reading_extras e JOIN measurements m ON m.id = e.measurement_id {where}", params)}
+
+
 def add_measurement(store: RecordStore, element_id: str, dip_hz: float, swr: float | None,
-                    note: str, now: datetime) -> Measurement:
-    """Record an analyzer dip (Hz) for an element, confirming uncut legs at their printed cut.
-    RecordError for an unknown ID, an archived element, a dip far outside the element's band
-    or an SWR below 1."""
+                    note: str, now: datetime,
+                    extras: ReadingExtras | None = None) -> Measurement:
+    """Record an analyzer dip (Hz) for an element, confirming uncut legs at their printed cut,
+    with R, X and the sweep (``extras``) in the same transaction. RecordError for an unknown
+    ID, an archived element, a dip far outside the element's band, an SWR below 1 or a
+    negative R."""
     row = get_element(store, element_id)
     lo, hi = dip_window_hz(row)
     if not (math.isfinite(dip_hz) and lo <= dip_hz <= hi):
@@ -509,13 +544,22 @@ def add_measurement(store: RecordStore, element_id: str, dip_hz: float, swr: flo
             "and the element ID. Nothing recorded.")
     if swr is not None and not (math.isfinite(swr) and swr >= 1.0):
         raise RecordError(f"{element_id}: SWR must be 1 or more, got {swr}. Nothing recorded.")
+    if extras is not None and extras.r_ohm is not None and not (
+            math.isfinite(extras.r_ohm) and extras.r_ohm >= 0):
+        raise RecordError(f"{element_id}: R must be 0 ohm or more, got {extras.r_ohm}. "
+                          "Nothing recorded.")
     _active(row)
     stamp = iso_time(now)
     with write_transaction(store) as conn:
         _confirm_uncut(conn, row, "first reading", stamp)
         cur = conn.execute("INSERT INTO measurements (element_id, time, dip_hz, swr, note) "
                            "VALUES (?, ?, ?, ?, ?)", (element_id, stamp, dip_hz, swr, note))
-        return Measurement(int(cur.lastrowid or 0), element_id, stamp, dip_hz, swr, note)
+        number = int(cur.lastrowid or 0)
+        if extras is not None and not extras.empty:
+            conn.execute("INSERT INTO reading_extras VALUES (?, ?, ?, ?, ?)",
+                         (number, extras.r_ohm, extras.x_ohm, extras.sweep_name,
+                          extras.sweep_csv))
+        return Measurement(number, element_id, stamp, dip_hz, swr, note)
 
 
 def add_trim(store: RecordStore, element_id: str, leg: Leg, delta_m: float, note: str,
@@ -613,6 +657,15 @@ def set_state(store: RecordStore, key: str, value: str) -> None:
                      "SET value = excluded.value", (key, value))
 
 
+def setdefault_state(store: RecordStore, key: str, value: str) -> str:
+    """The value of ``key``, first setting it to ``value`` if absent (one transaction, so two
+    processes agree on the first value)."""
+    with write_transaction(store) as conn:
+        conn.execute("INSERT INTO state (key, value) VALUES (?, ?) ON CONFLICT(key) DO NOTHING",
+                     (key, value))
+        return str(conn.execute("SELECT value FROM state WHERE key = ?", (key,)).fetchone()[0])
+
+
 def _assemble(elements: Sequence[ElementRow], conn: sqlite3.Connection,
               only: str | None = None) -> list[ElementHistory]:
     where, params = ("WHERE element_id = ? ", (only,)) if only else ("", ())
@@ -649,10 +702,12 @@ def load_histories(store: RecordStore, ids: Iterable[str] | None = None) -> list
         store.conn.execute("BEGIN")
         try:
             elements = list_elements(store)
+            only = None
             if ids is not None:
                 keep = set(ids)
                 elements = [e for e in elements if e.id in keep]
-            return _assemble(elements, store.conn)
+                only = next(iter(keep)) if len(keep) == 1 else None  # one element: its rows
+            return _assemble(elements, store.conn, only)
         finally:
             store.conn.execute("COMMIT")
     except sqlite3.DatabaseError as exc:

@@ -61,10 +61,11 @@ def test_validation_matches_the_cli(live_station: LiveStation, capsys) -> None:
              (["--dip", "7.1 MHz", "--swr", "0.5"], {"dip": "7.1 MHz", "swr": "0.5"})]
     for argv, fields in cases:
         code = main(["measure", "K02-40m", *argv, "--store", str(live_station.store)])
-        cli = capsys.readouterr().err.strip().removeprefix("error: ")
+        err = capsys.readouterr().err
+        cli = [ln for ln in err.splitlines() if ln.startswith("error: ")][-1]
         status, text, _url = b.post("/e/K02-40m/dip", {"csrf": token, **fields})
         assert code == 1 and status == 400
-        assert error_text(text).endswith(cli.split(": ", 1)[-1])
+        assert error_text(text) == cli.removeprefix("error: ").removeprefix("buildsheet: ")
 
 
 def test_hostile_text_comes_back_escaped(live_station: LiveStation) -> None:
@@ -114,7 +115,7 @@ def test_sweep_upload_finds_the_rlc_resonance(live_station: LiveStation) -> None
     number = re.search(r"reading=(\d+)", url).group(1)
     with sqlite3.connect(live_station.store) as conn:
         dip = conn.execute("SELECT dip_hz FROM measurements WHERE id = ?", (number,)).fetchone()
-        r = conn.execute("SELECT r_ohm FROM station_readings WHERE measurement_id = ?",
+        r = conn.execute("SELECT r_ohm FROM reading_extras WHERE measurement_id = ?",
                          (number,)).fetchone()
     assert abs(dip[0] - F0_HZ) < 1e3  # f0 = 1/(2 pi sqrt(LC))
     assert r[0] == pytest.approx(R_OHM, rel=0.01)
@@ -150,6 +151,28 @@ def test_organiser_needs_the_pin(live_station: LiveStation) -> None:
     assert status == 403
     status, text, _url = b.post("/organiser/pin", {"csrf": token, "pin": live_station.pin})
     assert status == 200 and "Labels to reprint" in text
+    # void a wrong reading: it stays in the history, struck through
+    status, text, url = b.post("/e/K03-60m-us/dip", {"csrf": token, "dip": "5.35 MHz",
+                                                     "note": "wrong element"})
+    number = re.search(r"reading=(\d+)", url).group(1)
+    status, text, _url = b.post("/organiser/void", {"csrf": token, "element": "K03-60m-us",
+                                                    "number": number, "reason": "mix-up"})
+    assert status == 200 and "Reading voided" in text
+    status, text, _url = b.get("/e/K03-60m-us")
+    assert re.search(rf'<tr class="void"><td>reading {number}</td>', text)
+    status, text, _url = b.post("/organiser/void", {"csrf": token, "element": "K03-60m-us",
+                                                    "number": number, "reason": "again"})
+    assert status == 400 and f"no valid reading {number}" in error_text(text)
+
+
+def test_pin_on_the_cover_never_on_labels(live_station: LiveStation) -> None:
+    from pypdf import PdfReader
+
+    cover = PdfReader(live_station.out / "sheets.pdf").pages[0].extract_text()
+    labels = " ".join(p.extract_text() for p in PdfReader(live_station.out / "labels.pdf").pages)
+    assert f"Organiser PIN for the build-day station: {live_station.pin}" in " ".join(
+        cover.split())
+    assert live_station.pin not in labels
 
 
 def test_killed_mid_write_keeps_every_acknowledged_reading(live_station: LiveStation) -> None:
@@ -214,3 +237,35 @@ def test_killed_mid_write_keeps_every_acknowledged_reading(live_station: LiveSta
         assert conn.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
     assert len(acked) >= 40
     assert rows(live_station.store, "K02-40m") - before >= len(acked)
+
+
+def test_cli_measure_sweep_records_the_rlc_resonance(live_station: LiveStation, tmp_path,
+                                                     capsys) -> None:
+    """``buildsheet measure ID --sweep FILE``: series RLC at 3.8537 MHz, R 55 ohm (outside
+    reference: f0 = 1/(2 pi sqrt(LC)), Z(f0) = R)."""
+    import math
+
+    import numpy as np
+
+    f0, r_ohm, inductance = 3.8537e6, 55.0, 20e-6
+    capacitance = 1 / ((2 * math.pi * f0) ** 2 * inductance)
+    f = np.linspace(3.6e6, 4.1e6, 251)
+    w = 2 * math.pi * f
+    x = w * inductance - 1 / (w * capacitance)
+    sweep = tmp_path / "k01-75m.csv"
+    sweep.write_text("freq_MHz,R,X\n" + "".join(f"{a / 1e6:.6f},{r_ohm:.3f},{b:.4f}\n"
+                                                for a, b in zip(f, x)), encoding="utf-8")
+    before = rows(live_station.store, "K01-75m")
+    assert main(["measure", "K01-75m", "--sweep", str(sweep),
+                 "--store", str(live_station.store)]) == 0
+    out = capsys.readouterr().out
+    assert "reactance zero crossing" in out and "R 55.0 ohm" in out
+    with sqlite3.connect(live_station.store) as conn:
+        dip, r = conn.execute(
+            "SELECT m.dip_hz, e.r_ohm FROM measurements m JOIN reading_extras e ON "
+            "e.measurement_id = m.id WHERE m.element_id = 'K01-75m' ORDER BY m.id DESC"
+        ).fetchone()
+    assert rows(live_station.store, "K01-75m") == before + 1
+    assert abs(dip - f0) < 1e3 and r == pytest.approx(r_ohm, rel=0.01)
+    assert main(["measure", "K01-75m", "--store", str(live_station.store)]) == 1
+    assert "exactly one of --dip FREQ or --sweep FILE" in capsys.readouterr().err

@@ -130,7 +130,7 @@ def test_scan_dip_trim_and_board(live_station: LiveStation, driver, tmp_path: Pa
     history = driver.find_element(By.ID, "history").text
     assert f"{found.group(1)} mm" in history and "removed from each leg" in history
     send("dip-form", dip="3.9 MHz", swr="1.2")
-    assert driver.find_element(By.ID, "say").text.startswith("On frequency")
+    assert driver.find_element(By.ID, "say").text.startswith("Leave it")
     shot("4-on-frequency")
 
     # Back on the board window: it refreshes itself and shows the element tuned.
