@@ -432,7 +432,7 @@ def cover(packet: Packet) -> list[Flowable]:
                              Spacer(1, 6)]
     if packet.organiser_pin:
         story += [_p(f"<b>Organiser PIN for the build-day station:</b> {packet.organiser_pin} "
-                     f"(at {escape(ev.station_url or '')}/organiser). For the organiser only: "
+                     f"(at {plain(ev.station_url or '')}/organiser). For the organiser only: "
                      "keep this page, do not copy the PIN onto labels.", "body"), Spacer(1, 4)]
     rows = [[_p("<b>Design</b>"), _p("<b>Kits</b>"), _p("<b>Elements</b>"), _p("<b>Cut per leg</b>")]]
     for c in packet.cuts:
