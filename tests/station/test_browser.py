@@ -63,13 +63,20 @@ def driver(tmp_path: Path):
 
 
 def test_scan_dip_trim_and_board(live_station: LiveStation, driver, tmp_path: Path) -> None:
-    from selenium.common.exceptions import StaleElementReferenceException
+    from selenium.common.exceptions import StaleElementReferenceException, WebDriverException
     from selenium.webdriver.common.by import By
-    from selenium.webdriver.support import expected_conditions
     from selenium.webdriver.support.ui import WebDriverWait
 
     def shot(name: str) -> None:
         driver.save_screenshot(str(tmp_path / f"{name}.png"))
+
+    def gone(element: object) -> bool:
+        """True once ``element`` is no longer in the page (Chromium reports that in two ways)."""
+        try:
+            element.is_enabled()  # type: ignore[attr-defined]
+        except (StaleElementReferenceException, WebDriverException):
+            return True
+        return False
 
     def send(form: str, **fields: str) -> None:
         for name, value in fields.items():
@@ -82,7 +89,7 @@ def test_scan_dip_trim_and_board(live_station: LiveStation, driver, tmp_path: Pa
         old = driver.find_element(By.ID, form)
         driver.find_element(By.CSS_SELECTOR, f"#{form} button[type=submit]").click()
         # the answer is a new page: wait until the form sent is gone and the new one is loaded
-        WebDriverWait(driver, 60).until(expected_conditions.staleness_of(old))
+        WebDriverWait(driver, 60).until(lambda d: gone(old))
         WebDriverWait(driver, 60).until(
             lambda d: d.execute_script("return document.readyState") == "complete")
 
