@@ -82,9 +82,17 @@ class Selection:
     def labels(self) -> tuple[str, ...]:
         return tuple(sorted(i.split(":", 1)[1] for i in self.items if i.startswith("label:")))
 
-    def day_pages(self) -> tuple[str, ...]:
-        return tuple(sorted(i.split(":", 1)[1] for i in self.items
-                            if i.startswith(("day:", "nvis:"))))
+    def day_pages(self, packet: Packet | None = None) -> tuple[str, ...]:
+        """Day-level pages printed: "bom", "spool-plan"... and "nvis-KEY" per design; pages
+        with nothing to show (no batch trims, no spools) are left out when ``packet`` is given."""
+        empty = set()
+        if packet is not None and not packet.batch_trims:
+            empty.add("day:batch-trims")
+        if packet is not None and not packet.spool_plan.spools:
+            empty.add("day:stations")
+        return tuple(sorted(i.split(":", 1)[1] if i.startswith("day:") else
+                            "nvis-" + i.split(":", 1)[1] for i in self.items
+                            if i.startswith(("day:", "nvis:")) and i not in empty))
 
 
 @dataclass(frozen=True)
@@ -106,6 +114,12 @@ def select(packet: Packet, previous: Manifest | None, changed_only: bool) -> Sel
         return Selection(frozenset(packet.items), True)
     old = previous.items
     return Selection(frozenset(k for k, v in packet.items.items() if old.get(k) != v), False)
+
+
+def only_cut_rechecks(diff: ManifestDiff, packet: Packet) -> ManifestDiff:
+    """Analyzer re-checks only for elements with wire already cut (the others get new labels)."""
+    cut = {e.element_id for e in packet.entries if e.state.is_cut}
+    return replace(diff, recheck=tuple(r for r in diff.recheck if r.element_id in cut))
 
 
 def element_hashes(packet: Packet) -> dict[str, str]:
@@ -201,7 +215,7 @@ def render_documents(packet: Packet, selection: Selection, start_cell: int) -> D
     sheet_of: dict[str, str] = {}
     label_of: dict[str, str] = {}
     next_cell = None
-    if selection.full or selection.kit_sheets(packet) or selection.day_pages():
+    if selection.full or selection.kit_sheets(packet) or selection.day_pages(packet):
         buf = io.BytesIO()
         sheets.render_sheets(packet, buf, only=None if selection.full else selection.items)
         files[sheets_name] = buf.getvalue()
@@ -412,7 +426,8 @@ def _build(spec_path: str | Path, out_dir: str | Path, *, built_at: str, model: 
                                              model=model)                         # packet
         packet = replace(draft, revision=next_revision(previous, spec.spec_hash, draft.items))
         hashes = element_hashes(packet)
-        diff = diff_manifests(previous, manifest_of(packet, hashes), tolerance)
+        diff = only_cut_rechecks(diff_manifests(previous, manifest_of(packet, hashes), tolerance),
+                                 packet)
         selection = select(packet, previous, changed_only)                   # 4. what to print
         docs = render_documents(packet, selection,                           # 5. render
                                 label_start(spec, get_state(store, cells_key(spec))))
@@ -441,7 +456,8 @@ def _build(spec_path: str | Path, out_dir: str | Path, *, built_at: str, model: 
     files = {**carried, **{n: _sha256(d) for n, d in docs.files.items()},
              **{f"{SITE_DIR}/{n}": _sha256(t.encode()) for n, t in pages.items()}}
     reprinted = {"kit_sheets": list(selection.kit_sheets(packet)),
-                 "labels": list(selection.labels()), "day_pages": list(selection.day_pages())}
+                 "labels": list(selection.labels()),
+                 "day_pages": list(selection.day_pages(packet))}
     manifest = manifest_of(packet, hashes, element_files, files,
                            _notes(selection, docs, carried), reprinted,
                            store=_relative(store_file, out))

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import json
 import re
+from datetime import UTC, datetime
 import urllib.parse
 from pathlib import Path
 
@@ -154,6 +155,9 @@ def test_adding_60m_to_the_fan_flags_others_and_changed_only_writes_them(tmp_pat
     out = folder / "out"
     spec = small_spec(folder)
     first = build(spec, out, built_at=T1)
+    with rec.open_store(default_store(spec)) as st:  # the fan kits are cut already
+        for eid in ("K01-40m", "K01-75m", "K02-40m", "K02-75m"):
+            rec.confirm_cut(st, eid, ("A", "B"), datetime(2027, 3, 1, 12, tzinfo=UTC))
     spec = small_spec(folder, sixty_in_fan=True, start_cell=3)
     second = build(spec, out, built_at=T2, changed_only=True)
     diff, m = second.diff, second.manifest
@@ -179,9 +183,9 @@ def test_adding_60m_to_the_fan_flags_others_and_changed_only_writes_them(tmp_pat
     assert (out / "bom" / "day.csv").is_file()  # the day's CSV bill, rewritten with every build
     assert {"sheets-r2-changed.pdf", "labels-r2-changed.pdf", "sheets.pdf", "labels.pdf",
             "manifest.json", "site", "bom"} == written
-    to_print = set(diff.to_print)
+    # Labels: only the new elements' (the cut fan legs keep their labels: as cut, unchanged).
     legs = {p.split("\n")[0] for p in qr_texts(out / "labels-r2-changed.pdf")}
-    assert legs == {f"{e}-{leg}" for e in to_print for leg in "AB"}
+    assert legs == {f"{e}-{leg}" for e in diff.new for leg in "AB"}
     sheets = pdf_text(out / "sheets-r2-changed.pdf")
     assert "Kit K01" in sheets and "Kit K02" in sheets and "Kit K03" not in sheets
     assert "Kit K03" in pdf_text(out / "sheets.pdf")  # the earlier full file, kept

@@ -356,7 +356,7 @@ def _read_kits(r: _Reader, raw: Any, designs: Mapping[str, AntennaDesign | None]
         path = f"kits[{i}]"
         t = r.keys(table, path, _KIT_KEYS)
         design = r.choice(r.required(t, "design", path), f"{path}.design", tuple(designs))
-        count = r.convert(t.get("count", 1), f"{path}.count", values.number(int, 1, 999))
+        count = r.convert(t.get("count", 1), f"{path}.count", values.number(int, 1, 2000))
         builders = t.get("builders", [])
         if not isinstance(builders, list):
             r.bad(f"{path}.builders", f'expected a list of names like ["Ada", "Ben"], got '
@@ -368,7 +368,7 @@ def _read_kits(r: _Reader, raw: Any, designs: Mapping[str, AntennaDesign | None]
         if count is not None and len(builders) > count:
             r.bad(f"{path}.builders", f"{len(builders)} names for {count} kits; "
                   "list at most one builder per kit")
-        first = r.convert(t.get("first"), f"{path}.first", values.number(int, 1, 999))
+        first = r.convert(t.get("first"), f"{path}.first", values.number(int, 1, 9999))
         entries.append((design, count, builders, first, path))
     kits, used, number = [], set(), 1
     for design, count, builders, first, path in entries:

@@ -172,10 +172,11 @@ class RecordStore:
 
 
 def iso_time(moment: datetime) -> str:
-    """ISO 8601 text for a timezone-aware moment (stored as given, to the second)."""
+    """ISO 8601 text for a timezone-aware moment, to the microsecond (entries of one element
+    are ordered by it: a trim and the reading after it must not share a stamp)."""
     if moment.tzinfo is None:
         raise ValueError("times must be timezone-aware (e.g. datetime.now(timezone.utc))")
-    return moment.isoformat(timespec="seconds")
+    return moment.isoformat(timespec="microseconds")
 
 
 def nearest_ids(wanted: str, existing: Iterable[str], n: int = 3) -> list[str]:
