@@ -145,7 +145,7 @@ def test_start_cell_errors_name_file_and_key():
 
 def test_grammar_expected_an_integer():
     one_error(spec_text(**{"kits.count": '"three"'}), "kits[0].count",
-              "expected an integer from 1 to 999, got text 'three'")
+              "expected an integer from 1 to 2000, got text 'three'")
 
 
 def test_dates_shown_as_dates():
