@@ -15,6 +15,12 @@ import numpy as np
 from buildsheet.constants import C0, EPS0
 
 GroundKind = Literal["free_space", "perfect", "real"]
+#: How a real ground enters the method of moments: the exact half-space by Sommerfeld integrals
+#: (buildsheet.em.sommerfeld, the default), or an image weighted by Fresnel reflection
+#: coefficients at the specular angle per segment pair, or at normal incidence (approximations).
+GroundModel = Literal["sommerfeld", "fresnel-image", "normal-image"]
+GROUND_MODELS: tuple[GroundModel, ...] = ("sommerfeld", "fresnel-image", "normal-image")
+DEFAULT_GROUND_MODEL: GroundModel = "sommerfeld"
 
 
 @dataclass(frozen=True)
@@ -39,17 +45,47 @@ GROUND_CLASSES: dict[str, GroundClass] = {
         GroundClass("fresh_water", "fresh water", 80.0, 3e-3),
         GroundClass("wet", "wet ground", 30.0, 1e-2),
         GroundClass("medium_dry", "medium dry ground", 15.0, 1e-3),
+        # not a P.527 class: the "average ground" of amateur practice (common practice)
+        GroundClass("average", "average ground", 13.0, 5e-3),
         GroundClass("very_dry", "very dry ground", 3.0, 1e-4),
     )
 }
 
 
+def measured_class(eps_r: float, sigma: float) -> GroundClass:
+    """A ground measured on site: relative permittivity ``eps_r``, conductivity ``sigma`` S/m."""
+    return GroundClass("measured", f"measured ground (permittivity {eps_r:g}, "
+                       f"conductivity {sigma * 1e3:g} mS/m)", float(eps_r), float(sigma))
+
+
+def ground_model_title(model: GroundModel) -> str:
+    """How the ground model is named on the sheet."""
+    return {"sommerfeld": "exact half-space (Sommerfeld integrals)",
+            "fresnel-image": "image weighted by Fresnel coefficients at the specular angle "
+                             "(an approximation)",
+            "normal-image": "image weighted by the normal-incidence reflection coefficient "
+                            "(an approximation)"}[model]
+
+
 @dataclass(frozen=True)
 class Ground:
-    """The ground under an antenna: free space, a perfect conductor, or a P.527 class."""
+    """The ground under an antenna: free space, a perfect conductor, or a real ground class.
+
+    ``model`` says how a real ground enters the method of moments (ignored otherwise).
+    """
 
     kind: GroundKind
     ground_class: GroundClass | None = None
+    model: GroundModel = DEFAULT_GROUND_MODEL
+
+    @property
+    def model_title(self) -> str:
+        """The ground model as printed: image theory, free space, or the real-ground model."""
+        if self.kind == "free_space":
+            return "free space (no ground)"
+        if self.kind == "perfect":
+            return "perfect ground (image theory)"
+        return ground_model_title(self.model)
 
     @property
     def title(self) -> str:
@@ -65,9 +101,9 @@ FREE_SPACE = Ground("free_space")
 PERFECT_GROUND = Ground("perfect")
 
 
-def real_ground(key: str) -> Ground:
-    """Ground for the P.527 class ``key`` (one of GROUND_CLASSES)."""
-    return Ground("real", GROUND_CLASSES[key])
+def real_ground(key: str, model: GroundModel = DEFAULT_GROUND_MODEL) -> Ground:
+    """Ground for the class ``key`` (one of GROUND_CLASSES), entered by ``model``."""
+    return Ground("real", GROUND_CLASSES[key], model)
 
 
 def complex_permittivity(ground: GroundClass, frequency_hz: float) -> complex:

@@ -18,10 +18,15 @@ with Gauss-Legendre over the test segment; the smooth rest (exp(-jkR) - 1)/(4 pi
 Gauss-Legendre on both segments. Frequency-independent geometry is computed once per structure.
 
 Ground: perfect ground by image theory (horizontal currents reversed, vertical kept, charge
-negated). Real ground: the same image weighted by the Fresnel coefficients at the specular angle
-between each pair of segments (Gamma_h on horizontal current components and on charge, Gamma_v
-on vertical current components). This reflection-coefficient image is an approximation; an exact
-half-space needs Sommerfeld integrals (Miller, Poggio, Burke & Selden, Canadian J. Phys. 50, 1972).
+negated). Real ground, by ``Ground.model``: "sommerfeld" (default), the exact half-space from
+the Sommerfeld-integral kernels of :mod:`buildsheet.em.sommerfeld`; their static image part
+c_k / (4 pi R') is integrated analytically like the perfect-ground image, the smooth rest read
+from a table at segment midpoints (second order, like the pulse pairs the triangles' Galerkin
+sums reduce to); "fresnel-image", the image weighted by the Fresnel coefficients at the
+specular angle between each pair of segments (Gamma_h on horizontal current components and on
+charge, Gamma_v on vertical ones); "normal-image", the same at normal incidence. The two image
+models are approximations, unreliable below about 0.1-0.2 wavelength (Miller, Poggio, Burke &
+Selden, Canadian J. Phys. 50, 1972).
 Distributed loading z' (insulation after Richmond & Newman 1976, skin effect) comes from
 :func:`buildsheet.em.loading.series_impedance_per_m`.
 """
@@ -37,6 +42,7 @@ import numpy as np
 from buildsheet.constants import C0, ETA0
 from buildsheet.em.currents import SegmentCurrents
 from buildsheet.em.deployed import DeployedAntenna, Structure, build_structure, highest_frequency
+from buildsheet.em import sommerfeld
 from buildsheet.em.ground import complex_permittivity
 from buildsheet.em.loading import conductor_impedance_per_m, series_impedance_per_m
 from buildsheet.errors import BuildError
@@ -45,6 +51,41 @@ from buildsheet.errors import BuildError
 STATIC_POINTS: int = 12
 #: Gauss-Legendre points on each segment for the smooth (exp(-jkR) - 1)/R part.
 SMOOTH_POINTS: int = 2
+
+
+@dataclass(frozen=True, eq=False)
+class HalfSpacePairs:
+    """Segment-midpoint pairs for the Sommerfeld ground (all (N, N), i test, j source).
+
+    rho, zeta: horizontal distance and z_i + z_j, m; beta: (t_zi t_hj - t_zj t_hi) . rho_vec,
+    m (the cross-kernel weight); grid and weights: the table grid covering the pairs and the
+    bicubic read of it (frequency independent); tables: the store tables come from.
+    """
+
+    rho: np.ndarray
+    zeta: np.ndarray
+    beta: np.ndarray
+    grid: sommerfeld.TableGrid
+    weights: object
+    tables: sommerfeld.TableStore
+
+
+def _half_space_pairs(p0: np.ndarray, p1: np.ndarray, t: np.ndarray,
+                      tables: sommerfeld.TableStore) -> HalfSpacePairs:
+    """Midpoint-pair geometry, the covering table grid and its interpolation weights."""
+    c = (p0 + p1) / 2.0
+    d = c[:, None, :2] - c[None, :, :2]                          # rho_vec, observation - source
+    rho = np.hypot(d[..., 0], d[..., 1])
+    zeta = c[:, None, 2] + c[None, :, 2]
+    if zeta.min() <= 0.0:
+        raise BuildError("a wire touches or crosses the ground (z <= 0); the half-space ground "
+                         "needs every wire above it")
+    cross = t[:, None, 2, None] * t[None, :, :2] - t[None, :, 2, None] * t[:, None, :2]
+    beta = np.einsum("ijk,ijk->ij", cross, d)
+    grid = sommerfeld.table_grid(sommerfeld.covering_domain(float(rho.max()), float(zeta.min()),
+                                                            float(zeta.max())))
+    return HalfSpacePairs(rho, zeta, beta, grid,
+                          sommerfeld.interpolation_matrix(grid, rho.ravel(), zeta.ravel()), tables)
 
 
 @dataclass(frozen=True, eq=False)
@@ -65,6 +106,7 @@ class Mesh:
     pair t_i . t_j, horizontal and vertical parts of it, sin and cos^2 of the specular elevation
     angle between segment centres; loading_pattern: (rows, cols, weight, segment) of the
     Galerkin sum int z' f_m . f_n dl over the segments two basis functions share.
+    half_space: midpoint-pair geometry and table reads for the Sommerfeld ground (else None).
     """
 
     structure: Structure
@@ -88,6 +130,7 @@ class Mesh:
     static_galerkin: np.ndarray
     pair: np.ndarray
     loading_pattern: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
+    half_space: HalfSpacePairs | None = None
 
     @property
     def n_segments(self) -> int:
@@ -263,24 +306,35 @@ def _loading_pattern(cols: np.ndarray, signs: np.ndarray,
     return r, c, w, s
 
 
-def build_mesh(structure: Structure) -> Mesh:
-    """Segments, basis and frequency-independent integrals of ``structure``."""
+def build_mesh(structure: Structure, tables: sommerfeld.TableStore | None = None) -> Mesh:
+    """Segments, basis and frequency-independent integrals of ``structure``.
+
+    ``tables``: where Sommerfeld kernel tables are kept (share one across the meshes of a
+    solve; a fresh store if None).
+    """
     p0, p1, t, length, radius, owner = _segments(structure)
     T, D, ports, cols, signs, segs, divs = _basis(structure, length)
     a2 = (radius[:, None] ** 2 + radius[None, :] ** 2) / 2.0
     static = _static_integrals(p0, t, length, a2, p0, t)
     dist = _smooth_distances(p0, t, length, a2, p0, t)
-    static_img = dist_img = None
+    static_img = dist_img = half_space = None
     if structure.ground.kind != "free_space":
         mirror = np.array([1.0, 1.0, -1.0])
         static_img = _static_integrals(p0, t, length, a2, p0 * mirror, t * mirror)
-        dist_img = _smooth_distances(p0, t, length, a2, p0 * mirror, t * mirror)
+        if _is_sommerfeld(structure):
+            half_space = _half_space_pairs(p0, p1, t, tables or sommerfeld.TableStore())
+        else:
+            dist_img = _smooth_distances(p0, t, length, a2, p0 * mirror, t * mirror)
     pair = _pair_geometry(p0, p1, t)
     static_galerkin = np.stack([_galerkin(cols, signs, _by_end(static * pair[0])),
                                 _galerkin(segs, divs, static.sum(axis=(0, 1)))]) / (4.0 * math.pi)
     return Mesh(structure, p0, p1, t, length, radius, owner, T, D, ports, cols, signs, segs, divs,
                 static, dist, static_img, dist_img, static_galerkin, pair,
-                _loading_pattern(cols, signs, segs))
+                _loading_pattern(cols, signs, segs), half_space)
+
+
+def _is_sommerfeld(structure: Structure) -> bool:
+    return structure.ground.kind == "real" and structure.ground.model == "sommerfeld"
 
 
 def _smooth_kernel(dist: np.ndarray, k: float) -> np.ndarray:
@@ -313,7 +367,8 @@ def _image_factors(mesh: Mesh, frequency_hz: float) -> tuple[np.ndarray, np.ndar
     Antenna Theory, section 4.8, as in :func:`buildsheet.em.ground.fresnel_horizontal` and
     :func:`~buildsheet.em.ground.fresnel_vertical`) at the specular elevation angle between
     segment centres: Gamma_h = (sin psi - r) / (sin psi + r),
-    Gamma_v = (eps_c sin psi - r) / (eps_c sin psi + r), r = sqrt(eps_c - cos^2 psi).
+    Gamma_v = (eps_c sin psi - r) / (eps_c sin psi + r), r = sqrt(eps_c - cos^2 psi);
+    the normal-incidence image uses psi = 90 degrees for every pair.
     """
     _, horiz, vert, sin_psi, cos2_psi = mesh.pair
     ground = mesh.structure.ground
@@ -321,6 +376,8 @@ def _image_factors(mesh: Mesh, frequency_hz: float) -> tuple[np.ndarray, np.ndar
         return vert - horiz, np.full(horiz.shape, -1.0)
     assert ground.ground_class is not None
     eps_c = complex_permittivity(ground.ground_class, frequency_hz)
+    if ground.model == "normal-image":
+        sin_psi, cos2_psi = np.ones_like(sin_psi), np.zeros_like(cos2_psi)
     root = np.sqrt(eps_c - cos2_psi + 0j)
     gh = (sin_psi - root) / (sin_psi + root)
     gv = (eps_c * sin_psi - root) / (eps_c * sin_psi + root)
@@ -340,17 +397,57 @@ def _loading(mesh: Mesh, frequency_hz: float, *, loss_only: bool = False) -> np.
     return out
 
 
-def impedance_matrix(mesh: Mesh, frequency_hz: float) -> np.ndarray:
+def _half_space_terms(mesh: Mesh, frequency_hz: float, k: float,
+                      direct: bool) -> tuple[np.ndarray, np.ndarray]:
+    """Reflected vector (2, 2, N, N) and scalar (N, N) pair integrals of the Sommerfeld ground,
+    times 4 pi (the scale of the free-space terms), m.
+
+    G = c_k / (4 pi R') + rest: the static image part analytically (``static_img``), the rest at
+    segment midpoints with the pulse weights 1/4 D_i D_j (vector) and D_i D_j (charge).
+    ``direct`` evaluates the Sommerfeld integrals at every midpoint pair (slow, no table).
+    """
+    hs, ground = mesh.half_space, mesh.structure.ground
+    assert hs is not None and ground.ground_class is not None and mesh.static_img is not None
+    eps_c = complex_permittivity(ground.ground_class, frequency_hz)
+    zeta0 = hs.grid.domain.zeta_min
+    r = np.hypot(hs.rho, hs.zeta)
+    if direct:
+        g = sommerfeld.direct_kernels(eps_c, k, hs.rho, hs.zeta)
+        c = sommerfeld.direct_kernels(eps_c, k, np.zeros(1), np.full(1, zeta0))[:3, 0] * (
+            4.0 * math.pi * zeta0)
+        scaled = 4.0 * math.pi * r * np.exp(1j * k * r) * g
+        scaled[3] *= r + hs.zeta
+    else:
+        table = hs.tables.table(eps_c, k, hs.grid)
+        scaled = sommerfeld.table_scaled(table, hs.weights).reshape(4, *hs.rho.shape)
+        c = table.image_coefficients()
+    # 4 pi G_k = scaled_k exp(-j k R')/R' (and / (R' + zeta) for G_x / rho)
+    phase = (np.cos(k * r) - 1j * np.sin(k * r)) / r
+    rest = scaled[:3] * phase - c[:, None, None] / r
+    cross = scaled[3] * phase * (hs.beta / (r + hs.zeta))
+    _, horiz, vert, _, _ = mesh.pair
+    ll = mesh.length[:, None] * mesh.length[None, :]
+    vec = (mesh.static_img * (c[0] * horiz + c[1] * vert)
+           + (0.25 * ll) * (horiz * rest[0] + vert * rest[1] - 1j * cross))
+    scal = mesh.static_img.sum(axis=(0, 1)) * c[2] + ll * rest[2]
+    return vec, scal
+
+
+def impedance_matrix(mesh: Mesh, frequency_hz: float, *, direct: bool = False) -> np.ndarray:
     """Galerkin impedance matrix Z (Nb x Nb, ohm) of ``mesh`` at ``frequency_hz``.
 
     Z = j k eta (A_static + A_smooth) - j (eta / k) (S_static + S_smooth) + loading, the free-space
     static parts precomputed per mesh (``static_galerkin``); per frequency only the smooth kernel,
-    the image (with its frequency-dependent Fresnel weights) and the loading are formed.
+    the ground (Sommerfeld table read, or the image with its frequency-dependent Fresnel weights)
+    and the loading are formed. ``direct``: Sommerfeld integrals without a table (slow; tests).
     """
     k = 2.0 * math.pi * frequency_hz / C0
     ll = mesh.length[:, None] * mesh.length[None, :]
     vec, scal = _smooth_pairs(_smooth_kernel(mesh.dist, k), mesh.pair[0] * ll, ll)
-    if mesh.static_img is not None and mesh.dist_img is not None:
+    if mesh.half_space is not None:
+        v_r, s_r = _half_space_terms(mesh, frequency_hz, k, direct)
+        vec, scal = vec + v_r, scal + s_r
+    elif mesh.static_img is not None and mesh.dist_img is not None:
         w_vec, w_scal = _image_factors(mesh, frequency_hz)
         v_img, s_img = _smooth_pairs(_smooth_kernel(mesh.dist_img, k), w_vec * ll, w_scal * ll)
         vec = vec + v_img + mesh.static_img * w_vec
@@ -362,23 +459,27 @@ def impedance_matrix(mesh: Mesh, frequency_hz: float) -> np.ndarray:
     return Z + _loading(mesh, frequency_hz)
 
 
-def port_impedances(mesh: Mesh, frequencies_hz: np.ndarray | float) -> np.ndarray:
-    """Open-circuit impedance matrix of the ports, (F, P, P) complex ohm."""
+def port_impedances(mesh: Mesh, frequencies_hz: np.ndarray | float, *,
+                    direct: bool = False) -> np.ndarray:
+    """Open-circuit impedance matrix of the ports, (F, P, P) complex ohm (``direct``: see
+    :func:`impedance_matrix`)."""
     f = np.atleast_1d(np.asarray(frequencies_hz, dtype=float))
     V = np.zeros((mesh.n_unknowns, mesh.port_basis.size))
     V[mesh.port_basis, np.arange(mesh.port_basis.size)] = 1.0
     out = np.empty((f.size, V.shape[1], V.shape[1]), dtype=complex)
     for i, fi in enumerate(f):
-        Y = np.linalg.solve(impedance_matrix(mesh, float(fi)), V)[mesh.port_basis]
+        Y = np.linalg.solve(impedance_matrix(mesh, float(fi), direct=direct), V)[mesh.port_basis]
         out[i] = np.linalg.inv(Y)
     return out
 
 
 @lru_cache(maxsize=32)
 def mesh_for(antenna: DeployedAntenna, max_frequency_hz: float | None = None,
-             segment_counts: tuple[int, ...] | None = None) -> Mesh:
+             segment_counts: tuple[int, ...] | None = None,
+             tables: sommerfeld.TableStore | None = None) -> Mesh:
     """Cached mesh of ``antenna`` (identical geometry is built and integrated once)."""
-    return build_mesh(build_structure(antenna, max_frequency_hz, segment_counts=segment_counts))
+    return build_mesh(build_structure(antenna, max_frequency_hz, segment_counts=segment_counts),
+                      tables)
 
 
 def _segmentation_frequency(antenna: DeployedAntenna, frequencies_hz: np.ndarray) -> float:
@@ -418,7 +519,7 @@ def segment_currents(antenna: DeployedAntenna, frequency_hz: float,
 def describe(mesh: Mesh) -> str:
     """One line naming the model, its size and the ground, for the sheet."""
     g = mesh.structure.ground
-    ground = g.title + (" (Fresnel-weighted image, an approximation)" if g.kind == "real" else
+    ground = g.title + (f" ({g.model_title})" if g.kind == "real" else
                         " (image theory)" if g.kind == "perfect" else "")
     return (f"thin-wire method of moments, {mesh.n_segments} segments, "
             f"{mesh.n_unknowns} unknowns, ground: {ground}")

@@ -38,6 +38,7 @@ from buildsheet.em.deployed import (
 )
 from buildsheet.em.ground import FREE_SPACE, PERFECT_GROUND, Ground
 from buildsheet.em.mom import Mesh, build_mesh, describe, mesh_for, port_impedances
+from buildsheet.em.sommerfeld import TableStore
 from buildsheet.errors import BuildError
 
 #: Search range of a leg, in wavelengths at its design frequency (the half-wave resonance of a
@@ -113,17 +114,18 @@ class PredictionBand:
 
 
 def _mesh(antenna: DeployedAntenna, lengths: np.ndarray, f_seg: float,
-          counts: tuple[int, ...], *, cache: bool = True) -> Mesh:
+          counts: tuple[int, ...], tables: TableStore, *, cache: bool = True) -> Mesh:
     """Mesh of ``antenna`` with ``lengths`` on ``counts`` segments per leg.
 
     Where the segmentation rule gives the same counts (the usual case) the mesh comes from the
     cache of :func:`buildsheet.em.mom.mesh_for`, so the solved antenna's mesh is built once and
-    reused by later calls (feed impedance, currents) on that antenna.
+    reused by later calls (feed impedance, currents) on that antenna. Every mesh of one solve
+    reads Sommerfeld kernel tables from ``tables`` (one table per frequency and grid).
     """
     trial = with_leg_lengths(antenna, lengths)
     if cache and element_segment_counts(trial, f_seg) == counts:
-        return mesh_for(trial, f_seg)
-    return build_mesh(build_structure(trial, f_seg, segment_counts=counts))
+        return mesh_for(trial, f_seg, None, tables)
+    return build_mesh(build_structure(trial, f_seg, segment_counts=counts), tables)
 
 
 def _no_resonance(antenna: DeployedAntenna, e: int, lo: float, hi: float, x: float) -> BuildError:
@@ -135,7 +137,8 @@ def _no_resonance(antenna: DeployedAntenna, e: int, lo: float, hi: float, x: flo
 
 
 def _solve_lengths(antenna: DeployedAntenna, start: np.ndarray, f_seg: float,
-                   counts: tuple[int, ...]) -> tuple[np.ndarray, int, Mesh, np.ndarray]:
+                   counts: tuple[int, ...],
+                   tables: TableStore) -> tuple[np.ndarray, int, Mesh, np.ndarray]:
     """Leg lengths giving X = 0 at every design frequency, on a fixed segmentation.
 
     Returns the lengths, the iterations, and the mesh and feed impedances (ohm, one per element
@@ -153,7 +156,7 @@ def _solve_lengths(antenna: DeployedAntenna, start: np.ndarray, f_seg: float,
     slope = x_prev = l_prev = None
     pinned = np.zeros(f.size, dtype=int)
     for it in range(1, MAX_ITERATIONS + 1):
-        mesh = _mesh(antenna, L, f_seg, counts)
+        mesh = _mesh(antenna, L, f_seg, counts, tables)
         z = port_impedances(mesh, f)[:, 0, 0]
         x = z.imag
         if slope is None:
@@ -296,27 +299,29 @@ def _bandwidth(mesh: Mesh, f0: float, lo: float, hi: float, curve: _Curve, z0: f
 
 
 @lru_cache(maxsize=32)
-def solve_resonance(antenna: DeployedAntenna, *, z0: float = 50.0,
-                    n_swr_points: int = 41) -> AntennaSolution:
+def solve_resonance(antenna: DeployedAntenna, *, z0: float = 50.0, n_swr_points: int = 41,
+                    tables: TableStore | None = None) -> AntennaSolution:
     """Solve every element's leg length jointly for zero feed reactance at its design frequency.
 
     Returns the antenna with solved lengths, the feed impedance, the SWR curve on ``z0`` across
     each band, the 2:1 SWR bandwidth and the model's own tuning slope per element.
     Raises BuildError naming the element and the leg range tried when no resonance is found.
+    ``tables``: Sommerfeld kernel tables to reuse (a fresh store for this solve if None).
     """
+    tables = tables or TableStore()
     f_seg = highest_frequency(antenna)
     L = np.array([e.leg_length_m for e in antenna.elements])
     counts = element_segment_counts(antenna, f_seg)
     iterations = 0
     for _ in range(4):
-        L, it, mesh, z_design = _solve_lengths(antenna, L, f_seg, counts)
+        L, it, mesh, z_design = _solve_lengths(antenna, L, f_seg, counts, tables)
         iterations += it
         new_counts = element_segment_counts(with_leg_lengths(antenna, L), f_seg)
         if new_counts == counts:
             break
         counts = new_counts
     else:
-        mesh = mesh_for(with_leg_lengths(antenna, L), f_seg)
+        mesh = mesh_for(with_leg_lengths(antenna, L), f_seg, None, tables)
         z_design = port_impedances(mesh, np.array([e.design_frequency_hz
                                                    for e in antenna.elements]))[:, 0, 0]
     solved = with_leg_lengths(antenna, L)
@@ -327,7 +332,7 @@ def solve_resonance(antenna: DeployedAntenna, *, z0: float = 50.0,
     for e in range(f.size):
         dl = np.zeros_like(L)
         dl[e] = 1e-5 * L[e]
-        x = port_impedances(_mesh(antenna, L + dl, f_seg, counts, cache=False),
+        x = port_impedances(_mesh(antenna, L + dl, f_seg, counts, tables, cache=False),
                             f[e])[0, 0, 0].imag
         dxdl[e] = (x - z_design[e].imag) / dl[e]
     results = []

@@ -120,20 +120,25 @@ class SpectralPath:
     weight: np.ndarray
 
 
+#: Gauss-Legendre nodes and weights on [-1, 1] (constants of the rule, not solver state).
+_GL_X, _GL_W = np.polynomial.legendre.leggauss(PANEL_POINTS)
+
+
 def _gauss_panels(edges: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Gauss-Legendre nodes and weights on consecutive panels [edges[i], edges[i+1]]."""
-    x, w = np.polynomial.legendre.leggauss(PANEL_POINTS)
+    x, w = _GL_X, _GL_W
     a, b = edges[:-1, None], edges[1:, None]
     return ((a + b) / 2 + (b - a) / 2 * x).ravel(), ((b - a) / 2 * w).ravel()
 
 
 def _split(edges: list[float], width: float) -> np.ndarray:
     """Breakpoints ``edges`` with every interval cut into equal panels no wider than ``width``."""
-    out = [edges[0]]
-    for a, b in zip(edges[:-1], edges[1:], strict=True):
-        n = max(1, math.ceil((b - a) / width - 1e-9))
-        out += list(np.linspace(a, b, n + 1)[1:])
-    return np.array(out)
+    e = np.asarray(edges, dtype=float)
+    n = np.maximum(1, np.ceil(np.diff(e) / width - 1e-9).astype(int))
+    start = np.repeat(e[:-1], n)
+    step = np.repeat(np.diff(e) / n, n)
+    within = np.arange(n.sum()) - np.repeat(np.cumsum(n) - n, n)
+    return np.append(start + step * within, e[-1])
 
 
 def spectral_path(eps_c: complex, k0: float, zeta_min: float, rho_max: float,
@@ -185,8 +190,11 @@ def _scaled(values: np.ndarray, rho: np.ndarray, zeta: np.ndarray, k0: float) ->
 def _unscale(values: np.ndarray, rho: np.ndarray, zeta: np.ndarray, k0: float) -> np.ndarray:
     """Inverse of :func:`_scaled`: kernels (4, ...) in 1/m (G_x / rho in 1/m^2)."""
     r = np.hypot(rho, zeta)
-    f = np.exp(-1j * k0 * r) / (4.0 * math.pi * r)
-    return values * np.stack([f, f, f, f / (r + zeta)])
+    kr = k0 * r
+    f = (np.cos(kr) - 1j * np.sin(kr)) / (4.0 * math.pi * r)
+    out = values * f
+    out[3] /= r + zeta
+    return out
 
 
 def _integrate(path: SpectralPath, eps_c: complex, k0: float, jrows: tuple[np.ndarray, np.ndarray],
@@ -369,6 +377,12 @@ def interpolation_matrix(grid: TableGrid, rho: np.ndarray, zeta: np.ndarray) -> 
                               np.arange(0, 16 * p + 1, 16)), shape=(p, table.n_u * table.n_v))
 
 
+def table_scaled(table: KernelTable, weights: sparse.csr_matrix) -> np.ndarray:
+    """The table's scaled kernels (4, P) read at the points of ``weights`` (dimensionless)."""
+    flat = np.ascontiguousarray(table.values.reshape(4, -1).T).view(float)   # (n, 8) real
+    return (weights @ flat).view(complex).T
+
+
 def table_kernels(table: KernelTable, rho: np.ndarray, zeta: np.ndarray,
                   weights: sparse.csr_matrix | None = None) -> np.ndarray:
     """Kernels G_te, G_zz, G_phi (1/m) and G_x/rho (1/m^2) read from ``table``, (4, P).
@@ -377,6 +391,4 @@ def table_kernels(table: KernelTable, rho: np.ndarray, zeta: np.ndarray,
     """
     rho, zeta = np.abs(np.ravel(rho)), np.ravel(zeta)
     w = interpolation_matrix(table.grid, rho, zeta) if weights is None else weights
-    flat = np.ascontiguousarray(table.values.reshape(4, -1).T).view(float)   # (n, 8) real
-    scaled = (w @ flat).view(complex).T
-    return _unscale(scaled, rho, zeta, table.k0)
+    return _unscale(table_scaled(table, w), rho, zeta, table.k0)

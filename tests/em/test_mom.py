@@ -137,8 +137,9 @@ def _fan(ground, bearings=(0.0, 60.0, 120.0)):
 
 def test_impedance_matrix_symmetric():
     # Reciprocity: Galerkin testing gives a symmetric Z (Harrington, Field Computation by
-    # Moment Methods, ch. 4), including the Fresnel-weighted image (pair-symmetric weights).
-    for g in (FREE_SPACE, real_ground("medium_dry")):
+    # Moment Methods, ch. 4), including the Fresnel-weighted image (pair-symmetric weights)
+    # and the Sommerfeld ground (kernels even in rho, the cross weight symmetric).
+    for g in (FREE_SPACE, real_ground("medium_dry"), real_ground("medium_dry", "fresnel-image")):
         Z = mom.impedance_matrix(mom.mesh_for(_fan(g)), 5.357e6)
         assert np.abs(Z - Z.T).max() < 1e-4 * np.abs(Z).max()
 
@@ -201,7 +202,10 @@ def test_geometry_errors():
 
 def test_describe_names_model_and_ground():
     note = mom.describe(mom.mesh_for(_fan(real_ground("medium_dry"))))
-    assert "method of moments" in note and "medium dry" in note and "approximation" in note
+    assert "method of moments" in note and "medium dry" in note and "Sommerfeld" in note
+    for model in ("fresnel-image", "normal-image"):
+        note = mom.describe(mom.mesh_for(_fan(real_ground("medium_dry", model))))
+        assert "medium dry" in note and "approximation" in note
 
 
 def test_static_integrals_vs_scipy():
@@ -276,7 +280,7 @@ def test_fill_matches_dense_formulation():
     # Fresnel weights) against the textbook dense form of the same formulation (REFERENCES 5.1):
     # Z = jk eta T (P o tt) T^T - j (eta/k) D (sum_ab P) D^T + loading, with complex exp, the
     # ground module's Fresnel functions (Balanis 4.8) and T, D as dense matrices.
-    for g in (FREE_SPACE, PERFECT_GROUND, real_ground("wet")):
+    for g in (FREE_SPACE, PERFECT_GROUND, real_ground("wet", "fresnel-image")):
         m = mom.mesh_for(_fan(g))
         Z = _dense_z(m, 5.357e6)
         got = mom.impedance_matrix(m, 5.357e6)
