@@ -34,8 +34,9 @@ from buildsheet.em.ground import (
     PERFECT_GROUND,
     Ground,
     GroundClass,
+    real_ground,
 )
-from buildsheet.em.mom import Mesh, mesh_for, port_impedances
+from buildsheet.em.mom import Mesh, mesh_for, port_impedances, with_ground
 from buildsheet.em.prediction import DesignPrediction
 from buildsheet.em.solve import deployed_antenna, predict_mom
 from buildsheet.errors import BuildError
@@ -162,11 +163,10 @@ def fitted_class(eps_r: float, sigma: float, like: str = "") -> GroundClass:
 
 
 def _with_ground(mesh: Mesh, ground: Ground) -> Mesh:
-    """The same mesh over another ground (geometry integrals are ground-independent)."""
-    if ground.kind == "free_space":
-        return replace(mesh, structure=replace(mesh.structure, ground=ground),
-                       static_img=None, dist_img=None)
-    return replace(mesh, structure=replace(mesh.structure, ground=ground))
+    """The same mesh over another ground (geometry integrals are ground-independent; a
+    Sommerfeld mesh keeps its kernel-table store, which holds one table per ground and
+    frequency met during the fit)."""
+    return with_ground(mesh, ground)
 
 
 def _reactance_and_slope(mesh: Mesh, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -203,6 +203,9 @@ def resonance_near(mesh: Mesh, f_start: float) -> float:
 
 # --------------------------------------------------------------------------- model of a kit
 
+#: Ground the kit meshes are built over (any Sommerfeld real ground: only the geometry is kept).
+_MESH_GROUND = real_ground("medium_dry")
+
 
 @dataclass(frozen=True)
 class _Case:
@@ -235,8 +238,9 @@ def _kit_meshes(design: AntennaDesign, site_ground: Ground, observations: Sequen
         lengths = tuple(float(legs[k]) for k in keys)
         if lengths not in meshes:
             try:
-                # images are built for any ground; the ground itself is set per evaluation
-                ant: DeployedAntenna = deployed_antenna(design, PERFECT_GROUND, lengths)
+                # built over a half-space ground (images, Sommerfeld pairs); the ground itself
+                # is set per evaluation
+                ant: DeployedAntenna = deployed_antenna(design, _MESH_GROUND, lengths)
                 if any(abs(e.leg_length_m - l) > 1e-9 for e, l in zip(ant.elements, lengths)):
                     raise BuildError("a leg is too short to reach its end height")
                 meshes[lengths] = mesh_for(ant)
@@ -301,14 +305,20 @@ def _from_constants(eps_r: float, sigma: float) -> np.ndarray:
 
 def _fit(cases: Sequence[_Case], p0: np.ndarray, robust: bool) -> np.ndarray:
     """Least squares of the fractional dip errors (scaled by DIP_FRACTION) plus the weak prior,
-    over normalised (log eps_r, log sigma) in [0, 1]^2 (scipy trust-region reflective)."""
+    over normalised (log eps_r, log sigma) in [0, 1]^2 (scipy trust-region reflective).
+
+    Over the exact (Sommerfeld) ground the resonance is not monotonic in the constants, so the
+    search starts from the best of the assumed ground and the P.527 classes (lowest objective).
+    """
     dip = np.array([c.obs.dip_hz for c in cases])
 
     def fun(p: np.ndarray) -> np.ndarray:
         r = dip / _model_hz(cases, _to_ground(p)) - 1.0
         return np.concatenate([r / DIP_FRACTION, (p - p0) / PRIOR_WIDTH])
 
-    res = least_squares(fun, p0, bounds=(0.0, 1.0), diff_step=1e-3, x_scale=0.1,
+    starts = [p0] + [_from_constants(g.eps_r, g.sigma) for g in GROUND_CLASSES.values()]
+    start = min(starts, key=lambda p: float(np.sum(fun(p) ** 2)))
+    res = least_squares(fun, start, bounds=(0.0, 1.0), diff_step=1e-3, x_scale=0.1,
                         loss="soft_l1" if robust else "linear", f_scale=3.0, xtol=1e-6)
     return np.asarray(res.x)
 

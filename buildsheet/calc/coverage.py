@@ -322,9 +322,11 @@ class NvisFigures:
     share_above_60 / share_above_45: fractions of the power radiated into the upper half space
     that leave above 60 / 45 degrees elevation; main_lobe_elevation_deg and main_lobe_gain_dbi:
     the strongest direction in the upper half space (elevation 0-90); ground_loss_share: share
-    of the input power, after conductor loss, not radiated into the upper half space, taken from
-    the far-field power balance (absorbed / (up + absorbed)): a lower bound at NVIS heights,
-    since near-field ground loss is not modelled (REFERENCES 7.2 caveat 2).
+    of the input power, after conductor loss, not radiated into the upper half space
+    ((P_in - P_conductor - P_up) / (P_in - P_conductor)); efficiency: P_up / P_in. With currents
+    and input power from an exact-ground (Sommerfeld) solve both include the near-field ground
+    loss; with sinusoidal currents the input power is the far-field balance (up + plane-wave
+    absorption), a lower bound on the loss at NVIS heights (REFERENCES 7.2 caveat 2).
     """
 
     frequency_hz: float
@@ -335,10 +337,11 @@ class NvisFigures:
     main_lobe_elevation_deg: float
     main_lobe_gain_dbi: float
     ground_loss_share: float
+    efficiency: float = 1.0
 
 
 def nvis_figures(sc: SegmentCurrents, ground: Ground, az_step_deg: float = 5.0) -> NvisFigures:
-    """Zenith gain, high-angle power shares, main lobe and ground-loss share for one band."""
+    """Zenith gain, high-angle power shares, main lobe, ground loss and efficiency for one band."""
     budget = power_budget(sc, ground)
     elev = np.arange(0.0, 90.0 + 0.5, 1.0)
     az = np.arange(0.0, 360.0, az_step_deg)
@@ -346,7 +349,8 @@ def nvis_figures(sc: SegmentCurrents, ground: Ground, az_step_deg: float = 5.0) 
     g = gain_dbi(sc, ground, e2, a2)
     i_best = np.unravel_index(int(np.argmax(g)), g.shape)
     zenith = float(gain_dbi(sc, ground, np.array([90.0]), np.array([0.0]))[0])
-    total = budget.up_w + budget.absorbed_w
+    net = sc.input_power_w - sc.conductor_loss_w
+    lost = 0.0 if ground.kind != "real" else min(max(net - budget.up_w, 0.0), net)
     return NvisFigures(
         frequency_hz=sc.frequency_hz,
         ground_title=ground.title,
@@ -355,7 +359,8 @@ def nvis_figures(sc: SegmentCurrents, ground: Ground, az_step_deg: float = 5.0) 
         share_above_45=budget.up_above_45_w / budget.up_w,
         main_lobe_elevation_deg=float(elev[i_best[0]]),
         main_lobe_gain_dbi=float(g[i_best]),
-        ground_loss_share=budget.absorbed_w / total,
+        ground_loss_share=lost / net,
+        efficiency=min(budget.up_w / sc.input_power_w, 1.0),
     )
 
 
@@ -436,10 +441,19 @@ def height_advice(
     """
     lam = C0 / frequency_hz
     h = np.linspace(low_wavelengths * lam, high_wavelengths * lam, steps)
-    g = zenith_sweep(currents_at_height, ground, h)
+    return advice_from_sweep(h, zenith_sweep(currents_at_height, ground, h), frequency_hz,
+                             tolerance_db)
+
+
+def advice_from_sweep(heights_m: np.ndarray, gains_dbi: np.ndarray, frequency_hz: float,
+                      tolerance_db: float = 1.0) -> HeightAdvice:
+    """Best height and the ``tolerance_db`` window from a zenith-gain sweep already computed
+    (heights in m ascending, gains in dBi)."""
+    h, g = np.asarray(heights_m, dtype=float), np.asarray(gains_dbi, dtype=float)
     i = int(np.argmax(g))
     lo, hi = _range_within(h, g, i, tolerance_db)
-    return HeightAdvice(frequency_hz, lam, h, g, float(h[i]), float(g[i]), lo, hi, tolerance_db)
+    return HeightAdvice(frequency_hz, C0 / frequency_hz, h, g, float(h[i]), float(g[i]), lo, hi,
+                        tolerance_db)
 
 
 @dataclass(frozen=True)

@@ -34,7 +34,7 @@ Distributed loading z' (insulation after Richmond & Newman 1976, skin effect) co
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from functools import lru_cache
 
 import numpy as np
@@ -43,7 +43,7 @@ from buildsheet.constants import C0, ETA0
 from buildsheet.em.currents import SegmentCurrents
 from buildsheet.em.deployed import DeployedAntenna, Structure, build_structure, highest_frequency
 from buildsheet.em import sommerfeld
-from buildsheet.em.ground import complex_permittivity
+from buildsheet.em.ground import Ground, complex_permittivity
 from buildsheet.em.loading import conductor_impedance_per_m, series_impedance_per_m
 from buildsheet.errors import BuildError
 
@@ -70,9 +70,9 @@ class HalfSpacePairs:
     tables: sommerfeld.TableStore
 
 
-def _half_space_pairs(p0: np.ndarray, p1: np.ndarray, t: np.ndarray,
-                      tables: sommerfeld.TableStore) -> HalfSpacePairs:
-    """Midpoint-pair geometry, the covering table grid and its interpolation weights."""
+def _half_space_pairs(p0: np.ndarray, p1: np.ndarray, t: np.ndarray, tables: sommerfeld.TableStore,
+                      domain: sommerfeld.TableDomain | None) -> HalfSpacePairs:
+    """Midpoint-pair geometry, the covering table grid (``domain`` if given) and its weights."""
     c = (p0 + p1) / 2.0
     d = c[:, None, :2] - c[None, :, :2]                          # rho_vec, observation - source
     rho = np.hypot(d[..., 0], d[..., 1])
@@ -82,8 +82,8 @@ def _half_space_pairs(p0: np.ndarray, p1: np.ndarray, t: np.ndarray,
                          "needs every wire above it")
     cross = t[:, None, 2, None] * t[None, :, :2] - t[None, :, 2, None] * t[:, None, :2]
     beta = np.einsum("ijk,ijk->ij", cross, d)
-    grid = sommerfeld.table_grid(sommerfeld.covering_domain(float(rho.max()), float(zeta.min()),
-                                                            float(zeta.max())))
+    grid = sommerfeld.table_grid(domain or sommerfeld.covering_domain(
+        float(rho.max()), float(zeta.min()), float(zeta.max())))
     return HalfSpacePairs(rho, zeta, beta, grid,
                           sommerfeld.interpolation_matrix(grid, rho.ravel(), zeta.ravel()), tables)
 
@@ -306,11 +306,13 @@ def _loading_pattern(cols: np.ndarray, signs: np.ndarray,
     return r, c, w, s
 
 
-def build_mesh(structure: Structure, tables: sommerfeld.TableStore | None = None) -> Mesh:
+def build_mesh(structure: Structure, tables: sommerfeld.TableStore | None = None,
+               domain: sommerfeld.TableDomain | None = None) -> Mesh:
     """Segments, basis and frequency-independent integrals of ``structure``.
 
     ``tables``: where Sommerfeld kernel tables are kept (share one across the meshes of a
-    solve; a fresh store if None).
+    solve; a fresh store if None). ``domain``: the table domain to use (it must cover the
+    structure; several meshes on one domain share their tables), else one fitted to it.
     """
     p0, p1, t, length, radius, owner = _segments(structure)
     T, D, ports, cols, signs, segs, divs = _basis(structure, length)
@@ -322,7 +324,7 @@ def build_mesh(structure: Structure, tables: sommerfeld.TableStore | None = None
         mirror = np.array([1.0, 1.0, -1.0])
         static_img = _static_integrals(p0, t, length, a2, p0 * mirror, t * mirror)
         if _is_sommerfeld(structure):
-            half_space = _half_space_pairs(p0, p1, t, tables or sommerfeld.TableStore())
+            half_space = _half_space_pairs(p0, p1, t, tables or sommerfeld.TableStore(), domain)
         else:
             dist_img = _smooth_distances(p0, t, length, a2, p0 * mirror, t * mirror)
     pair = _pair_geometry(p0, p1, t)
@@ -331,6 +333,29 @@ def build_mesh(structure: Structure, tables: sommerfeld.TableStore | None = None
     return Mesh(structure, p0, p1, t, length, radius, owner, T, D, ports, cols, signs, segs, divs,
                 static, dist, static_img, dist_img, static_galerkin, pair,
                 _loading_pattern(cols, signs, segs), half_space)
+
+
+def with_ground(mesh: Mesh, ground: Ground) -> Mesh:
+    """The same mesh over another ground: the geometry integrals are kept, the image parts the
+    new ground needs are added (a Sommerfeld mesh keeps its table grid and store)."""
+    structure = replace(mesh.structure, ground=ground)
+    if ground.kind == "free_space":
+        return replace(mesh, structure=structure, static_img=None, dist_img=None, half_space=None)
+    a2 = (mesh.radius[:, None] ** 2 + mesh.radius[None, :] ** 2) / 2.0
+    mirror = np.array([1.0, 1.0, -1.0])
+    static_img = mesh.static_img
+    if static_img is None:
+        static_img = _static_integrals(mesh.p0, mesh.t, mesh.length, a2, mesh.p0 * mirror,
+                                       mesh.t * mirror)
+    half_space, dist_img = mesh.half_space, mesh.dist_img
+    if _is_sommerfeld(structure):
+        if half_space is None:
+            half_space = _half_space_pairs(mesh.p0, mesh.p1, mesh.t, sommerfeld.TableStore(), None)
+    elif dist_img is None:
+        dist_img = _smooth_distances(mesh.p0, mesh.t, mesh.length, a2, mesh.p0 * mirror,
+                                     mesh.t * mirror)
+    return replace(mesh, structure=structure, static_img=static_img, dist_img=dist_img,
+                   half_space=half_space if _is_sommerfeld(structure) else None)
 
 
 def _is_sommerfeld(structure: Structure) -> bool:
