@@ -430,6 +430,7 @@ def calibrated_prediction(design: AntennaDesign, calibration: Calibration) -> De
         band_legs_m=tuple((e.leg_length_m * (1 - u), e.leg_length_m * (1 + u)) for e in elements),
         notes=base.notes + tuple(f"excluded {o.element_id}: {o.reason}" for o in calibration.outliers),
         calibrated_from=calibration.source_ids,
+        ground_model=base.ground_model,
     )
 
 

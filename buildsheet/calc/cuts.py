@@ -61,19 +61,25 @@ class DesignCuts:
     warnings: tuple[str, ...]
 
 
+#: The default trim allowance covers the prediction band (its half-width, the combined
+#: ground, mesh and model uncertainty) with this margin.
+TRIM_BAND_MARGIN: float = 1.5
+
+
 def trim_fraction_for(design: AntennaDesign, spread: float | None, calibrated: bool = False) -> float:
     """Trim allowance as a fraction of the leg.
 
     A calibrated design's allowance is its residual uncertainty (never below the spec's
-    minimum). Otherwise an explicit spec value wins, then the model spread across ground models
-    (never below the minimum); without a spread the default (3 %) applies.
+    minimum). Otherwise an explicit spec value wins, then the prediction band ``spread`` (the
+    half-width of the resonant-leg uncertainty) times TRIM_BAND_MARGIN, never below the minimum;
+    without a band the default (3 %) applies.
     """
     a = design.allowances
     if calibrated and spread is not None:
         return max(a.min_trim_fraction, spread)
     if a.trim_explicit or spread is None:
         return a.trim_fraction if a.trim_fraction is not None else 0.0
-    return max(a.min_trim_fraction, spread)
+    return max(a.min_trim_fraction, TRIM_BAND_MARGIN * spread)
 
 
 def element_cut(design: AntennaDesign, element: ElementSpec, prediction: ElementPrediction,

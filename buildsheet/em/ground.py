@@ -52,6 +52,43 @@ GROUND_CLASSES: dict[str, GroundClass] = {
 }
 
 
+#: The documented range of each class: the poorer and the better neighbouring curve of the
+#: ITU-R P.527-3 / P.368 ladder (REFERENCES 7.1, values from memory): very dry 3/0.1 mS/m,
+#: dry 7/0.3, medium dry 15/1, land 22/3, wet 30/10, land 40/30 mS/m; fresh water
+#: 80 with 1-10 mS/m; sea low salinity 80/1 S/m to average 70/5 S/m. "Average ground" (common
+#: practice) spans dry to land-22 in permittivity and medium dry to wet in conductivity.
+#: (eps_r, sigma S/m) of the (poorer, better) end.
+GROUND_RANGES: dict[str, tuple[tuple[float, float], tuple[float, float]]] = {
+    "very_dry": ((3.0, 1e-4), (7.0, 3e-4)),
+    "medium_dry": ((7.0, 3e-4), (22.0, 3e-3)),
+    "average": ((7.0, 1e-3), (22.0, 1e-2)),
+    "wet": ((22.0, 3e-3), (40.0, 3e-2)),
+    "fresh_water": ((80.0, 1e-3), (80.0, 1e-2)),
+    "sea": ((80.0, 1.0), (70.0, 5.0)),
+}
+#: A measured ground is taken as known to this fraction in each constant (from memory: a
+#: simple probe measurement of soil at HF is good to some tens of percent).
+MEASURED_TOLERANCE: float = 0.25
+
+
+def ground_range(ground: Ground) -> tuple[Ground, Ground] | None:
+    """The (poorer, better) grounds bounding ``ground``'s class, or None (free space, perfect).
+
+    Classes: GROUND_RANGES; a measured or fitted ground: +-MEASURED_TOLERANCE in each constant.
+    """
+    if ground.kind != "real" or ground.ground_class is None:
+        return None
+    g = ground.ground_class
+    if g.key in GROUND_RANGES:
+        lo, hi = GROUND_RANGES[g.key]
+    else:
+        t = MEASURED_TOLERANCE
+        lo, hi = (g.eps_r * (1 - t), g.sigma * (1 - t)), (g.eps_r * (1 + t), g.sigma * (1 + t))
+    return tuple(Ground("real", GroundClass(f"{g.key}_{end}", f"{g.title} ({end} end)", e, s),
+                        ground.model)
+                 for end, (e, s) in (("poorer", lo), ("better", hi)))  # type: ignore[return-value]
+
+
 def measured_class(eps_r: float, sigma: float) -> GroundClass:
     """A ground measured on site: relative permittivity ``eps_r``, conductivity ``sigma`` S/m."""
     return GroundClass("measured", f"measured ground (permittivity {eps_r:g}, "

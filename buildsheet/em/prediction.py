@@ -36,6 +36,24 @@ class ElementPrediction:
 
 
 @dataclass(frozen=True)
+class Uncertainty:
+    """Resonant-leg uncertainty of one element: half-widths as fractions of the leg.
+
+    ground: the site ground class's documented range; mesh: Richardson estimate of the
+    remaining discretisation error; model: stated thin-wire and coating figure; total: root
+    sum of squares (the prediction band is leg * (1 -+ total)).
+    """
+
+    ground: float
+    mesh: float
+    model: float
+
+    @property
+    def total(self) -> float:
+        return float(np.sqrt(self.ground**2 + self.mesh**2 + self.model**2))
+
+
+@dataclass(frozen=True)
 class DesignPrediction:
     """Predicted resonances of all elements of one design, with the model's own notes."""
 
@@ -43,10 +61,12 @@ class DesignPrediction:
     elements: tuple[ElementPrediction, ...]
     model_note: str
     ground_title: str
-    spread: tuple[float, ...] = ()  # per element, fractional spread across ground models
+    spread: tuple[float, ...] = ()  # per element, band half-width (fraction) the trim covers
     band_legs_m: tuple[tuple[float, float], ...] = ()  # per element, (min, max) leg length
     notes: tuple[str, ...] = ()
     calibrated_from: tuple[str, ...] = ()  # element IDs of the site calibration, if any
+    uncertainty: tuple[Uncertainty, ...] = ()  # per element, the parts of the band
+    ground_model: str = ""  # how the ground entered the model (Ground.model_title)
 
     def element(self, key: str) -> ElementPrediction:
         return next(e for e in self.elements if e.key == key)
@@ -96,4 +116,5 @@ def closed_form_prediction(design: AntennaDesign) -> DesignPrediction:
                                      tuple(freqs.tolist()), tuple(s.tolist()),
                                      bandwidth_2to1(freqs, s, f), float(closed_form.swr(z0))))
     return DesignPrediction("closed_form", tuple(out),
-                            "induced-EMF closed form: straight dipole in free space", "free space")
+                            "induced-EMF closed form: straight dipole in free space", "free space",
+                            ground_model="none (free-space closed form)")

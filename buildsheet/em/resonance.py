@@ -20,7 +20,7 @@ derivative.
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from functools import lru_cache
 
 import numpy as np
@@ -36,8 +36,8 @@ from buildsheet.em.deployed import (
     wavelength,
     with_leg_lengths,
 )
-from buildsheet.em.ground import FREE_SPACE, PERFECT_GROUND, Ground
-from buildsheet.em.mom import Mesh, build_mesh, describe, mesh_for, port_impedances
+from buildsheet.em.ground import Ground, ground_range
+from buildsheet.em.mom import Mesh, build_mesh, describe, mesh_for, port_impedances, with_ground
 from buildsheet.em.sommerfeld import TableStore
 from buildsheet.errors import BuildError
 
@@ -75,6 +75,7 @@ class ElementSolution:
     bandwidth_2to1_hz: tuple[float, float] | None  # SWR = 2 edges around design f, Hz
     slope_m_per_hz: float                # d(leg length)/d(resonant frequency), m/Hz (negative)
     swr_at_design: float
+    dx_dl_ohm_per_m: float = float("nan")  # d(feed reactance)/d(this leg), ohm/m, at design f
 
 
 @dataclass(frozen=True, eq=False)
@@ -88,29 +89,59 @@ class AntennaSolution:
     model_note: str
     z0: float
     iterations: int
+    mesh: Mesh | None = None             # the solved antenna's mesh
 
     def element(self, key: str) -> ElementSolution:
         return next(e for e in self.elements if e.key == key)
 
 
+#: Stated model uncertainty of a resonant leg, fraction: the thin-wire delta-gap model against
+#: independent references (about 0.1 %, REFERENCES 5.3 suggested tolerance), plus for insulated
+#: wire the coating model and jacket permittivity (PVC 3-4.5 moves the shortening by about
+#: +-0.12 %, REFERENCES 6.3).
+MODEL_UNCERTAINTY_BARE: float = 0.001
+MODEL_UNCERTAINTY_COATED: float = 0.002
+#: Richardson order of the resonant leg in the segment length (observed: the delta-gap drift
+#: makes the error about proportional to the segment length; bench/em.py prints the table).
+RICHARDSON_ORDER: float = 1.0
+
+
 @dataclass(frozen=True, eq=False)
 class ElementBand:
-    """Spread of one element's resonant leg length across ground models."""
+    """Resonant leg of one element with its uncertainty parts (half-widths, fractions of it).
+
+    leg_m: Richardson-extrapolated leg (mesh error removed); leg_mesh_m: on the default mesh.
+    ground: the class's documented range (neighbouring P.527 curves); mesh: Richardson
+    estimate of what remains; model: the stated figure. total: their root sum of squares.
+    """
 
     key: str
-    min_leg_m: float
-    max_leg_m: float
-    spread: float            # (max - min) / mean of the three solutions, fraction
+    leg_m: float
+    leg_mesh_m: float
+    ground: float
+    mesh: float
+    model: float
+
+    @property
+    def total(self) -> float:
+        return float(np.sqrt(self.ground**2 + self.mesh**2 + self.model**2))
+
+    @property
+    def min_leg_m(self) -> float:
+        return self.leg_m * (1.0 - self.total)
+
+    @property
+    def max_leg_m(self) -> float:
+        return self.leg_m * (1.0 + self.total)
 
 
 @dataclass(frozen=True, eq=False)
 class PredictionBand:
-    """Resonance solved over free space, perfect ground and the antenna's own ground."""
+    """The site-ground solution and every element's leg with its uncertainty parts."""
 
     elements: tuple[ElementBand, ...]
-    free_space: AntennaSolution
-    perfect: AntennaSolution
     own: AntennaSolution
+    ground_range: tuple[Ground, Ground] | None
 
 
 def _mesh(antenna: DeployedAntenna, lengths: np.ndarray, f_seg: float,
@@ -351,19 +382,49 @@ def solve_resonance(antenna: DeployedAntenna, *, z0: float = 50.0, n_swr_points:
             key=el.key, leg_length_m=float(L[e]), z_feed=complex(z_design[e]),
             frequencies_hz=freqs, swr=s,
             bandwidth_2to1_hz=_bandwidth(mesh, f[e], lo, hi, curve, z0, s0),
-            slope_m_per_hz=float(-dxdf / dxdl[e]), swr_at_design=s0))
+            slope_m_per_hz=float(-dxdf / dxdl[e]), swr_at_design=s0,
+            dx_dl_ohm_per_m=float(dxdl[e])))
     return AntennaSolution(solved, tuple(results), antenna.ground, tuple(notes), describe(mesh),
-                           z0, iterations)
+                           z0, iterations, mesh)
 
 
-def prediction_band(antenna: DeployedAntenna) -> PredictionBand:
-    """Resonant leg lengths over free space, perfect ground and the antenna's own ground."""
-    sols = [solve_resonance(replace(antenna, ground=g))
-            for g in (FREE_SPACE, PERFECT_GROUND, antenna.ground)]
-    bands = []
-    for i, el in enumerate(antenna.elements):
-        legs = np.array([s.elements[i].leg_length_m for s in sols])
-        bands.append(ElementBand(el.key, float(legs.min()), float(legs.max()),
-                                 float((legs.max() - legs.min()) / legs.mean())))
-    return PredictionBand(tuple(bands), *sols)
+def _leg_shift(mesh: Mesh, sol: AntennaSolution) -> np.ndarray:
+    """Linearised change of each resonant leg when ``mesh`` replaces the solved one, m:
+    -X_e(f_e) / (dX_e/dL_e), X on ``mesh`` at each design frequency (zero on the solved mesh)."""
+    f = np.array([e.design_frequency_hz for e in sol.antenna.elements])
+    x = port_impedances(mesh, f)[:, 0, 0].imag
+    return -x / np.array([e.dx_dl_ohm_per_m for e in sol.elements])
 
+
+def prediction_band(antenna: DeployedAntenna, tables: TableStore | None = None) -> PredictionBand:
+    """Resonant legs over the antenna's own ground with their uncertainty parts.
+
+    Ground: the legs over the poorer and the better end of the ground class's range
+    (:func:`buildsheet.em.ground.ground_range`), each by one linearised step from the solved
+    antenna. Mesh: the same step on a mesh of half the segment length, then Richardson
+    extrapolation (order RICHARDSON_ORDER) to zero segment length; what remains is estimated as
+    the extrapolation's own step. Model: MODEL_UNCERTAINTY_* (coated if any leg is insulated).
+    """
+    tables = tables or TableStore()
+    sol = solve_resonance(antenna, tables=tables)
+    assert sol.mesh is not None
+    L = np.array([e.leg_length_m for e in sol.elements])
+    f_seg = highest_frequency(antenna)
+    fine = build_mesh(build_structure(sol.antenna, f_seg,
+                                      segment_wavelengths=antenna.segment_wavelengths / 2.0),
+                      tables)
+    d_fine = _leg_shift(fine, sol)
+    step = d_fine / (1.0 - 0.5**RICHARDSON_ORDER)          # L* - L = (L_h/2 - L_h) / (1 - 2^-p)
+    extrapolated = L + step
+    mesh_part = np.abs(step - d_fine) / extrapolated       # |L* - L_h/2|
+    grounds = ground_range(antenna.ground)
+    ground_part = np.zeros_like(L)
+    if grounds is not None:
+        shifts = np.stack([_leg_shift(with_ground(sol.mesh, g), sol) for g in grounds])
+        ground_part = np.max(np.abs(shifts), axis=0) / extrapolated
+    coated = any(e.wire.insulated for e in antenna.elements)
+    model = MODEL_UNCERTAINTY_COATED if coated else MODEL_UNCERTAINTY_BARE
+    bands = tuple(ElementBand(el.key, float(extrapolated[i]), float(L[i]), float(ground_part[i]),
+                              float(mesh_part[i]), model)
+                  for i, el in enumerate(antenna.elements))
+    return PredictionBand(bands, sol, grounds)

@@ -5,8 +5,9 @@
 the site's ground, all elements solved jointly (buildsheet.em.resonance).
 
 The design's elements become ElementGeometry (start lengths from the closed form); the joint
-resonance is solved over free space, perfect ground and the site's ground, and the site-ground
-solution is the prediction, with the spread of the three as its uncertainty.
+resonance is solved over the site's ground, the legs are extrapolated to zero segment length
+(Richardson), and the prediction band combines the ground class's range, the mesh estimate and
+the model's stated figure (buildsheet.em.resonance.prediction_band).
 """
 
 from __future__ import annotations
@@ -20,6 +21,7 @@ from buildsheet.em.prediction import (
     DesignPrediction,
     ElementPrediction,
     ModelName,
+    Uncertainty,
     closed_form_prediction,
 )
 from buildsheet.em.resonance import prediction_band
@@ -47,16 +49,18 @@ def predict_mom(design: AntennaDesign, ground: Ground) -> DesignPrediction:
     band = prediction_band(deployed_antenna(design, ground))
     own = band.own
     elements = tuple(
-        ElementPrediction(s.key, "mom", s.leg_length_m, s.z_feed, s.slope_m_per_hz,
+        ElementPrediction(s.key, "mom", b.leg_m, s.z_feed, s.slope_m_per_hz,
                           tuple(float(f) for f in s.frequencies_hz), tuple(float(x) for x in s.swr),
                           s.bandwidth_2to1_hz, s.swr_at_design)
-        for s in own.elements
+        for s, b in zip(own.elements, band.elements, strict=True)
     )
     return DesignPrediction(
         "mom", elements, own.model_note, ground.title,
-        spread=tuple(b.spread for b in band.elements),
+        spread=tuple(b.total for b in band.elements),
         band_legs_m=tuple((b.min_leg_m, b.max_leg_m) for b in band.elements),
         notes=tuple(dict.fromkeys(own.notes)),
+        uncertainty=tuple(Uncertainty(b.ground, b.mesh, b.model) for b in band.elements),
+        ground_model=ground.model_title,
     )
 
 

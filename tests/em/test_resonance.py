@@ -129,12 +129,51 @@ def test_low_dipole_over_perfect_ground_resonates_shorter():
 
 
 def test_prediction_band():
+    # Issue 10 part 4: the band has ground, mesh and model parts; the ground part comes from the
+    # class's range between neighbouring ITU-R P.527 curves (REFERENCES 7.1) and vanishes over
+    # perfect ground, which has no range.
     band = prediction_band(fan(real_ground("medium_dry")))
     for i, b in enumerate(band.elements):
         own = band.own.elements[i].leg_length_m
-        assert b.min_leg_m <= own <= b.max_leg_m
-        assert 0 < b.spread < 0.1
-        assert band.perfect.elements[i].leg_length_m < band.free_space.elements[i].leg_length_m
+        assert b.leg_mesh_m == own
+        assert b.min_leg_m < b.leg_m < b.max_leg_m
+        assert 0 < b.ground < 0.02 and 0 < b.mesh < 2e-3 and b.model > 0
+        assert b.total >= max(b.ground, b.mesh, b.model)
+        # Richardson: zero segment length lies beyond the default mesh from the coarse side
+        # (legs come out long on coarse meshes, issue 10)
+        assert b.leg_m < own
+    pec = prediction_band(fan(PERFECT_GROUND, keys=("40m",), bearings=(0.0,)))
+    assert pec.elements[0].ground == 0.0 and pec.ground_range is None
+
+
+def test_richardson_estimates_agree():
+    # Richardson extrapolation (L. F. Richardson, Phil. Trans. R. Soc. A 210, 1911): the
+    # estimate from segment lengths (h, h/2) and from (h/2, h/4) agree within the issue's
+    # 0.02 % when the order is right; a flat 40 m dipole keeps the finest mesh cheap.
+    w = BUILTIN_WIRES["awg14-bare"]
+    ant = flat(7.1e6, w, real_ground("medium_dry"), height=8.0)
+    a = prediction_band(ant).elements[0].leg_m
+    b = prediction_band(replace(ant, segment_wavelengths=ant.segment_wavelengths / 2)).elements[0]
+    assert abs(a / b.leg_m - 1) < 2e-4
+
+
+def test_default_trim_covers_the_band():
+    # Issue 10 part 4: the default trim allowance covers the prediction band with a stated
+    # margin and is never below min_trim.
+    from buildsheet.calc.cuts import TRIM_BAND_MARGIN, trim_fraction_for
+    from buildsheet.spec.reader import load_spec
+
+    spec = load_spec(_demo_path())
+    for d in spec.designs:
+        for u in (0.001, 0.004, 0.02):
+            t = trim_fraction_for(d, u)
+            assert t >= TRIM_BAND_MARGIN * u - 1e-15 and t >= d.allowances.min_trim_fraction
+
+
+def _demo_path():
+    from importlib.resources import files
+
+    return files("buildsheet") / "data" / "demo.toml"
 
 
 def test_unbracketable_frequency_is_error():
