@@ -117,3 +117,29 @@ permittivity = 2.3
 def test_record_url_template_checked(url, words):
     msg = _errors(GOOD.replace('paper = "letter"', f'paper = "letter"\nrecord_url = "{url}"'))
     assert "event.record_url" in msg and words in msg
+
+
+def test_site_ground_class_measured_and_model():
+    # Issue 10 part 5: "average ground" (permittivity 13, 5 mS/m; common practice), a measured
+    # ground from [site] permittivity and conductivity, and the ground model by name.
+    d = read_spec_text(GOOD + '\n[site]\nground = "average"\n', "club.toml")
+    assert d.site.ground.ground_class.eps_r == 13.0 and d.site.ground.model == "sommerfeld"
+    d = read_spec_text(GOOD + '\n[site]\npermittivity = 12\nconductivity = "8 mS/m"\n',
+                       "club.toml")
+    g = d.site.ground.ground_class
+    assert (g.eps_r, g.sigma) == (12.0, 8e-3) and "measured" in d.site.ground.title
+    d = read_spec_text(GOOD + '\n[site]\nground = "wet"\nground_model = "fresnel-image"\n',
+                       "club.toml")
+    assert d.site.ground.model == "fresnel-image"
+
+
+@pytest.mark.parametrize("site,words", [
+    ('permittivity = 12', ["site.conductivity", "missing"]),
+    ('permittivity = 12\nconductivity = "8 ohm"', ["site.conductivity", "mS/m"]),
+    ('permittivity = 0.5\nconductivity = 0.01', ["site.permittivity", "out of range"]),
+    ('ground = "wet"\npermittivity = 12\nconductivity = 0.01', ["site.ground", "not both"]),
+    ('ground_model = "exact"', ["site.ground_model", "sommerfeld", "fresnel-image"]),
+])
+def test_bad_site_ground(site, words):
+    text = _errors(GOOD + f"\n[site]\n{site}\n")
+    assert "club.toml" in text and all(w in text for w in words), text

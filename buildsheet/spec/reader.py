@@ -18,7 +18,16 @@ from typing import Any
 from buildsheet.calc.exposure import DUTY_FACTORS
 from buildsheet.calc.feedline import COAX_TYPES
 from buildsheet.constants import C0
-from buildsheet.em.ground import FREE_SPACE, GROUND_CLASSES, PERFECT_GROUND, real_ground
+from buildsheet.em.ground import (
+    DEFAULT_GROUND_MODEL,
+    FREE_SPACE,
+    GROUND_CLASSES,
+    GROUND_MODELS,
+    PERFECT_GROUND,
+    Ground,
+    measured_class,
+    real_ground,
+)
 from buildsheet.errors import Problem, SpecError
 from buildsheet.spec import bands
 from buildsheet.spec.design import (
@@ -41,7 +50,7 @@ from buildsheet.spec.wires import BUILTIN_WIRES, MATERIALS, WireType, awg_diamet
 _TOP_KEYS = ("event", "site", "wires", "designs", "kits", "labels", "exposure", "stock")
 _EVENT_KEYS = ("name", "club", "date", "region", "units", "paper", "record_url", "layout",
                "station_url")
-_SITE_KEYS = ("ground", "width", "depth")
+_SITE_KEYS = ("ground", "width", "depth", "permittivity", "conductivity", "ground_model")
 _WIRE_KEYS = ("title", "gauge", "diameter", "material", "stranding", "insulation",
               "permittivity", "cladding_fraction")
 _DESIGN_KEYS = ("title", "kind", "mount", "apex_height", "end_height", "wire", "elements",
@@ -173,6 +182,60 @@ def _metres(value: float) -> str:
 def _either(value: Any, default: Any) -> Any:
     """``value`` unless it is None (a zero or empty value stays as given)."""
     return default if value is None else value
+
+
+def _conductivity(value: Any) -> float:
+    """Ground conductivity: a number in S/m, or a string "5 mS/m" / "0.005 S/m", S/m."""
+    if isinstance(value, bool):
+        raise ValueError(f"expected a conductivity such as \"5 mS/m\", got {value!r}")
+    if isinstance(value, (int, float)):
+        number, scale = float(value), 1.0
+    elif isinstance(value, str):
+        text = value.strip().replace(" ", "")
+        for unit, factor in (("mS/m", 1e-3), ("uS/m", 1e-6), ("S/m", 1.0)):
+            if text.endswith(unit):
+                number, scale = float(text[: -len(unit)]), factor
+                break
+        else:
+            raise ValueError(f"{value!r}: give a conductivity in S/m or mS/m, e.g. \"5 mS/m\"")
+    else:
+        raise ValueError(f"expected a conductivity such as \"5 mS/m\", got {value!r}")
+    sigma = number * scale
+    if not (0.0 <= sigma <= 10.0) or not math.isfinite(sigma):
+        raise ValueError(f"{value!r} is out of range; allowed 0 to 10 S/m")
+    return sigma
+
+
+def _read_ground(r: _Reader, st: Mapping[str, Any]) -> Ground:
+    """The site ground: a named class (site.ground), or a measured ground (site.permittivity
+    with site.conductivity), entered by site.ground_model (default: the Sommerfeld half-space)."""
+    model = r.choice(st.get("ground_model", DEFAULT_GROUND_MODEL), "site.ground_model",
+                     GROUND_MODELS) or DEFAULT_GROUND_MODEL
+    measured = [k for k in ("permittivity", "conductivity") if k in st]
+    if measured:
+        if "ground" in st:
+            r.bad("site.ground", "give either site.ground or site.permittivity with "
+                  "site.conductivity (a measured ground), not both")
+        if len(measured) == 1:
+            other = "conductivity" if measured[0] == "permittivity" else "permittivity"
+            r.bad(f"site.{other}", f"missing; a measured ground needs site.{other} too")
+            return FREE_SPACE
+        eps = r.convert(st["permittivity"], "site.permittivity", values.number(float, 1.0, 100.0))
+        sigma = r.convert(st["conductivity"], "site.conductivity", _conductivity)
+        if eps is None or sigma is None:
+            return FREE_SPACE
+        return Ground("real", measured_class(float(eps), float(sigma)), model)
+    ground_key = r.choice(st.get("ground", "medium_dry"), "site.ground", _GROUNDS)
+    if ground_key in GROUND_CLASSES:
+        return real_ground(ground_key, model)
+    return {"free_space": FREE_SPACE, "perfect": PERFECT_GROUND}.get(ground_key or "", FREE_SPACE)
+
+
+def _power(text: Any) -> float:
+    m = re.fullmatch(r"\s*(\d+(?:\.\d*)?)\s*(W|kW)\s*", str(text)) if isinstance(text, str) else None
+    if not m:
+        raise ValueError(f"expected a power like \"100 W\", got {text!r}")
+    return float(m.group(1)) * (1000.0 if m.group(2) == "kW" else 1.0)
 
 
 def _read_wire(r: _Reader, key: str, table: Any) -> WireType | None:
@@ -408,9 +471,7 @@ def read_spec_text(text: str, source: str = "spec.toml") -> Design:
                   station)
 
     st = r.keys(raw.get("site", {}), "site", _SITE_KEYS)
-    ground_key = r.choice(st.get("ground", "medium_dry"), "site.ground", _GROUNDS)
-    ground = {"free_space": FREE_SPACE, "perfect": PERFECT_GROUND}.get(
-        ground_key or "", real_ground(ground_key) if ground_key in GROUND_CLASSES else FREE_SPACE)
+    ground = _read_ground(r, st)
     site = Site(ground, r.length(st["width"], "site.width") if "width" in st else None,
                 r.length(st["depth"], "site.depth") if "depth" in st else None)
 
