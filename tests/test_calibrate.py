@@ -282,3 +282,24 @@ def test_json_round_trip_and_no_observations(design: AntennaDesign,
     with pytest.raises(BuildError, match="malformed"):
         cal.calibration_from_json({"design_key": "x"})
     assert np.isfinite(calibration.ground.eps_r)
+
+
+def test_recorded_swr_enters_the_fit(design: AntennaDesign) -> None:
+    """Issue 10 part 7: where an SWR at the dip is recorded, the fit also matches the feed
+    resistance (which carries the ground loss). Synthetic readings over the TRUE (wet) ground:
+    SWR = max(R/50, 50/R) at the dip (Pozar, Microwave Engineering, sec. 2.3)."""
+    legs = legs_of(design)
+    obs = observe(design, "K01", legs, ("75m",))
+    ant = deployed_antenna(design, TRUE, legs)
+    r_true = feed_impedance(ant, obs[0].dip_hz)[0].real
+    swr_true = max(r_true / 50.0, 50.0 / r_true)
+    with_swr = [replace(obs[0], swr=swr_true)]
+    c = cal.fit_site(design, ASSUMED, with_swr)
+    fitted = deployed_antenna(design, c.fitted_ground(), legs)
+    r_fit = feed_impedance(fitted, obs[0].dip_hz)[0].real
+    assert abs(max(r_fit / 50.0, 50.0 / r_fit) / swr_true - 1) < 0.03
+    assert all(abs(r.fraction) < 3e-4 for r in c.residuals)
+    # without the SWR one dip cannot tell the constants apart: the resistance is not matched
+    c0 = cal.fit_site(design, ASSUMED, obs)
+    r0 = feed_impedance(deployed_antenna(design, c0.fitted_ground(), legs), obs[0].dip_hz)[0].real
+    assert abs(r0 - r_true) > abs(r_fit - r_true)

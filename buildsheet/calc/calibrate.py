@@ -3,8 +3,11 @@
 Every kit of a design goes up over the same ground, so the first dips measured on the analyzer
 say how the site behaves. For each candidate ground the model's resonant frequency of each
 observed element (with its actual electrical leg lengths, the other elements of its kit present)
-is the zero crossing of the method-of-moments feed reactance; the ground constants (eps_r, sigma)
-are fitted within the ITU-R P.527 range by least squares of the fractional frequency error.
+is the zero crossing of the method-of-moments feed reactance over the exact (Sommerfeld)
+half-space; the ground constants (eps_r, sigma) are fitted within the ITU-R P.527 range by least
+squares of the fractional frequency error and, where an SWR at the dip was recorded, of the
+fractional SWR error (the feed resistance there carries the ground loss, which the dips alone
+hardly see).
 A per-band ratio (measured / model over the fitted ground) is kept as the residual correction.
 
 Guard rails: a dip outside what any ground in the range explains (the envelope of free space,
@@ -62,6 +65,11 @@ MAD_FLOOR: float = 0.0015
 #: Floor on the residual uncertainty of a calibration (fraction; from memory: reading and
 #: cutting scatter plus what one ground model cannot capture across the field).
 UNCERTAINTY_FLOOR: float = 0.003
+#: Fractional uncertainty of an SWR reading at the dip on the analyzer (from memory: readings
+#: and a short feed line scatter by about a tenth); SWR residuals are scaled by it.
+SWR_FRACTION: float = 0.1
+#: Reference impedance of recorded SWR readings, ohm (the analyzer's and the coax's).
+SWR_Z0_OHM: float = 50.0
 #: Newton iterations for a model resonance (each: two MoM solves).
 RESONANCE_ITERATIONS: int = 4
 #: Relative frequency step for dX/df.
@@ -77,6 +85,7 @@ class Observation:
 
     ``electrical_leg_m``: mean of legs A and B, each as cut minus trims minus the termination
     and feed allowances, m. ``kit``: defaults to the element ID without ``-<element_key>``.
+    ``swr``: the SWR read at the dip on SWR_Z0_OHM at the feed point, when recorded.
     """
 
     element_id: str
@@ -84,6 +93,7 @@ class Observation:
     electrical_leg_m: float
     dip_hz: float
     kit: str = ""
+    swr: float | None = None
 
     @property
     def kit_id(self) -> str:
@@ -169,18 +179,23 @@ def _with_ground(mesh: Mesh, ground: Ground) -> Mesh:
     return with_ground(mesh, ground)
 
 
-def _reactance_and_slope(mesh: Mesh, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Feed reactance X (ohm) at f and dX/df (ohm/Hz) by a forward difference."""
-    x = port_impedances(mesh, np.concatenate([f, f * (1 + DF_REL)]))[:, 0, 0].imag
+def _impedance_and_slope(mesh: Mesh, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Feed impedance Z (ohm) at f and dX/df (ohm/Hz) by a forward difference."""
+    z = port_impedances(mesh, np.concatenate([f, f * (1 + DF_REL)]))[:, 0, 0]
     n = f.size
-    return x[:n], (x[n:] - x[:n]) / (f * DF_REL)
+    return z[:n], (z[n:].imag - z[:n].imag) / (f * DF_REL)
 
 
 def _linear_resonance(mesh: Mesh, f: np.ndarray) -> np.ndarray:
     """Model resonance near each f by one Newton step on X(f) = 0, Hz (error ~ second order)."""
-    x, dx = _reactance_and_slope(mesh, f)
-    step = np.clip(-x / np.where(dx > 0, dx, np.nan), -0.1 * f, 0.1 * f)
-    return f + step
+    return _linear_model(mesh, f)[0]
+
+
+def _linear_model(mesh: Mesh, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Model resonance (Hz, one Newton step from f) and feed resistance at f (ohm)."""
+    z, dx = _impedance_and_slope(mesh, f)
+    step = np.clip(-z.imag / np.where(dx > 0, dx, np.nan), -0.1 * f, 0.1 * f)
+    return f + step, z.real
 
 
 def resonance_near(mesh: Mesh, f_start: float) -> float:
@@ -256,15 +271,26 @@ def _kit_meshes(design: AntennaDesign, site_ground: Ground, observations: Sequen
 def _model_hz(cases: Sequence[_Case], ground: Ground) -> np.ndarray:
     """Linearised model resonance of every case over ``ground``, Hz (one Newton step from the
     dip, so it is exact where the fit matters: where model and dip agree)."""
-    out = np.empty(len(cases))
+    return _model(cases, ground)[0]
+
+
+def _model(cases: Sequence[_Case], ground: Ground) -> tuple[np.ndarray, np.ndarray]:
+    """Model resonance (Hz, as :func:`_model_hz`) and feed resistance at the dip (ohm) of every
+    case over ``ground`` (the resistance varies slowly, so at the dip is at resonance)."""
+    out, res = np.empty(len(cases)), np.empty(len(cases))
     groups: dict[int, list[int]] = {}
     for i, c in enumerate(cases):
         groups.setdefault(id(c.mesh), []).append(i)
     for idx in groups.values():
         mesh = _with_ground(cases[idx[0]].mesh, ground)
         f = np.array([cases[i].obs.dip_hz for i in idx])
-        out[idx] = _linear_resonance(mesh, f)
-    return out
+        out[idx], res[idx] = _linear_model(mesh, f)
+    return out, res
+
+
+def _swr_of_resistance(r: np.ndarray) -> np.ndarray:
+    """SWR of a resistive load r (ohm) on SWR_Z0_OHM (Pozar, Microwave Engineering, sec. 2.3)."""
+    return np.maximum(r / SWR_Z0_OHM, SWR_Z0_OHM / r)
 
 
 def _envelope_outliers(cases: Sequence[_Case]) -> list[int]:
@@ -311,10 +337,14 @@ def _fit(cases: Sequence[_Case], p0: np.ndarray, robust: bool) -> np.ndarray:
     search starts from the best of the assumed ground and the P.527 classes (lowest objective).
     """
     dip = np.array([c.obs.dip_hz for c in cases])
+    has_swr = np.array([c.obs.swr is not None for c in cases])
+    swr = np.array([c.obs.swr or 1.0 for c in cases])[has_swr]
 
     def fun(p: np.ndarray) -> np.ndarray:
-        r = dip / _model_hz(cases, _to_ground(p)) - 1.0
-        return np.concatenate([r / DIP_FRACTION, (p - p0) / PRIOR_WIDTH])
+        f_model, r_model = _model(cases, _to_ground(p))
+        r = dip / f_model - 1.0
+        s = _swr_of_resistance(r_model[has_swr]) / swr - 1.0
+        return np.concatenate([r / DIP_FRACTION, s / SWR_FRACTION, (p - p0) / PRIOR_WIDTH])
 
     starts = [p0] + [_from_constants(g.eps_r, g.sigma) for g in GROUND_CLASSES.values()]
     start = min(starts, key=lambda p: float(np.sum(fun(p) ** 2)))

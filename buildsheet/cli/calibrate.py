@@ -50,7 +50,7 @@ def read_observations(store: Any, design: Any, ids: Sequence[str],
         m = h.measurements[-1]
         leg = legs(h, m.time)
         assert leg is not None  # a reading confirms both legs
-        obs.append(Observation(row.id, row.key, leg, m.dip_hz, row.kit))
+        obs.append(Observation(row.id, row.key, leg, m.dip_hz, row.kit, swr=m.swr))
     kits = {row.kit for row in rows}
     kit_legs: dict[str, dict[str, float]] = {}
     for h in histories.values():
