@@ -1,24 +1,28 @@
-"""Benchmarks for the electromagnetic core (issue 3): prints figures, asserts nothing.
+"""Benchmarks for the electromagnetic core (issues 3 and 10): prints figures, asserts nothing.
 
-Run: python bench/em.py
+Run: python bench/em.py   (OPENBLAS_NUM_THREADS=1 avoids BLAS thread overhead on the small
+matrices of these solves when the machine is shared)
 """
 
 from __future__ import annotations
 
+import os
 import time
 from dataclasses import replace
 
 import numpy as np
 
+from buildsheet.calc import coverage, performance
 from buildsheet.em import mom
-from buildsheet.em.deployed import DeployedAntenna, ElementGeometry, Port, Structure, WireSpec
-from buildsheet.em.ground import FREE_SPACE, real_ground
-from buildsheet.em.resonance import prediction_band, solve_resonance
+from buildsheet.em.deployed import DeployedAntenna, ElementGeometry, build_structure
+from buildsheet.em.ground import real_ground
+from buildsheet.em.resonance import RICHARDSON_ORDER, prediction_band, solve_resonance
+from buildsheet.em.sommerfeld import TableStore
 from buildsheet.spec.wires import BUILTIN_WIRES
 
 
 def best(fn, repeat=5):
-    """Best wall time of ``repeat`` calls, s (the mesh cache cleared before each: cold solves)."""
+    """Best wall time of ``repeat`` calls, s (the mesh cache cleared before each)."""
     times = []
     for _ in range(repeat):
         mom.mesh_for.cache_clear()
@@ -29,14 +33,14 @@ def best(fn, repeat=5):
     return min(times)
 
 
-def solves(fn):
-    """Impedance-matrix fills and direct solves made by ``fn()`` (counted, not timed)."""
+def fills(fn):
+    """Impedance-matrix fills made by ``fn()`` (counted, not timed)."""
     counter = {"fills": 0}
     fill = mom.impedance_matrix
 
-    def counting(mesh, frequency_hz):
+    def counting(mesh, frequency_hz, **kw):
         counter["fills"] += 1
-        return fill(mesh, frequency_hz)
+        return fill(mesh, frequency_hz, **kw)
 
     mom.impedance_matrix = counting
     try:
@@ -47,46 +51,55 @@ def solves(fn):
     return counter["fills"]
 
 
-def fan(sw=None):
+def fan(sw=None, model="sommerfeld"):
+    """The issue's three-element 80/60/40 m inverted-V fan over medium dry ground."""
     w = BUILTIN_WIRES["awg14-pvc"]
     els = (ElementGeometry("75m", 3.8e6, 3.6e6, 4.0e6, 0.0, 2.0, 18.5, w),
            ElementGeometry("60m", 5.357e6, 5.33e6, 5.41e6, 60.0, 2.0, 13.1, w),
            ElementGeometry("40m", 7.15e6, 7.0e6, 7.3e6, 120.0, 2.0, 9.9, w))
-    ant = DeployedAntenna(7.5, els, real_ground("medium_dry"))
+    ant = DeployedAntenna(7.5, els, real_ground("medium_dry", model))
     return replace(ant, segment_wavelengths=sw) if sw else ant
 
 
-def main() -> None:
+def joint_resonance() -> None:
     ant = fan()
-    t = best(lambda: solve_resonance.__wrapped__(ant), 5)
-    sol = solve_resonance(ant)
-    fills = solves(lambda: solve_resonance.__wrapped__(ant))
-    print(f"joint resonance, 3-element fan over medium dry ground: {t * 1e3:.0f} ms "
-          f"(target < 300 ms); {sol.model_note}; {sol.iterations} iterations, {fills} fills")
-    t = best(lambda: prediction_band(ant), 3)
-    print(f"prediction band (three joint solves: free space, perfect and real ground, as every "
-          f"packet does): {t * 1e3:.0f} ms")
-    for e in sol.elements:
-        print(f"  {e.key}: leg {e.leg_length_m:.3f} m, Z {e.z_feed.real:.1f}{e.z_feed.imag:+.2f}j, "
-              f"SWR {e.swr_at_design:.2f}, slope {e.slope_m_per_hz * 1e5 * 100:.1f} cm/100 kHz")
+    cold = best(lambda: solve_resonance.__wrapped__(ant, tables=TableStore()))
+    store = TableStore()
+    solve_resonance.__wrapped__(ant, tables=store)
+    warm = best(lambda: solve_resonance.__wrapped__(ant, tables=store))
+    n = fills(lambda: solve_resonance.__wrapped__(ant, tables=TableStore()))
+    sol = solve_resonance.__wrapped__(ant, tables=TableStore())
+    print(f"joint resonance, 3-element fan, medium dry, Sommerfeld ground: {cold * 1e3:.0f} ms "
+          f"including {store.built} kernel tables (target < 1000 ms), {warm * 1e3:.0f} ms with "
+          f"the tables built (target < 300 ms); {sol.iterations} iterations, {n} fills "
+          f"(BLAS threads: {os.environ.get('OPENBLAS_NUM_THREADS', 'default')}, "
+          f"{os.cpu_count()} cores)")
+    print(f"  {sol.model_note}")
+    for model in ("fresnel-image", "normal-image"):
+        t = best(lambda m=model: solve_resonance.__wrapped__(fan(model=m)), 3)
+        print(f"  same with the {model} model: {t * 1e3:.0f} ms")
+    band_t = best(lambda: prediction_band(ant), 3)
+    band = prediction_band(ant)
+    print(f"prediction band (solve + Richardson half-mesh step + two ground-range steps): "
+          f"{band_t * 1e3:.0f} ms")
+    others = {m: solve_resonance.__wrapped__(fan(model=m)) for m in ("fresnel-image",
+                                                                       "normal-image")}
+    for e, b in zip(sol.elements, band.elements, strict=True):
+        img = "; ".join(f"{m}: leg {o.element(e.key).leg_length_m:.3f} m, R "
+                        f"{o.element(e.key).z_feed.real:.1f}" for m, o in others.items())
+        print(f"  {e.key}: leg {e.leg_length_m:.4f} m (extrapolated {b.leg_m:.4f}), R "
+              f"{e.z_feed.real:.1f} ohm, SWR {e.swr_at_design:.2f}, band +-{b.total:.2%} "
+              f"(ground {b.ground:.2%}, mesh {b.mesh:.3%}, model {b.model:.2%}); {img}")
 
-    n = 150
-    s = Structure((WireSpec((0, 0, 10), (0, 10.3, 10), 0.8e-3, n // 2, "a"),
-                   WireSpec((0, 0, 10), (0, -10.3, 10), 0.8e-3, n // 2 + 1, "b")),
-                  (Port("a", "b"),), real_ground("medium_dry"))
-    mesh = mom.build_mesh(s)
-    t_fill = best(lambda: mom.build_mesh(s))
-    t_solve = best(lambda: mom.port_impedances(mesh, 7.1e6))
-    print(f"{mesh.n_unknowns} unknowns over real ground: geometry {t_fill * 1e3:.1f} ms, "
-          f"one impedance solve {t_solve * 1e3:.1f} ms (target < 20 ms)")
-    sf = Structure(s.wires, s.ports, FREE_SPACE)
-    mf = mom.build_mesh(sf)
-    print(f"same in free space: one impedance solve "
-          f"{best(lambda: mom.port_impedances(mf, 7.1e6)) * 1e3:.1f} ms")
 
-    print("convergence (fan, resonant leg in m vs segment size in wavelengths at 7.3 MHz):")
-    print("  seg/lambda  segments   75m       60m       40m      time/solve")
-    ref = None
+def convergence() -> None:
+    print("convergence (fan, Sommerfeld ground): resonant leg (m) vs segment size in "
+          "wavelengths at 7.3 MHz; Richardson (order "
+          f"{RICHARDSON_ORDER:g}) from each row and the one before")
+    print("  seg/lambda  segments   75m       60m       40m      | Richardson 75m 60m 40m   "
+          "time/solve")
+    prev = None
+    rows = []
     for sw in (0.05, 0.025, 0.0125, 0.00625):
         a = fan(sw)
         mom.mesh_for.cache_clear()
@@ -94,10 +107,58 @@ def main() -> None:
         so = solve_resonance.__wrapped__(a)
         dt = time.perf_counter() - t
         legs = np.array([e.leg_length_m for e in so.elements])
-        ref = legs if ref is None else ref
-        nseg = mom.mesh_for(so.antenna).n_segments
-        print(f"  {sw:<10} {nseg:>8}  " + "  ".join(f"{v:8.4f}" for v in legs)
-              + f"  {dt * 1e3:7.0f} ms")
+        rich = "" if prev is None else "  ".join(
+            f"{v:8.4f}" for v in legs + (legs - prev) / (2**RICHARDSON_ORDER - 1))
+        rows.append(legs + (legs - prev) / (2**RICHARDSON_ORDER - 1) if prev is not None else None)
+        print(f"  {sw:<10} {so.mesh.n_segments:>8}  " + "  ".join(f"{v:8.4f}" for v in legs)
+              + f"  | {rich:<30} {dt * 1e3:7.0f} ms")
+        prev = legs
+    ref = rows[-1]
+    band = prediction_band(fan())
+    default = np.array([b.leg_m for b in band.elements])
+    err = (default - ref) / ref
+    print("  default (0.025 with its half-mesh step, extrapolated) against the finest "
+          "Richardson estimate: " + ", ".join(f"{x:+.4%}" for x in err) + " (issue: < 0.02 %)")
+
+
+def sweep_error() -> None:
+    """The packet's height sweep (coarse mesh, whole antenna) against the full solve."""
+    ant = fan()
+    sol = solve_resonance(ant)
+    solved = sol.antenna
+    h = np.array([solved.feed_height_m])
+    t = time.perf_counter()
+    heights = performance.sweep_heights(tuple(e.design_frequency_hz for e in solved.elements))
+    performance.zenith_sweep_mom(solved, heights)
+    dt = time.perf_counter() - t
+    quick = performance.zenith_sweep_mom(solved, h)[:, 0]
+    full = np.array([coverage.zenith_gain_dbi(mom.segment_currents(solved, e.design_frequency_hz),
+                                              solved.ground) for e in solved.elements])
+    print(f"height sweep: {heights.size} apex heights x {len(solved.elements)} bands in "
+          f"{dt * 1e3:.0f} ms; zenith gain at the design apex, sweep mesh vs full solve: "
+          + ", ".join(f"{e.key} {q:.2f} vs {f:.2f} dBi ({q - f:+.2f} dB)"
+                      for e, q, f in zip(solved.elements, quick, full, strict=True))
+          + " (issue: within 0.3 dB)")
+
+
+def mesh_and_fill() -> None:
+    structure = build_structure(fan())
+    store = TableStore()
+    t_mesh = best(lambda: mom.build_mesh(structure, store))
+    m = mom.build_mesh(structure, store)
+    mom.port_impedances(m, 7.15e6)
+    t_fill = best(lambda: mom.port_impedances(m, 7.15e6))
+    t_direct = best(lambda: mom.port_impedances(m, 7.15e6, direct=True), 1)
+    print(f"{m.n_unknowns} unknowns over the Sommerfeld ground: geometry {t_mesh * 1e3:.1f} ms, "
+          f"one fill + solve {t_fill * 1e3:.1f} ms with the table, {t_direct * 1e3:.0f} ms "
+          "by the direct path (no table)")
+
+
+def main() -> None:
+    joint_resonance()
+    mesh_and_fill()
+    sweep_error()
+    convergence()
 
 
 if __name__ == "__main__":

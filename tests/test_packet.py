@@ -128,7 +128,9 @@ def test_calibrated_packet_cuts_and_batch_trims(tmp_path, demo_spec):
     assert fan_cuts.prediction.calibrated_from == ("K01-75m", "K01-40m")
     for c, before in zip(fan_cuts.elements, plain.cuts_for("phonefan").elements):
         assert c.calibrated and c.trim_fraction == pytest.approx(max(0.01, 0.004))
-        assert c.trim_fraction < before.trim_fraction
+        # the honest prediction band (issue 10) may already put the uncalibrated trim at the
+        # min_trim floor, so calibration can only keep or lower it
+        assert c.trim_fraction <= before.trim_fraction
         assert c.predicted_leg_m != pytest.approx(before.predicted_leg_m, abs=1e-3)
     a = fan.allowances
     assert {e.element_id for e in packet.batch_trims} == {e.element_id for e in k01}

@@ -33,7 +33,7 @@ _MIN_END_FRACTION = 0.3
 #: Height sweep: each band's range in wavelengths, points per band range (geometric grid shared
 #: by all bands), and the sweep mesh (largest segment in wavelengths at the top band).
 SWEEP_RANGE_WAVELENGTHS: tuple[float, float] = (0.05, 0.35)
-SWEEP_POINTS_PER_BAND: int = 16
+SWEEP_POINTS_PER_BAND: int = 11
 SWEEP_SEGMENT_WAVELENGTHS: float = 0.05
 SWEEP_MIN_SEGMENTS: int = 6
 
@@ -73,10 +73,12 @@ def sweep_heights(frequencies_hz: tuple[float, ...]) -> np.ndarray:
 
 
 def raised(antenna: DeployedAntenna, apex_m: float) -> DeployedAntenna:
-    """``antenna`` with its feed at ``apex_m``: same legs and droop, ends kept at least
-    _MIN_END_FRACTION of the apex height above ground."""
-    els = tuple(replace(e, end_height_m=max(apex_m - (antenna.feed_height_m - e.end_height_m),
-                                            _MIN_END_FRACTION * apex_m))
+    """``antenna`` with its feed at ``apex_m``: same legs and droop, the ends never lower than
+    in proportion to the design (end / apex) nor than _MIN_END_FRACTION of the apex; at the
+    design apex it is the design itself."""
+    h0 = antenna.feed_height_m
+    els = tuple(replace(e, end_height_m=max(apex_m - (h0 - e.end_height_m),
+                                            min(e.end_height_m / h0, _MIN_END_FRACTION) * apex_m))
                 for e in antenna.elements)
     return replace(antenna, feed_height_m=float(apex_m), elements=els)
 

@@ -55,37 +55,58 @@ SMOOTH_POINTS: int = 2
 
 @dataclass(frozen=True, eq=False)
 class HalfSpacePairs:
-    """Segment-midpoint pairs for the Sommerfeld ground (all (N, N), i test, j source).
+    """Segment-midpoint pairs for the Sommerfeld ground, i test, j source.
 
-    rho, zeta: horizontal distance and z_i + z_j, m; beta: (t_zi t_hj - t_zj t_hi) . rho_vec,
-    m (the cross-kernel weight); grid and weights: the table grid covering the pairs and the
-    bicubic read of it (frequency independent); tables: the store tables come from.
+    Every per-pair quantity is symmetric in (i, j), so only the M = N (N + 1) / 2 pairs i <= j
+    are kept and ``full`` (N, N) maps each pair to its entry. rho, zeta, r: horizontal
+    distance, z_i + z_j and distance to the image point, m (M,); beta_r: (t_zi t_hj - t_zj t_hi)
+    . rho_vec / (r + zeta) (M,), the cross-kernel weight; grid and weights: the table grid
+    covering the pairs and the bicubic read of it (frequency independent); tables: the store
+    the tables come from; static_h / static_v: the analytic static image integrals times the
+    horizontal and vertical parts of t_i . t_j, and static_sum their shape sum (m).
     """
 
+    full: np.ndarray
     rho: np.ndarray
     zeta: np.ndarray
-    beta: np.ndarray
+    r: np.ndarray
+    beta_r: np.ndarray
+    horiz: np.ndarray
+    vert: np.ndarray
     grid: sommerfeld.TableGrid
     weights: object
     tables: sommerfeld.TableStore
+    static_h: np.ndarray
+    static_v: np.ndarray
+    static_sum: np.ndarray
 
 
-def _half_space_pairs(p0: np.ndarray, p1: np.ndarray, t: np.ndarray, tables: sommerfeld.TableStore,
+def _half_space_pairs(p0: np.ndarray, p1: np.ndarray, t: np.ndarray, static_img: np.ndarray,
+                      tables: sommerfeld.TableStore,
                       domain: sommerfeld.TableDomain | None) -> HalfSpacePairs:
     """Midpoint-pair geometry, the covering table grid (``domain`` if given) and its weights."""
+    n = p0.shape[0]
+    iu, ju = np.triu_indices(n)
+    full = np.empty((n, n), dtype=int)
+    full[iu, ju] = full[ju, iu] = np.arange(iu.size)
     c = (p0 + p1) / 2.0
-    d = c[:, None, :2] - c[None, :, :2]                          # rho_vec, observation - source
-    rho = np.hypot(d[..., 0], d[..., 1])
-    zeta = c[:, None, 2] + c[None, :, 2]
+    d = c[iu, :2] - c[ju, :2]                                     # rho_vec, observation - source
+    rho = np.hypot(d[:, 0], d[:, 1])
+    zeta = c[iu, 2] + c[ju, 2]
     if zeta.min() <= 0.0:
         raise BuildError("a wire touches or crosses the ground (z <= 0); the half-space ground "
                          "needs every wire above it")
-    cross = t[:, None, 2, None] * t[None, :, :2] - t[None, :, 2, None] * t[:, None, :2]
-    beta = np.einsum("ijk,ijk->ij", cross, d)
+    cross = t[iu, 2, None] * t[ju, :2] - t[ju, 2, None] * t[iu, :2]
+    r = np.hypot(rho, zeta)
+    beta_r = np.einsum("pk,pk->p", cross, d) / (r + zeta)
+    horiz = t[iu, 0] * t[ju, 0] + t[iu, 1] * t[ju, 1]
+    vert = t[iu, 2] * t[ju, 2]
     grid = sommerfeld.table_grid(domain or sommerfeld.covering_domain(
         float(rho.max()), float(zeta.min()), float(zeta.max())))
-    return HalfSpacePairs(rho, zeta, beta, grid,
-                          sommerfeld.interpolation_matrix(grid, rho.ravel(), zeta.ravel()), tables)
+    h_full, v_full = horiz[full], vert[full]
+    return HalfSpacePairs(full, rho, zeta, r, beta_r, horiz, vert, grid,
+                          sommerfeld.interpolation_matrix(grid, rho, zeta), tables,
+                          static_img * h_full, static_img * v_full, static_img.sum(axis=(0, 1)))
 
 
 @dataclass(frozen=True, eq=False)
@@ -324,7 +345,8 @@ def build_mesh(structure: Structure, tables: sommerfeld.TableStore | None = None
         mirror = np.array([1.0, 1.0, -1.0])
         static_img = _static_integrals(p0, t, length, a2, p0 * mirror, t * mirror)
         if _is_sommerfeld(structure):
-            half_space = _half_space_pairs(p0, p1, t, tables or sommerfeld.TableStore(), domain)
+            half_space = _half_space_pairs(p0, p1, t, static_img, tables or sommerfeld.TableStore(),
+                                           domain)
         else:
             dist_img = _smooth_distances(p0, t, length, a2, p0 * mirror, t * mirror)
     pair = _pair_geometry(p0, p1, t)
@@ -350,7 +372,8 @@ def with_ground(mesh: Mesh, ground: Ground) -> Mesh:
     half_space, dist_img = mesh.half_space, mesh.dist_img
     if _is_sommerfeld(structure):
         if half_space is None:
-            half_space = _half_space_pairs(mesh.p0, mesh.p1, mesh.t, sommerfeld.TableStore(), None)
+            half_space = _half_space_pairs(mesh.p0, mesh.p1, mesh.t, static_img,
+                                           sommerfeld.TableStore(), None)
     elif dist_img is None:
         dist_img = _smooth_distances(mesh.p0, mesh.t, mesh.length, a2, mesh.p0 * mirror,
                                      mesh.t * mirror)
@@ -432,29 +455,26 @@ def _half_space_terms(mesh: Mesh, frequency_hz: float, k: float,
     ``direct`` evaluates the Sommerfeld integrals at every midpoint pair (slow, no table).
     """
     hs, ground = mesh.half_space, mesh.structure.ground
-    assert hs is not None and ground.ground_class is not None and mesh.static_img is not None
+    assert hs is not None and ground.ground_class is not None
     eps_c = complex_permittivity(ground.ground_class, frequency_hz)
     zeta0 = hs.grid.domain.zeta_min
-    r = np.hypot(hs.rho, hs.zeta)
     if direct:
         g = sommerfeld.direct_kernels(eps_c, k, hs.rho, hs.zeta)
         c = sommerfeld.direct_kernels(eps_c, k, np.zeros(1), np.full(1, zeta0))[:3, 0] * (
             4.0 * math.pi * zeta0)
-        scaled = 4.0 * math.pi * r * np.exp(1j * k * r) * g
-        scaled[3] *= r + hs.zeta
+        scaled = 4.0 * math.pi * hs.r * np.exp(1j * k * hs.r) * g
+        scaled[3] *= hs.r + hs.zeta
     else:
         table = hs.tables.table(eps_c, k, hs.grid)
-        scaled = sommerfeld.table_scaled(table, hs.weights).reshape(4, *hs.rho.shape)
+        scaled = sommerfeld.table_scaled(table, hs.weights)
         c = table.image_coefficients()
-    # 4 pi G_k = scaled_k exp(-j k R')/R' (and / (R' + zeta) for G_x / rho)
-    phase = (np.cos(k * r) - 1j * np.sin(k * r)) / r
-    rest = scaled[:3] * phase - c[:, None, None] / r
-    cross = scaled[3] * phase * (hs.beta / (r + hs.zeta))
-    _, horiz, vert, _, _ = mesh.pair
+    # 4 pi G_k = scaled_k exp(-j k R')/R' (and / (R' + zeta) for G_x / rho), per unique pair
+    phase = (np.cos(k * hs.r) - 1j * np.sin(k * hs.r)) / hs.r
+    rest = scaled[:3] * phase - c[:, None] / hs.r
+    vec_rest = hs.horiz * rest[0] + hs.vert * rest[1] - 1j * scaled[3] * phase * hs.beta_r
     ll = mesh.length[:, None] * mesh.length[None, :]
-    vec = (mesh.static_img * (c[0] * horiz + c[1] * vert)
-           + (0.25 * ll) * (horiz * rest[0] + vert * rest[1] - 1j * cross))
-    scal = mesh.static_img.sum(axis=(0, 1)) * c[2] + ll * rest[2]
+    vec = c[0] * hs.static_h + c[1] * hs.static_v + (0.25 * ll) * vec_rest[hs.full]
+    scal = c[2] * hs.static_sum + ll * rest[2][hs.full]
     return vec, scal
 
 
