@@ -37,7 +37,7 @@ class ElementCut:
     feed_m: float
     cut_leg_m: float  # predicted + trim + termination + feed, m
     prediction: ElementPrediction
-    spread_fraction: float | None  # model spread across grounds (None without a band)
+    spread_fraction: float | None  # prediction-band half-width, fraction (None without one)
     legs: tuple[LegGeometry, LegGeometry]
     included_angle_deg: float
     calibrated: bool = False  # predicted_leg_m comes from a site calibration
@@ -157,12 +157,13 @@ def design_cuts(design: AntennaDesign, prediction: DesignPrediction,
                             "raise the apex or lower the ends less")
         if a_trim_short(design, cut):
             warnings.append(f"{design.key} {e.key}: the trim allowance {cut.trim_fraction:.1%} "
-                            f"is less than the model spread {cut.spread_fraction:.1%}")
+                            f"is less than the model spread {cut.spread_fraction:.1%} (the prediction "
+                            "band: ground class range, mesh and model)")
     legs = [leg for c in cuts for leg in c.legs]
     return DesignCuts(design, tuple(cuts), footprint(legs), prediction, closed, tuple(warnings))
 
 
 def a_trim_short(design: AntennaDesign, cut: ElementCut) -> bool:
-    """True when an explicit trim allowance does not cover the model spread."""
+    """True when an explicit trim allowance does not cover the prediction band (the spread)."""
     return (design.allowances.trim_explicit and cut.spread_fraction is not None
             and cut.trim_fraction < cut.spread_fraction)

@@ -143,3 +143,17 @@ def test_model_titles_name_the_model():
     assert "approximation" in real_ground("wet", "fresnel-image").model_title
     assert "normal-incidence" in real_ground("wet", "normal-image").model_title
     assert math.isfinite(z_in(0.2 * LAM, 0.48 * LAM, real_ground("wet", "normal-image")).real)
+
+
+def test_power_balance_and_efficiency(free):
+    # Conservation of energy (Poynting's theorem): over perfect ground everything the feed
+    # delivers, less the conductor loss, is radiated into the upper half space; over lossy soil
+    # the Sommerfeld solve's input power also pays the ground loss, so the efficiency
+    # (radiated / input) falls, and more so at 0.05 than at 0.2 wavelength (REFERENCES 12).
+    pec = mom.currents_on(mesh(0.2 * LAM, free[0], PERFECT_GROUND), F)
+    up = coverage.power_budget(pec, PERFECT_GROUND).up_w
+    assert abs(up / (pec.input_power_w - pec.conductor_loss_w) - 1) < 0.01
+    g = real_ground("average")
+    eff = [coverage.nvis_figures(mom.currents_on(mesh(h * LAM, free[0], g), F), g,
+                                 az_step_deg=30.0).efficiency for h in (0.05, 0.2)]
+    assert 0.0 < eff[0] < eff[1] < 0.99
