@@ -128,6 +128,9 @@ class Mesh:
     angle between segment centres; loading_pattern: (rows, cols, weight, segment) of the
     Galerkin sum int z' f_m . f_n dl over the segments two basis functions share.
     half_space: midpoint-pair geometry and table reads for the Sommerfeld ground (else None).
+    dist_unique: the distinct values of the symmetric ``dist`` (dist[p, q, i, j] =
+    dist[q, p, j, i]) and the (Q, Q, N, N) map back, so the smooth kernel is evaluated once per
+    pair of points.
     """
 
     structure: Structure
@@ -152,6 +155,7 @@ class Mesh:
     pair: np.ndarray
     loading_pattern: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
     half_space: HalfSpacePairs | None = None
+    dist_unique: tuple[np.ndarray, np.ndarray] | None = None
 
     @property
     def n_segments(self) -> int:
@@ -354,7 +358,17 @@ def build_mesh(structure: Structure, tables: sommerfeld.TableStore | None = None
                                 _galerkin(segs, divs, static.sum(axis=(0, 1)))]) / (4.0 * math.pi)
     return Mesh(structure, p0, p1, t, length, radius, owner, T, D, ports, cols, signs, segs, divs,
                 static, dist, static_img, dist_img, static_galerkin, pair,
-                _loading_pattern(cols, signs, segs), half_space)
+                _loading_pattern(cols, signs, segs), half_space, _unique_symmetric(dist))
+
+
+def _unique_symmetric(dist: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Distinct entries of a (Q, Q, N, N) array symmetric under (p, i) <-> (q, j), and the map."""
+    q, n = dist.shape[0], dist.shape[-1]
+    m = dist.transpose(0, 2, 1, 3).reshape(q * n, q * n)
+    iu, ju = np.triu_indices(q * n)
+    index = np.empty((q * n, q * n), dtype=np.intp)
+    index[iu, ju] = index[ju, iu] = np.arange(iu.size)
+    return m[iu, ju], index.reshape(q, n, q, n).transpose(0, 2, 1, 3)
 
 
 def with_ground(mesh: Mesh, ground: Ground) -> Mesh:
@@ -488,7 +502,12 @@ def impedance_matrix(mesh: Mesh, frequency_hz: float, *, direct: bool = False) -
     """
     k = 2.0 * math.pi * frequency_hz / C0
     ll = mesh.length[:, None] * mesh.length[None, :]
-    vec, scal = _smooth_pairs(_smooth_kernel(mesh.dist, k), mesh.pair[0] * ll, ll)
+    if mesh.dist_unique is not None:
+        values, index = mesh.dist_unique
+        g = _smooth_kernel(values, k)[index]
+    else:
+        g = _smooth_kernel(mesh.dist, k)
+    vec, scal = _smooth_pairs(g, mesh.pair[0] * ll, ll)
     if mesh.half_space is not None:
         v_r, s_r = _half_space_terms(mesh, frequency_hz, k, direct)
         vec, scal = vec + v_r, scal + s_r
