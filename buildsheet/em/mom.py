@@ -49,6 +49,10 @@ from buildsheet.errors import BuildError
 
 #: Gauss-Legendre points over the test segment for the static (1/R) part.
 STATIC_POINTS: int = 12
+#: Fewer test points suffice for the image's static part when no segment comes within
+#: IMAGE_FAR_SEGMENTS segment lengths of its image (the integrand is then smooth).
+IMAGE_STATIC_POINTS: int = 6
+IMAGE_FAR_SEGMENTS: float = 2.0
 #: Gauss-Legendre points on each segment for the smooth (exp(-jkR) - 1)/R part.
 SMOOTH_POINTS: int = 2
 
@@ -237,7 +241,7 @@ def _gauss(n: int) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _static_integrals(p0: np.ndarray, t: np.ndarray, length: np.ndarray, a2: np.ndarray,
-                      q0: np.ndarray, qt: np.ndarray) -> np.ndarray:
+                      q0: np.ndarray, qt: np.ndarray, points: int = STATIC_POINTS) -> np.ndarray:
     """int_test int_source w_a(u) w_b(u') / R du' du for all segment pairs, (2, 2, N, N), m.
 
     Test segments (p0, t, length); source segments (q0, qt, same lengths). The source integral is
@@ -250,7 +254,7 @@ def _static_integrals(p0: np.ndarray, t: np.ndarray, length: np.ndarray, a2: np.
     source axis), so only (N, N) pair quantities and one (Q, N, N) array per term are needed,
     and rho of collinear segments is exactly zero up to rounding of the perpendicular parts.
     """
-    x, w = _gauss(STATIC_POINTS)
+    x, w = _gauss(points)
     delta = p0[:, None, :] - q0[None, :, :]                        # (N, N, 3)
     along = np.einsum("ijk,jk->ij", delta, qt)                     # Delta . t'_j
     cos = t @ qt.T                                                 # t_i . t'_j
@@ -347,7 +351,7 @@ def build_mesh(structure: Structure, tables: sommerfeld.TableStore | None = None
     static_img = dist_img = half_space = None
     if structure.ground.kind != "free_space":
         mirror = np.array([1.0, 1.0, -1.0])
-        static_img = _static_integrals(p0, t, length, a2, p0 * mirror, t * mirror)
+        static_img = _image_static(p0, p1, t, length, a2)
         if _is_sommerfeld(structure):
             half_space = _half_space_pairs(p0, p1, t, static_img, tables or sommerfeld.TableStore(),
                                            domain)
@@ -359,6 +363,17 @@ def build_mesh(structure: Structure, tables: sommerfeld.TableStore | None = None
     return Mesh(structure, p0, p1, t, length, radius, owner, T, D, ports, cols, signs, segs, divs,
                 static, dist, static_img, dist_img, static_galerkin, pair,
                 _loading_pattern(cols, signs, segs), half_space, _unique_symmetric(dist))
+
+
+def _image_static(p0: np.ndarray, p1: np.ndarray, t: np.ndarray, length: np.ndarray,
+                  a2: np.ndarray) -> np.ndarray:
+    """Static integrals to the mirror-image sources, with IMAGE_STATIC_POINTS test points where
+    every segment is far from its image (lowest point above IMAGE_FAR_SEGMENTS / 2 segments)."""
+    mirror = np.array([1.0, 1.0, -1.0])
+    low = float(np.minimum(p0[:, 2], p1[:, 2]).min())
+    far = 2.0 * low >= IMAGE_FAR_SEGMENTS * float(length.max())
+    return _static_integrals(p0, t, length, a2, p0 * mirror, t * mirror,
+                             IMAGE_STATIC_POINTS if far else STATIC_POINTS)
 
 
 def _unique_symmetric(dist: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -381,8 +396,7 @@ def with_ground(mesh: Mesh, ground: Ground) -> Mesh:
     mirror = np.array([1.0, 1.0, -1.0])
     static_img = mesh.static_img
     if static_img is None:
-        static_img = _static_integrals(mesh.p0, mesh.t, mesh.length, a2, mesh.p0 * mirror,
-                                       mesh.t * mirror)
+        static_img = _image_static(mesh.p0, mesh.p1, mesh.t, mesh.length, a2)
     half_space, dist_img = mesh.half_space, mesh.dist_img
     if _is_sommerfeld(structure):
         if half_space is None:
