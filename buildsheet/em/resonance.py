@@ -301,7 +301,10 @@ def _bandwidth(mesh: Mesh, f0: float, lo: float, hi: float, curve: _Curve, z0: f
     Each edge is first found on the interpolated curve (extended EDGE_EXTRAPOLATION band widths
     beyond the band), then settled by secant steps on direct solves starting with the curve's
     slope: one solve when the curve was right, a few when it was extrapolated. Where the curve
-    shows no edge, or the steps do not settle, the edge is bracketed by direct solves.
+    shows no edge (an edge well beyond a narrow band), the secant steps start from the edge of
+    a resistance held at its design-frequency value and a reactance rising at the curve's
+    dX/df there (SWR = 2 where 8 X^2 = (R + Z0)^2 - 9 (R - Z0)^2, from |Gamma| = 1/3). Where the
+    steps do not settle, the edge is bracketed by direct solves.
     """
     if not s0 < 2.0:
         return None
@@ -312,19 +315,30 @@ def _bandwidth(mesh: Mesh, f0: float, lo: float, hi: float, curve: _Curve, z0: f
     def fitted(fr: float | np.ndarray) -> np.ndarray:
         return swr(curve.z(fr), z0) - 2.0
 
+    z_f0 = complex(curve.z(f0))
+    dxdf = float(curve.dz_df(f0).imag)
+
+    def linear(fr: float | np.ndarray) -> np.ndarray:
+        return swr(z_f0.real + 1j * (z_f0.imag + dxdf * (np.asarray(fr) - f0)), z0) - 2.0
+
+    x_edge2 = ((z_f0.real + z0) ** 2 - 9.0 * (z_f0.real - z0) ** 2) / 8.0
     edges = []
     for end, side in ((lo, -1), (hi, 1)):
         grid = np.linspace(f0, end + side * EDGE_EXTRAPOLATION * (hi - lo), 801)
         over = np.flatnonzero(fitted(grid) >= 0.0)
         edge = None
+        h = 1e-6 * f0
         if over.size and over[0] > 0:
             a, b = grid[over[0] - 1], grid[over[0]]
             guess = float(brentq(lambda fr: float(fitted(fr)), min(a, b), max(a, b), xtol=0.5))
-            h = 1e-6 * f0
             slope = float(fitted(guess + h) - fitted(guess - h)) / (2 * h)
             edge = _polish(direct, guess, slope)
-            if edge is not None and not 0 < side * (edge - f0) <= 0.3 * f0:
-                edge = None
+        elif x_edge2 > 0 and dxdf > 0:
+            guess = f0 + (side * np.sqrt(x_edge2) - z_f0.imag) / dxdf
+            slope = float(linear(guess + h) - linear(guess - h)) / (2 * h)
+            edge = _polish(direct, float(guess), slope)
+        if edge is not None and not 0 < side * (edge - f0) <= 0.3 * f0:
+            edge = None
         edges.append(edge if edge is not None else _edge_by_bracket(direct, f0, end, side))
     return edges[0], edges[1]
 
