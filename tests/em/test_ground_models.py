@@ -157,3 +157,19 @@ def test_power_balance_and_efficiency(free):
     eff = [coverage.nvis_figures(mom.currents_on(mesh(h * LAM, free[0], g), F), g,
                                  az_step_deg=30.0).efficiency for h in (0.05, 0.2)]
     assert 0.0 < eff[0] < eff[1] < 0.99
+
+
+def test_prediction_names_the_ground_model_and_band_parts():
+    # Issue 10 parts 2 and 4: the prediction carries the ground model's name (for the sheet)
+    # and the parts of its band; the band is their root sum of squares.
+    from importlib.resources import files
+
+    from buildsheet.em.solve import predict_mom
+    from buildsheet.spec.reader import load_spec
+
+    spec = load_spec(files("buildsheet") / "data" / "demo.toml")
+    p = predict_mom(spec.design("sixty"), spec.site.ground)
+    assert "Sommerfeld" in p.ground_model and "Sommerfeld" in p.model_note
+    (u,) = p.uncertainty
+    assert u.ground > 0 and u.mesh > 0 and u.model > 0
+    assert p.spread == (pytest.approx(math.sqrt(u.ground**2 + u.mesh**2 + u.model**2)),)
