@@ -143,3 +143,10 @@ def test_site_ground_class_measured_and_model():
 def test_bad_site_ground(site, words):
     text = _errors(GOOD + f"\n[site]\n{site}\n")
     assert "club.toml" in text and all(w in text for w in words), text
+
+
+def test_ground_model_without_real_ground_warns():
+    # DESIGN.md: never drop an option silently.
+    d = read_spec_text(GOOD + '\n[site]\nground = "perfect"\nground_model = "normal-image"\n',
+                       "club.toml")
+    assert any("site.ground_model" in w and "real ground" in w for w in d.warnings)

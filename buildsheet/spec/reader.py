@@ -228,6 +228,9 @@ def _read_ground(r: _Reader, st: Mapping[str, Any]) -> Ground:
     ground_key = r.choice(st.get("ground", "medium_dry"), "site.ground", _GROUNDS)
     if ground_key in GROUND_CLASSES:
         return real_ground(ground_key, model)
+    if "ground_model" in st and ground_key:
+        r.warnings.append(f"{r.source}: site.ground_model: {st['ground_model']!r} applies to a "
+                          f"real ground only; site.ground {ground_key!r} does not use it")
     return {"free_space": FREE_SPACE, "perfect": PERFECT_GROUND}.get(ground_key or "", FREE_SPACE)
 
 
