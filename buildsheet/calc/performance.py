@@ -7,7 +7,7 @@ half-space by default, so feed resistance, efficiency and gain include the near-
 loss) and are normalised to the input power. The height sweep raises the whole antenna (every
 element, same droop, same leg lengths) through one geometric grid of apex heights and solves
 it on a coarser mesh (SWEEP_SEGMENT_WAVELENGTHS) with one kernel table per band for the whole
-sweep; bench/coverage.py prints its error against the full solve at the design height.
+sweep; bench/em.py prints its error against the full solve at the design height.
 """
 
 from __future__ import annotations
