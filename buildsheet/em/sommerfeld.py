@@ -82,8 +82,13 @@ def covering_domain(rho_max: float, zeta_min: float, zeta_max: float) -> TableDo
     The far-field scale is a fifth of rho_max (about 1/k0 for a half-wave dipole's span).
     """
     step = 2.0 ** 0.25
-    up = lambda x: step ** math.ceil(math.log(x, step) + 1e-9)  # noqa: E731
-    down = lambda x: step ** math.floor(math.log(x, step) - 1e-9)  # noqa: E731
+
+    def up(x: float) -> float:
+        return step ** math.ceil(math.log(x, step) + 1e-9)
+
+    def down(x: float) -> float:
+        return step ** math.floor(math.log(x, step) - 1e-9)
+
     lo, r = down(zeta_min), up(max(rho_max, zeta_min, 1e-3))
     return TableDomain(r, lo, max(up(zeta_max * 1.0001), lo * 1.5), max(r / RHO_SCALE, lo))
 
@@ -361,20 +366,20 @@ def interpolation_matrix(grid: TableGrid, rho: np.ndarray, zeta: np.ndarray) -> 
     Points must lie in the grid's domain (raises ValueError otherwise).
     """
     rho, zeta = np.abs(np.ravel(rho)), np.ravel(zeta)
-    d, table = grid.domain, grid
+    d = grid.domain
     if rho.size and (rho.max() > d.rho_max * (1 + 1e-9) or zeta.min() < d.zeta_min * (1 - 1e-9)
                      or zeta.max() > d.zeta_max * (1 + 1e-9)):
         raise ValueError("points outside the kernel table's domain")
-    x = _u_of(rho, table.s0, table.s1) / table.u_step + 1.0
-    y = (np.log(zeta) - table.v0) / table.v_step
-    iu, wu = _lagrange4(x, table.n_u)
-    iv, wv = _lagrange4(y, table.n_v)
-    cols = ((iu[:, None] + np.arange(4)[None, :])[:, :, None] * table.n_v
+    x = _u_of(rho, grid.s0, grid.s1) / grid.u_step + 1.0
+    y = (np.log(zeta) - grid.v0) / grid.v_step
+    iu, wu = _lagrange4(x, grid.n_u)
+    iv, wv = _lagrange4(y, grid.n_v)
+    cols = ((iu[:, None] + np.arange(4)[None, :])[:, :, None] * grid.n_v
             + (iv[:, None] + np.arange(4)[None, :])[:, None, :])
     weights = wu[:, :, None] * wv[:, None, :]
     p = rho.size
     return sparse.csr_matrix((weights.reshape(p, 16).ravel(), cols.reshape(p, 16).ravel(),
-                              np.arange(0, 16 * p + 1, 16)), shape=(p, table.n_u * table.n_v))
+                              np.arange(0, 16 * p + 1, 16)), shape=(p, grid.n_u * grid.n_v))
 
 
 def table_scaled(table: KernelTable, weights: sparse.csr_matrix) -> np.ndarray:
