@@ -430,9 +430,10 @@ def _smooth_pairs(g: np.ndarray, w_vec: np.ndarray | float,
     x, w = _gauss(SMOOTH_POINTS)
     shape = np.stack([1.0 - x, x]) * w[None, :]                    # (2, Q): w_a at each point
     q, n = g.shape[0], g.shape[-1]
-    left = (shape @ g.reshape(q, -1)).reshape(2, q, n * n)         # [a, q, ij]
-    both = (shape @ left).reshape(2, 2, n, n)                      # [a, b, i, j]
-    total = (w @ (w @ g.reshape(q, -1)).reshape(q, -1)).reshape(n, n)
+    # explicit sums, not BLAS: the inner dimension is Q, where threaded BLAS only adds overhead
+    left = np.einsum("ap,pqk->aqk", shape, g.reshape(q, q, n * n))  # [a, q, ij]
+    both = np.einsum("bq,aqk->abk", shape, left).reshape(2, 2, n, n)  # [a, b, i, j]
+    total = both.sum(axis=(0, 1))                                  # w_0 + w_1 = 1 per point
     return both * w_vec, total * w_scal
 
 

@@ -202,6 +202,16 @@ def _unscale(values: np.ndarray, rho: np.ndarray, zeta: np.ndarray, k0: float) -
     return out
 
 
+#: Rows per block of the table products: small enough that a threaded BLAS runs each block on
+#: one thread (on a busy machine its thread start-up costs far more than these products).
+PRODUCT_ROWS: int = 8
+
+
+def _blocked(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """a @ b in blocks of PRODUCT_ROWS rows of a."""
+    return np.concatenate([a[i:i + PRODUCT_ROWS] @ b for i in range(0, a.shape[0], PRODUCT_ROWS)])
+
+
 def _integrate(path: SpectralPath, eps_c: complex, k0: float, jrows: tuple[np.ndarray, np.ndarray],
                expo: np.ndarray, pairwise: bool) -> np.ndarray:
     """Sum over the path of F_k e^{-j kz0 zeta} J_nu(krho rho) weights, (4, ...), 1/m (x: 1/m^2).
@@ -220,8 +230,8 @@ def _integrate(path: SpectralPath, eps_c: complex, k0: float, jrows: tuple[np.nd
     m0 = np.ascontiguousarray((a[:3, :, None] * expo.T[None]).transpose(1, 0, 2))
     m0 = m0.reshape(m0.shape[0], -1).view(float)
     m1 = np.ascontiguousarray(a[3][:, None] * expo.T).view(float)
-    out0 = (jrows[0] @ m0).view(complex).reshape(-1, 3, z).transpose(1, 0, 2)
-    out1 = (jrows[1] @ m1).view(complex)
+    out0 = _blocked(jrows[0], m0).view(complex).reshape(-1, 3, z).transpose(1, 0, 2)
+    out1 = _blocked(jrows[1], m1).view(complex)
     return np.concatenate([out0, out1[None]])
 
 
