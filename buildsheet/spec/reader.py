@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import difflib
 import hashlib
+import math
 import re
 import tomllib
 from collections.abc import Callable, Mapping
