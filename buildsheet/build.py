@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import hashlib
 import io
-from collections.abc import Collection, Mapping
+from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from datetime import datetime
 from pathlib import Path
@@ -242,10 +242,10 @@ def render_documents(packet: Packet, selection: Selection, start_cell: int) -> D
 
 
 def page_histories(packet: Packet, histories: Mapping[str, ElementHistory],
-                   docs: Documents) -> list[ElementHistory]:
+                   docs: Documents, hashes: Mapping[str, str]) -> list[ElementHistory]:
     """The ledger as the record pages show it after this build: the packet's as-designed rows
-    (new elements included), archived elements as stored, and this build's prints added."""
-    hashes = element_hashes(packet)
+    (new elements included), archived elements as stored, and this build's prints added
+    (``hashes``: :func:`element_hashes` of the packet)."""
     active = {r.id: r for r in element_rows(packet)}
     out = []
     for eid in sorted(set(histories) | set(active)):
@@ -269,6 +269,7 @@ def page_histories(packet: Packet, histories: Mapping[str, ElementHistory],
 
 
 def site_pages(packet: Packet, histories: Mapping[str, ElementHistory], docs: Documents,
+               hashes: Mapping[str, str],
                previous: Manifest | None) -> dict[str, str]:
     """The record pages ({file name: HTML}); with a record URL that names the leg, each leg
     gets a copy of its element's page so every printed address exists."""
@@ -281,7 +282,7 @@ def site_pages(packet: Packet, histories: Mapping[str, ElementHistory], docs: Do
             if eid not in sheet_files and old:
                 sheet_files[eid] = old[0]
     hrefs = {eid: f"../{name}" for eid, name in sheet_files.items()}
-    pages = render_site(page_histories(packet, histories, docs), packet.built_at, sheet_files,
+    pages = render_site(page_histories(packet, histories, docs, hashes), packet.built_at, sheet_files,
                         hrefs, title=f"{packet.design.event.name}: element records",
                         entries={e.element_id: e for e in packet.entries},
                         units=packet.design.event.units)
@@ -305,9 +306,8 @@ def stored_calibrations(store: RecordStore, spec: Design) -> dict[str, Any]:
     """The newest stored site calibration per design: one made for the design's current
     geometry and wire if there is one, else the newest of any (build_packet then warns that it
     no longer applies)."""
-    from buildsheet.calc.calibrate import calibration_from_json
+    from buildsheet.calc.calibrate import calibration_from_json, design_fingerprint
     from buildsheet.store.ledger import latest_calibration, list_calibrations
-    from buildsheet.calc.calibrate import design_fingerprint
 
     out = {}
     for d in spec.designs:
@@ -437,7 +437,7 @@ def _build(spec_path: str | Path, out_dir: str | Path, *, built_at: str, model: 
             set_state(store, cells_key(spec), str(docs.next_cell))
         set_state(store, SPEC_KEY, _relative(Path(spec_path), store_file.parent))
         set_state(store, PACKET_KEY, _relative(out, store_file.parent))
-    pages = site_pages(packet, histories, docs, previous if not selection.full else None)
+    pages = site_pages(packet, histories, docs, hashes, previous if not selection.full else None)
 
     carried: dict[str, str] = {}
     element_files: dict[str, tuple[str, ...]] = {}
@@ -497,12 +497,11 @@ def _notes(selection: Selection, docs: Documents, carried: Mapping[str, str]) ->
     if not docs.files:
         notes = ["changed-only build: nothing changed, no sheets or labels written"]
     else:
-        notes = [f"changed-only build: {' and '.join(docs.files)} hold only what changed "
-                 "(see 'reprinted')"]
+        notes = [(f"changed-only build: {' and '.join(docs.files)} hold only what changed "
+                  "(see 'reprinted')")]
     if carried:
         notes.append("earlier files kept alongside unchanged: " + ", ".join(sorted(carried)))
     return tuple(notes)
 
 
 __all__ = ["DAY_PAGES", "BuildResult", "Selection", "build", "packet_from_store", "select"]
-_ = Collection

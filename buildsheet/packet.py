@@ -11,12 +11,12 @@ the Packet. Nothing here touches the file system.
 from __future__ import annotations
 
 import dataclasses
-import hashlib
-import json
+import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
+from buildsheet.calc.advice import DesignAdvice, design_advice, tuning_words
 from buildsheet.calc.asbuilt import (
     ElementState,
     advice_lines,
@@ -24,7 +24,6 @@ from buildsheet.calc.asbuilt import (
     element_state,
     expected_dip_hz,
 )
-from buildsheet.calc.advice import DesignAdvice, design_advice, tuning_words
 from buildsheet.calc.bom import BomLine
 from buildsheet.calc.calibrate import Calibration, calibrated_prediction, design_fingerprint
 from buildsheet.calc.cuts import DesignCuts, ElementCut, design_cuts
@@ -44,6 +43,7 @@ from buildsheet.errors import BuildError, Problem
 from buildsheet.records import ElementHistory
 from buildsheet.spec.design import AntennaDesign, Design, Kit
 from buildsheet.spec.units import format_both, format_frequency, format_length
+from buildsheet.store.manifest import content_hash
 
 #: The kit-sheet cautions (their one home is buildsheet.calc.safety).
 SAFETY_CAUTIONS: tuple[str, ...] = SITE_CAUTIONS
@@ -106,14 +106,19 @@ class Packet:
     @property
     def batch_trims(self) -> tuple[ElementEntry, ...]:
         """Elements of calibrated designs with wire already cut: what to do to each leg."""
-        return tuple(e for e in self.entries
-                     if e.kit.design_key in self.calibrations and e.state.is_cut)
+        return batch_entries(self.entries, self.calibrations)
 
     def sheet_item(self, kit: Kit) -> str:
         """The printable item holding a kit's build sheet and log form."""
         if self.design.event.layout == "per_design":
             return f"design:{kit.design_key}"
         return f"kit:{kit.kit_id}"
+
+
+def batch_entries(entries: Sequence[ElementEntry],
+                  calibrations: Mapping[str, Calibration]) -> tuple[ElementEntry, ...]:
+    """The batch-trim list: elements of calibrated designs whose wire is already cut."""
+    return tuple(e for e in entries if e.kit.design_key in calibrations and e.state.is_cut)
 
 
 def element_id(kit: Kit, element_key: str) -> str:
@@ -213,17 +218,17 @@ def _plain(value: Any) -> Any:
         return _plain(value.tolist())
     if isinstance(value, complex):
         return [value.real, value.imag]
-    if isinstance(value, float) and value != value:
-        return "nan"
+    if isinstance(value, float) and not math.isfinite(value):
+        return repr(value)  # "nan", "inf": the canonical JSON of content_hash allows no NaN
     if value is None or isinstance(value, (str, int, float, bool)):
         return value
     return repr(value)
 
 
 def fingerprint(*parts: Any) -> str:
-    """Content hash of printable data, hex sha256[:16] (floats by repr: any printed change)."""
-    text = json.dumps(_plain(parts), sort_keys=True, separators=(",", ":"), default=repr)
-    return hashlib.sha256(text.encode()).hexdigest()[:16]
+    """Content hash of printable data (buildsheet.store.manifest.content_hash of its canonical
+    plain form), hex sha256[:16]."""
+    return content_hash(_plain(parts))[:16]
 
 
 def item_fingerprints(spec: Design, cuts: Sequence[DesignCuts],
@@ -250,7 +255,7 @@ def item_fingerprints(spec: Design, cuts: Sequence[DesignCuts],
                                   kit_boms[kit.kit_id], calibrations.get(kit.design_key))
     for label in labels:
         items[f"label:{label.leg_id}"] = fingerprint(spec.labels.stock, label)
-    batch = [e for e in entries if e.kit.design_key in calibrations and e.state.is_cut]
+    batch = batch_entries(entries, calibrations)
     items["day:cover"] = fingerprint(common, [k for k in spec.kits], warnings, SAFETY_CAUTIONS)
     items["day:bom"] = fingerprint(common, day_bom)
     items["day:spool-plan"] = fingerprint(common, plan)

@@ -23,8 +23,8 @@ from dataclasses import dataclass
 from typing import Literal
 
 from buildsheet.calc.cuts import ElementCut
-from buildsheet.spec.units import UnitSystem, format_both
 from buildsheet.records import SIDES, ElementHistory, Measurement
+from buildsheet.spec.units import UnitSystem, format_both
 
 ActionKind = Literal["cut", "measure", "shorten", "lengthen", "re-cut", "none"]
 TargetSource = Literal["reading", "calibration", "model"]

@@ -53,7 +53,7 @@ MIN_TEXT_HEIGHT_MM: float = (MIN_BAND_PT + MIN_TEXT_LINES * MIN_TEXT_PT) * LEADI
 EC_LEVELS: tuple[str, ...] = ("q", "h")
 #: Levels tried for each label, best first: H (30 %) wherever the symbol still fits the label.
 EC_PREFERENCE: tuple[str, ...] = ("h", "q")
-#: Smallest module of the symbol chosen for survival (mm): the version is raised as long as the
+#: Smallest module of the chosen symbol (mm): the version is raised as long as the
 #: modules stay at least this large (0.6 mm: 3.5 px at 150 dpi; bench/labels.py).
 ROBUST_MODULE_MM: float = 0.6
 #: Placeholders allowed in a record URL template.

@@ -456,11 +456,11 @@ def _void_key(record: Measurement | Trim | LegCut) -> str:
     return json.dumps(["cut", record.element_id, record.time, record.leg, record.length_m])
 
 
-def _history_rows(conn: sqlite3.Connection | RecordStore, element_id: str) -> ElementHistory:
-    store_conn = conn.conn if isinstance(conn, RecordStore) else conn
-    row = element_from_row(store_conn.execute(f"SELECT {ELEMENT_COLS} FROM elements WHERE id = ?",
-                                      (element_id,)).fetchone())
-    return _assemble([row], store_conn, element_id)[0]
+def _history_rows(conn: sqlite3.Connection, element_id: str) -> ElementHistory:
+    """One element's history read inside the caller's transaction."""
+    row = element_from_row(conn.execute(f"SELECT {ELEMENT_COLS} FROM elements WHERE id = ?",
+                                        (element_id,)).fetchone())
+    return _assemble([row], conn, element_id)[0]
 
 
 def _insert_cut(conn: sqlite3.Connection, row: ElementRow, leg: Side, length_m: float,
