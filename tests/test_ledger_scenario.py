@@ -205,3 +205,22 @@ def test_ids_never_change_as_the_spec_grows(tmp_path: Path) -> None:
     (tmp_path / "first" / "club.toml").write_text(text, encoding="utf-8")
     kits = [k.kit_id for k in load_spec(tmp_path / "first" / "club.toml").kits]
     assert kits[:2] == ["K98", "K99"] and "K100" in kits
+
+
+def test_labels_continue_on_the_current_sheet(tmp_path: Path) -> None:
+    """With labels.start_cell unset, a later packet's labels start where the last ones ended
+    (cells counted from the decoded QR positions, pypdfium2 and zxing-cpp)."""
+    from datetime import UTC, datetime
+
+    from buildsheet.build import build, default_store
+    from buildsheet.store import ledger as rec
+    from tests.test_build_records import _first_label_cell
+
+    spec = small_spec(tmp_path)
+    out = tmp_path / "out"
+    first = build(spec, out, built_at="2027-03-01T09:00:00Z")
+    used = len(first.packet.labels)  # 14 labels on a 21-cell Letter sheet
+    with rec.open_store(default_store(spec)) as store:
+        rec.add_trim(store, "K01-40m", "both", 0.01, "", datetime(2027, 3, 1, 10, tzinfo=UTC))
+    build(spec, out, built_at="2027-03-01T11:00:00Z", changed_only=True)
+    assert _first_label_cell(out / "labels-r2-changed.pdf") == used % 21

@@ -553,7 +553,7 @@ def read_spec_text(text: str, source: str = "spec.toml") -> Design:
         raise SpecError(list(dict.fromkeys(r.problems)))  # each problem once, in order
     return Design(source, hashlib.sha256(text.encode()).hexdigest(), event, site, wires,
                   tuple(d for d in designs.values() if d is not None), tuple(kits),
-                  LabelSettings(stock, start or 0), exposure, tuple(spools), tuple(r.warnings))
+                  LabelSettings(stock, start), exposure, tuple(spools), tuple(r.warnings))
 
 
 def _label_stock(r: _Reader, value: Any) -> object:
