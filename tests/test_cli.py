@@ -108,8 +108,11 @@ def test_python_dash_m_demo(tmp_path):
 
 def test_same_spec_gives_identical_pdfs(tmp_path, demo_spec):
     from buildsheet.build import build
-    a = build(demo_spec, tmp_path / "a", built_at="2027-01-01T00:00:00Z", model="closed_form")
-    b = build(demo_spec, tmp_path / "b", built_at="2027-01-01T00:00:00Z", model="closed_form")
+    # Each from a fresh store: a shared store would rightly continue the label sheet.
+    a = build(demo_spec, tmp_path / "a", built_at="2027-01-01T00:00:00Z", model="closed_form",
+              store_path=tmp_path / "a.records.sqlite")
+    b = build(demo_spec, tmp_path / "b", built_at="2027-01-01T00:00:00Z", model="closed_form",
+              store_path=tmp_path / "b.records.sqlite")
     for name in ("sheets.pdf", "labels.pdf"):
         assert (a.out_dir / name).read_bytes() == (b.out_dir / name).read_bytes()
 
