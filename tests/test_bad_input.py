@@ -8,7 +8,6 @@ import json
 import re
 import subprocess
 import sys
-from pathlib import Path
 
 import pytest
 from pypdf import PdfReader
@@ -27,7 +26,7 @@ def spec_text(**edits: str) -> str:
     text = BASE_TEXT
     for key, value in edits.items():
         table, _, name = key.rpartition(".")
-        line = re.compile(rf"^{re.escape(name)} = .*$", re.M)
+        line = re.compile(rf"^{re.escape(name)} = .*$", re.MULTILINE)
         header = None
         if table:
             header = f"[[{table}]]" if f"[[{table}]]" in text else f"[{table}]"

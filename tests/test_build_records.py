@@ -9,8 +9,8 @@ from __future__ import annotations
 
 import json
 import re
-from datetime import UTC, datetime
 import urllib.parse
+from datetime import UTC, datetime
 from pathlib import Path
 
 import numpy as np

@@ -119,7 +119,8 @@ def test_build_day_scenario(tmp_path: Path, capsys: pytest.CaptureFixture[str],
     assert main(["calibrate", str(spec), "phonefan", "--from", "K01-75m"]) == 0
     said = capsys.readouterr().out
     legs = export(folder, capsys)
-    printed = dict(re.findall(r"^\s+(K0\d-\w+-[AB]): now .*?, target ([0-9.]+) m", said, re.M))
+    printed = dict(re.findall(r"^\s+(K0\d-\w+-[AB]): now .*?, target ([0-9.]+) m", said,
+                              re.MULTILINE))
     fan_legs = {k: v for k, v in legs.items() if not k.startswith("K03")}
     assert set(printed) == set(fan_legs)
     for leg_id, target in printed.items():

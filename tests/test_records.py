@@ -12,10 +12,10 @@ from pathlib import Path
 
 import pytest
 
+from buildsheet.calc import asbuilt
 from buildsheet.cli.main import main as run
 from buildsheet.cli.records import find_store
 from buildsheet.errors import RecordError
-from buildsheet.calc import asbuilt
 from buildsheet.store import exchange
 from buildsheet.store import ledger as rec
 
@@ -335,8 +335,8 @@ def test_migration_adds_a_table_and_keeps_the_data(store_path: Path,
                                                    monkeypatch: pytest.MonkeyPatch) -> None:
     """A later schema version migrates an existing store and keeps its data."""
     nxt = rec.SCHEMA_VERSION + 1
-    later = (*rec.MIGRATIONS, (nxt, ("CREATE TABLE later_notes (design TEXT PRIMARY KEY, "
-                                     "ratio REAL NOT NULL)",)))
+    later = (*rec.MIGRATIONS, (nxt, (("CREATE TABLE later_notes (design TEXT PRIMARY KEY, "
+                                      "ratio REAL NOT NULL)"),)))
     monkeypatch.setattr(rec, "MIGRATIONS", later)
     monkeypatch.setattr(rec, "SCHEMA_VERSION", nxt)
     with rec.open_store(store_path) as store:

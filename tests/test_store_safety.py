@@ -140,7 +140,7 @@ def test_a_failed_build_leaves_no_new_store(tmp_path, capsys):
 
 
 def test_export_keeps_other_files_and_non_empty_exports(built, tmp_path, capsys):
-    spec, out, store = built
+    _spec, _out, store = built
     notes = tmp_path / "notes.json"
     notes.write_text('{"mine": true}', encoding="utf-8")
     assert main(["export", "-o", str(notes), "--store", str(store)]) == 1
@@ -200,8 +200,8 @@ def test_implausible_advice_warns_and_absurd_trims_are_refused(built, capsys):
 
 # --------------------------------------------------------------------------- generated store rows
 
-from hypothesis import HealthCheck, given, settings  # noqa: E402
-from hypothesis import strategies as st  # noqa: E402
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 _ROW_VALUES = st.one_of(
     st.none(), st.booleans(), st.integers(-10, 10**9), st.floats(),

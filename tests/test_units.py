@@ -62,4 +62,5 @@ def test_fraction_formatting_round_trips(eighths):
     text = format_imperial(metres)
     assert parse_length(text) == pytest.approx(metres, abs=1e-9)
     sign, feet, inches, eighth = feet_inches_eighths(metres)
+    assert sign == 1  # the grid starts at zero: no negative lengths here
     assert (feet * 96 + inches * 8 + eighth) == eighths

@@ -14,10 +14,10 @@ import numpy as np
 from buildsheet.calc import safety
 from buildsheet.calc.asbuilt import design_target_m, expected_dip_hz
 from buildsheet.calc.cuts import DesignCuts, ElementCut, printed_parts
-from buildsheet.calc.logistics import BALUN_LOOP_CORD_M
 from buildsheet.calc.exposure import ExposureScreen
 from buildsheet.calc.feedline import coax
 from buildsheet.calc.geometry import Footprint, footprint, included_angle_deg, leg_geometry
+from buildsheet.calc.logistics import BALUN_LOOP_CORD_M
 from buildsheet.calc.performance import DesignPerformance
 from buildsheet.spec import bands
 from buildsheet.spec.units import (
@@ -241,21 +241,21 @@ def assembly_steps(cuts: DesignCuts, units: UnitSystem) -> tuple[str, ...]:
     flat = d.mount == "flat"
     steps = [
         f"Check each leg against the cut list ({per}) and tag it with its ID ({tags}).",
-        f"At the feed end of each leg {strip} a ring terminal; the feed allowance "
-        f"({format_both(a.feed_m, units)}) is the pigtail from the terminal to the balun.",
-        f"At the far end pass the wire through the end insulator, fold back the termination "
-        f"allowance ({format_both(a.termination_m, units)}) and wrap it tightly round the leg; "
-        f"tape the tail. Keep the trim allowance in the leg ({trims}): it is the tuning reserve.",
+        (f"At the feed end of each leg {strip} a ring terminal; the feed allowance "
+         f"({format_both(a.feed_m, units)}) is the pigtail from the terminal to the balun."),
+        (f"At the far end pass the wire through the end insulator, fold back the termination "
+         f"allowance ({format_both(a.termination_m, units)}) and wrap it tightly round the leg; "
+         f"tape the tail. Keep the trim allowance in the leg ({trims}): it is the tuning reserve."),
         (f"Tie the cord to each end insulator with a bowline (cord to cut: {cords}); "
          + ("it runs to the pulley or ring at the top of the end support, and the halyard "
             "lowers the end for tuning." if flat else
             "it runs to the stake, with a taut-line hitch there.")),
-        f"Bolt the terminals to the balun studs (all A legs on one, all B legs on the other), "
-        f"leaving slack in each pigtail; tie the balun loop "
-        f"({format_both(BALUN_LOOP_CORD_M, units)} of cord) so the cord, not the terminal, "
-        "takes the pull.",
-        "Wind each leg on its winder from the insulator end, so that the feed end comes off first "
-        "at the mast.",
+        (f"Bolt the terminals to the balun studs (all A legs on one, all B legs on the other), "
+         f"leaving slack in each pigtail; tie the balun loop "
+         f"({format_both(BALUN_LOOP_CORD_M, units)} of cord) so the cord, not the terminal, "
+         "takes the pull."),
+        ("Wind each leg on its winder from the insulator end, so that the feed end comes off first "
+         "at the mast."),
         "Fit each leg's label to its winder and check that it matches the tag on the wire.",
     ]
     return tuple(f"{n}. {s}" for n, s in enumerate(steps, start=1))
@@ -267,14 +267,14 @@ def feed_line_notes(cuts: DesignCuts, perf: DesignPerformance) -> tuple[str, ...
     loss = ", ".join(f"{b.band_label} {b.feedline_loss_db:.1f} dB" for b in perf.bands)
     return (
         f"Feed line: {coax(d.coax_type).title}, matched loss {loss}; more with a high SWR.",
-        "The 1:1 current balun at the feed is the first common-mode choke. If the coax still "
-        "shows RF (an SWR that changes when you touch or move the coax, RF on the microphone or "
-        "a warm rig), add a choke at the rig end: several turns of the coax through a ferrite "
-        "core suited to HF.",
-        "A tuner at the rig makes the radio see 50 ohm; it cannot fix the antenna. The SWR on "
-        "the coax and its extra loss stay, and a leg cut wrong still resonates in the wrong "
-        "place. On the day, trim for a dip inside the band; leave the tuner for the last bit "
-        "towards the band edges.",
+        ("The 1:1 current balun at the feed is the first common-mode choke. If the coax still "
+         "shows RF (an SWR that changes when you touch or move the coax, RF on the microphone or "
+         "a warm rig), add a choke at the rig end: several turns of the coax through a ferrite "
+         "core suited to HF."),
+        ("A tuner at the rig makes the radio see 50 ohm; it cannot fix the antenna. The SWR on "
+         "the coax and its extra loss stay, and a leg cut wrong still resonates in the wrong "
+         "place. On the day, trim for a dip inside the band; leave the tuner for the last bit "
+         "towards the band edges."),
     )
 
 
@@ -335,10 +335,10 @@ def site_fit_lines(cuts: DesignCuts, width_m: float | None, depth_m: float | Non
     if o == "as drawn":
         return (f"{span}: fits {site} as drawn (bearings as given).",)
     if o == "turned":
-        return (f"{span}: does not fit {site} as drawn, but fits turned 90 degrees: add 90 "
-                "degrees to every bearing (or lay the long axis along the site's longer side); "
-                f"the stakes then span {format_distance(fp.depth_m, units)} E-W x "
-                f"{format_distance(fp.width_m, units)} N-S.",)
+        return ((f"{span}: does not fit {site} as drawn, but fits turned 90 degrees: add 90 "
+                 "degrees to every bearing (or lay the long axis along the site's longer side); "
+                 f"the stakes then span {format_distance(fp.depth_m, units)} E-W x "
+                 f"{format_distance(fp.width_m, units)} N-S."),)
     lines = [f"{span}: DOES NOT FIT {site} in either orientation. What would:"]
     d = cuts.design
     if d.mount == "flat":

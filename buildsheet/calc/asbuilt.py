@@ -169,9 +169,9 @@ def element_state(element_id: str, cut: ElementCut, history: ElementHistory | No
     latest = history.measurements[-1].dip_hz if history is not None and history.measurements else None
     any_cut = any(leg.cut_m is not None for leg in legs)
     status: Status = "not cut" if not any_cut else "cut"
-    if reading is not None:
+    if reading is not None and history is not None:  # a reading comes from a history
         status = "measured"
-        untouched = all(not history.leg_trims(s) or  # type: ignore[union-attr]
+        untouched = all(not history.leg_trims(s) or
                         history.leg_trims(s)[-1].time <= reading.time for s in SIDES)
         if untouched and abs(reading.dip_hz - f0) <= ON_FREQUENCY_FRACTION * f0:
             status = "tuned"

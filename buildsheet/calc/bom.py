@@ -14,9 +14,8 @@ from dataclasses import dataclass
 
 from buildsheet.calc.stock import DEFAULT_TOLERANCE_M
 from buildsheet.constants import FOOT
-from buildsheet.spec.units import format_distance, format_length
 from buildsheet.errors import Problem, SpecError
-
+from buildsheet.spec.units import format_distance, format_length
 
 _MM = re.compile(r"(?<![(\w.])(\d+(?:\.\d+)?(?:-\d+(?:\.\d+)?)? mm2?)(?![\w)])")
 

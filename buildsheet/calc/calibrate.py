@@ -25,7 +25,7 @@ import json
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import asdict, dataclass, replace
-from typing import Any, Literal
+from typing import Any
 
 import numpy as np
 from scipy.optimize import least_squares

@@ -3,7 +3,8 @@ every cut of the day and the spool cut plan (buildsheet.calc.stock does the pack
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Mapping, Set
+from collections.abc import Iterable, Mapping
+from collections.abc import Set as AbstractSet
 
 from buildsheet.calc.bom import BomLine, KitNeeds, WireNeed, catalogue_title, day_bom, kit_bom
 from buildsheet.calc.cuts import DesignCuts
@@ -48,7 +49,7 @@ def kit_needs(kit: Kit, cuts: DesignCuts, units: str = "metric") -> KitNeeds:
 
 
 def day_cuts(spec: Design, cuts_by_design: dict[str, DesignCuts],
-             already_cut: Set[str] = frozenset()) -> tuple[Cut, ...]:
+             already_cut: AbstractSet[str] = frozenset()) -> tuple[Cut, ...]:
     """Every wire and cord piece on the day's bill still to cut, with stable IDs: legs
     (K03-40m-A), tie-off cords (K03-40m-A-T), halyards (-H) and support guys (-G1..) of end
     supports, the kit's hang loop (K03-hang), balun loop (K03-balun) and spare cord (K03-spare).
@@ -105,7 +106,7 @@ def stock_items(spec: Design, used_m: Mapping[str, float] | None = None,
     return tuple(merged)
 
 
-def logistics(spec: Design, cuts: Iterable[DesignCuts], already_cut: Set[str] = frozenset()
+def logistics(spec: Design, cuts: Iterable[DesignCuts], already_cut: AbstractSet[str] = frozenset()
               ) -> tuple[dict[str, tuple[BomLine, ...]], tuple[BomLine, ...], SpoolPlan]:
     """Per-kit BOMs and the day's BOM (every kit, cut or not) and the spool cut plan for the
     pieces still to cut, against the stock left after the pieces already cut."""

@@ -30,28 +30,28 @@ def site_cautions(units: UnitSystem = "metric") -> tuple[str, ...]:
     """Cautions on every kit sheet (common practice), figures in the packet's units."""
     three, ten = _pair("3 m", "10 ft", units), _pair("10 m", "33 ft", units)
     return (
-        "Overhead power lines: look up before raising anything. If the mast or antenna fell, no "
-        f"part may come within {three} of a power line; utilities advise 1.5-2 times the "
-        "mast-plus-antenna height. Never raise a mast near lines.",
-        "If anything touches a power line: do not touch it, the mast, the wire, the cords or "
-        f"anyone in contact with them; keep everyone at least {ten} away; call the utility and "
-        "the emergency services; do not try to free it.",
-        "Mast handling: raise and lower push-up masts with helpers, tape or pin the joints, guy "
-        "before extending, and keep clear of the fall zone. Keep within the mast maker's wind "
-        "rating: lower the mast when the wind rises above it.",
-        "Eye protection when cutting or unspooling wire (a springing wire end whips) and when "
-        "driving stakes; gloves for handling cord and wire.",
-        "Stakes: cap or flag every stake head; drive them leaning 45-60 degrees away from the load "
-        "and double-stake in soft ground.",
-        "Guy lines, tie-off cords and coax are trip hazards: flag them and route them away from "
-        "paths.",
-        "No transmitting, tune-up included, while anyone is handling an element, a cord or the "
-        "feed; say so aloud before keying and use an antenna analyzer for finding dips.",
-        "RF exposure: element ends carry high RF voltage; keep everyone outside the keep-out "
-        "around low ends and the feed while transmitting. See the exposure screen.",
-        "Lightning and static: do not operate in thunderstorms; disconnect and ground the feed "
-        "line when not in use; a bleed resistor (about 1 megohm) across the feed drains static "
-        "charge.",
+        ("Overhead power lines: look up before raising anything. If the mast or antenna fell, no "
+         f"part may come within {three} of a power line; utilities advise 1.5-2 times the "
+         "mast-plus-antenna height. Never raise a mast near lines."),
+        ("If anything touches a power line: do not touch it, the mast, the wire, the cords or "
+         f"anyone in contact with them; keep everyone at least {ten} away; call the utility and "
+         "the emergency services; do not try to free it."),
+        ("Mast handling: raise and lower push-up masts with helpers, tape or pin the joints, guy "
+         "before extending, and keep clear of the fall zone. Keep within the mast maker's wind "
+         "rating: lower the mast when the wind rises above it."),
+        ("Eye protection when cutting or unspooling wire (a springing wire end whips) and when "
+         "driving stakes; gloves for handling cord and wire."),
+        ("Stakes: cap or flag every stake head; drive them leaning 45-60 degrees away from the "
+         "load and double-stake in soft ground."),
+        ("Guy lines, tie-off cords and coax are trip hazards: flag them and route them away from "
+         "paths."),
+        ("No transmitting, tune-up included, while anyone is handling an element, a cord or the "
+         "feed; say so aloud before keying and use an antenna analyzer for finding dips."),
+        ("RF exposure: element ends carry high RF voltage; keep everyone outside the keep-out "
+         "around low ends and the feed while transmitting. See the exposure screen."),
+        ("Lightning and static: do not operate in thunderstorms; disconnect and ground the feed "
+         "line when not in use; a bleed resistor (about 1 megohm) across the feed drains static "
+         "charge."),
         DEFER,
     )
 
@@ -60,13 +60,13 @@ def station_cautions(units: UnitSystem = "metric") -> tuple[str, ...]:
     """The short list on the day's bill of materials and the log forms (common practice)."""
     three, ten = _pair("3 m", "10 ft", units), _pair("10 m", "33 ft", units)
     return (
-        f"Look up before raising anything: no part of a mast or antenna may come within about "
-        f"{three} of a power line if it falls. If anything touches a line, keep everyone {ten} "
-        "away and call the utility.",
-        "Eye protection when cutting or unspooling wire and driving stakes; gloves for cord and "
-        "wire.",
-        "Raise masts with helpers, within the mast maker's wind rating; flag guy lines, tie-off "
-        "cords and feed lines (trip hazards); cap or flag stake heads.",
+        (f"Look up before raising anything: no part of a mast or antenna may come within about "
+         f"{three} of a power line if it falls. If anything touches a line, keep everyone {ten} "
+         "away and call the utility."),
+        ("Eye protection when cutting or unspooling wire and driving stakes; gloves for cord and "
+         "wire."),
+        ("Raise masts with helpers, within the mast maker's wind rating; flag guy lines, tie-off "
+         "cords and feed lines (trip hazards); cap or flag stake heads."),
         "No transmitting, tune-up included, while anyone handles an element.",
         DEFER,
     )

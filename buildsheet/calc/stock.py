@@ -21,6 +21,7 @@ Bills of materials live in ``buildsheet.calc.bom``.
 
 from __future__ import annotations
 
+import itertools
 import math
 import re
 from collections import Counter, defaultdict
@@ -399,7 +400,9 @@ def _milp(needs: Sequence[int], caps: Sequence[int]) -> tuple[_Packing, bool] | 
     cap = np.array([c // 1000 for c in caps], dtype=float)  # mm, rounded down
     nz, ny = T * J, J
     nvar = nz + ny + T
-    rows, lo, hi = [], [], []
+    rows: list[np.ndarray] = []
+    lo: list[float] = []  # row bounds, mm or counts
+    hi: list[float] = []
     for t in range(T):  # every cut placed or left over
         r = np.zeros(nvar)
         r[t * J:(t + 1) * J] = 1.0
@@ -415,7 +418,7 @@ def _milp(needs: Sequence[int], caps: Sequence[int]) -> tuple[_Packing, bool] | 
         lo.append(-np.inf)
         hi.append(0.0)
     order = sorted(range(J), key=lambda j: (caps[j], j))
-    for a, b in zip(order, order[1:]):  # symmetry: identical spools open in order
+    for a, b in itertools.pairwise(order):  # symmetry: identical spools open in order
         if caps[a] == caps[b]:
             r = np.zeros(nvar)
             r[nz + a], r[nz + b] = 1.0, -1.0
@@ -425,7 +428,6 @@ def _milp(needs: Sequence[int], caps: Sequence[int]) -> tuple[_Packing, bool] | 
     ub = np.concatenate([np.repeat(np.array(count, float), J), np.ones(ny), np.array(count, float)])
     bounds = Bounds(np.zeros(nvar), ub)
     integrality = np.ones(nvar)
-    objectives = []
     c_lost = np.zeros(nvar)
     c_lost[nz + ny:] = length
     c_open = np.zeros(nvar)

@@ -48,17 +48,17 @@ def read_observations(store: Any, design: Any, ids: Sequence[str],
             raise RecordError(f"--from {row.id}: no dip recorded for it yet; record one with "
                               f"`buildsheet measure {row.id} --dip FREQ`")
         m = h.measurements[-1]
-        leg = legs(h, m.time)
-        assert leg is not None  # a reading confirms both legs
-        obs.append(Observation(row.id, row.key, leg, m.dip_hz, row.kit, swr=m.swr))
+        leg_m = legs(h, m.time)
+        assert leg_m is not None  # a reading confirms both legs
+        obs.append(Observation(row.id, row.key, leg_m, m.dip_hz, row.kit, swr=m.swr))
     kits = {row.kit for row in rows}
     kit_legs: dict[str, dict[str, float]] = {}
     for h in histories.values():
         e = h.element
         if e.kit in kits and e.design == design.key and e.status == "active" and e.key in keys:
-            leg = legs(h)
-            if leg is not None:
-                kit_legs.setdefault(e.kit, {})[e.key] = leg
+            kit_leg_m = legs(h)
+            if kit_leg_m is not None:
+                kit_legs.setdefault(e.kit, {})[e.key] = kit_leg_m
     return obs, kit_legs
 
 

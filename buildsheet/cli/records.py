@@ -15,10 +15,13 @@ import sys
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
-from typing import Any, TextIO
+from typing import TYPE_CHECKING, Any, TextIO
 
 from buildsheet.errors import RecordError, UsageError
 from buildsheet.store.ledger import STORE_SUFFIX
+
+if TYPE_CHECKING:
+    from buildsheet.spec.units import UnitSystem
 
 #: Where a record command looks, in order, when no option names the store.
 SEARCH_NOTE = ("--store PATH, --spec SPEC (its store beside it), --packet DIR (the store named in "
@@ -173,7 +176,7 @@ def sweep_reading(name: str, data: bytes) -> tuple[float, float, Any, Any]:
 
 
 def _entry(store: Any, choice: StoreChoice, args: argparse.Namespace,
-           element_id: str) -> tuple[Any, str] | None:
+           element_id: str) -> tuple[Any, UnitSystem] | None:
     """The packet entry of one element, computed over the store's ledger now (None when the
     store's spec is not known)."""
     from buildsheet.build import entries_from_store
@@ -190,7 +193,7 @@ def _entry(store: Any, choice: StoreChoice, args: argparse.Namespace,
     return found[0], spec.event.units
 
 
-def print_state(found: tuple[Any, str] | None, out: TextIO) -> None:
+def print_state(found: tuple[Any, UnitSystem] | None, out: TextIO) -> None:
     """Both legs and the instruction, as the sheets print them."""
     from buildsheet.spec.units import format_both
 
@@ -242,6 +245,7 @@ def handle_measure(args: argparse.Namespace, out: TextIO | None = None) -> int:
     if (args.dip is None) == (args.sweep is None):
         raise RecordError("measure: give exactly one of --dip FREQ or --sweep FILE")
     fit = None
+    swr_value: float | None
     note = args.note or ""
     if args.sweep is not None:
         path = Path(args.sweep)

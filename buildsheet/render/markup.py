@@ -13,6 +13,7 @@ from xml.sax.saxutils import escape
 
 from reportlab.pdfbase.pdfmetrics import stringWidth
 
+
 def plain(text: object) -> str:
     """``text`` as paragraph markup that shows exactly ``text``: ``&``, ``<``, ``>`` and quotes
     escaped, control characters dropped. (Words too long for their cell are split by the

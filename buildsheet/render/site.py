@@ -11,16 +11,16 @@ from __future__ import annotations
 import re
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
 from importlib.resources import files
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import jinja2
 
 from buildsheet.errors import BuildError
+from buildsheet.records import SIDES, ElementHistory
 from buildsheet.spec.units import format_frequency, format_length
 from buildsheet.store.files import write_atomic
-from buildsheet.records import SIDES, ElementHistory
 
 if TYPE_CHECKING:
     from buildsheet.packet import ElementEntry

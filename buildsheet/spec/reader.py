@@ -30,7 +30,7 @@ from buildsheet.em.ground import (
     real_ground,
 )
 from buildsheet.errors import Problem, SpecError
-from buildsheet.spec import bands
+from buildsheet.spec import bands, values
 from buildsheet.spec.design import (
     Allowances,
     AntennaDesign,
@@ -43,7 +43,6 @@ from buildsheet.spec.design import (
     Site,
     SpoolSpec,
 )
-from buildsheet.spec import values
 from buildsheet.spec.units import format_frequency, parse_frequency, parse_length
 from buildsheet.spec.values import kind_of, shown
 from buildsheet.spec.wires import BUILTIN_WIRES, MATERIALS, WireType, awg_diameter
@@ -186,9 +185,12 @@ def _either(value: Any, default: Any) -> Any:
 
 
 def _conductivity(value: Any) -> float:
-    """Ground conductivity: a number in S/m, or a string "5 mS/m" / "0.005 S/m", S/m."""
+    """Ground conductivity: a number in S/m, or a string "5 mS/m" / "0.005 S/m", S/m.
+
+    TypeError for a value of another type, ValueError for a bad number or unit (both reported
+    by ``_Reader.convert``)."""
     if isinstance(value, bool):
-        raise ValueError(f"expected a conductivity such as \"5 mS/m\", got {value!r}")
+        raise TypeError(f"expected a conductivity such as \"5 mS/m\", got {value!r}")
     if isinstance(value, (int, float)):
         number, scale = float(value), 1.0
     elif isinstance(value, str):
@@ -200,7 +202,7 @@ def _conductivity(value: Any) -> float:
         else:
             raise ValueError(f"{value!r}: give a conductivity in S/m or mS/m, e.g. \"5 mS/m\"")
     else:
-        raise ValueError(f"expected a conductivity such as \"5 mS/m\", got {value!r}")
+        raise TypeError(f"expected a conductivity such as \"5 mS/m\", got {value!r}")
     sigma = number * scale
     if not (0.0 <= sigma <= 10.0) or not math.isfinite(sigma):
         raise ValueError(f"{value!r} is out of range; allowed 0 to 10 S/m")
@@ -261,7 +263,7 @@ def _read_wire(r: _Reader, key: str, table: Any) -> WireType | None:
                     f"{path}.permittivity", values.number(float, 1.0, 20.0))
     cladding = r.convert(t.get("cladding_fraction", 0.1 if material == "copper_clad_steel" else 0.0),
                          f"{path}.cladding_fraction", values.number(float, 0.0, 1.0))
-    if None in (diameter, material, insulation, eps, cladding):
+    if diameter is None or insulation is None or None in (material, eps, cladding):
         return None
     title = r.text(t, "title", path, key, values.TITLE_MAX)
     stranding = r.text(t, "stranding", path, "", values.NOTE_MAX)
@@ -372,21 +374,21 @@ def _read_design(r: _Reader, key: str, table: Any, wires: dict[str, WireType],
         r.bad(f"{path}.min_trim", f"{shown(t.get('min_trim'))} is not allowed: give the minimum "
               "trim as a percentage of the leg, e.g. \"1 %\"")
         min_trim = None
-    lengths = {name: r.length(t.get(name, DEFAULTS[name]), f"{path}.{name}", allow_zero=True)
-               for name in ("termination", "feed_allowance", "cord_knot", "cord_hitch")}
+    termination, feed_allowance, cord_knot, cord_hitch = (
+        r.length(t.get(name, DEFAULTS[name]), f"{path}.{name}", allow_zero=True)
+        for name in ("termination", "feed_allowance", "cord_knot", "cord_hitch"))
     coax = r.choice(t.get("coax", "rg58"), f"{path}.coax", _COAX)
     coax_length = r.length(t.get("coax_length", "15 m"), f"{path}.coax_length")
     angle = r.convert(t.get("tie_off_angle", 45.0), f"{path}.tie_off_angle",
                       values.number(float, 10.0, 80.0))
-    parts = (kind, mount, apex, end, wire, trim, min_trim, coax, coax_length, angle,
-             *lengths.values())
-    if any(v is None for v in parts) or not isinstance(elements_raw, list) or \
-            len(elements) != len(elements_raw):
+    if (apex is None or end is None or wire is None or coax_length is None
+            or termination is None or feed_allowance is None or cord_knot is None
+            or cord_hitch is None
+            or any(v is None for v in (kind, mount, trim, min_trim, coax, angle))
+            or not isinstance(elements_raw, list) or len(elements) != len(elements_raw)):
         return None
-    assert trim is not None and min_trim is not None  # both checked just above
-    allowances = Allowances(trim[0], trim[1], min_trim[0], lengths["termination"],
-                            lengths["feed_allowance"], lengths["cord_knot"], lengths["cord_hitch"],
-                            "trim_allowance" in t)
+    allowances = Allowances(trim[0], trim[1], min_trim[0], termination, feed_allowance,
+                            cord_knot, cord_hitch, "trim_allowance" in t)
     return AntennaDesign(key, title, kind, mount, apex, wire, tuple(elements),
                          allowances, coax, coax_length, float(angle))
 

@@ -96,7 +96,7 @@ def text(limit: int = NAME_MAX, *, multiline: bool = False) -> Callable[[Any], s
 
 def date(value: Any) -> str:
     """A date, TOML (2027-03-13) or text ("2027-03-13"), as ISO 8601 text."""
-    if isinstance(value, dt.datetime) or isinstance(value, dt.time):
+    if isinstance(value, (dt.datetime, dt.time)):
         raise ValueError(f"expected a date like 2027-03-13 (no time of day), got {shown(value)}")
     if isinstance(value, dt.date):
         return value.isoformat()

@@ -49,9 +49,9 @@ def write_output(data: bytes, out: str | os.PathLike[str] | BinaryIO) -> None:
     Raises BuildError naming the path when it cannot be written.
     """
     if hasattr(out, "write"):
-        out.write(data)  # type: ignore[union-attr]
+        out.write(data)
         return
-    path = Path(out)  # type: ignore[arg-type]
+    path = Path(out)
     try:
         write_atomic(path, data)
     except OSError as exc:

@@ -583,8 +583,8 @@ def add_trim(store: RecordStore, element_id: str, leg: Leg, delta_m: float, note
         _confirm_uncut(conn, row, "first trim", stamp)
         history = _history_rows(conn, element_id)
         for side in (SIDES if leg == "both" else (leg,)):
-            cut = history.leg_cut(side)  # type: ignore[arg-type]
-            left = history.current_leg_m(side)  # type: ignore[arg-type]
+            cut = history.leg_cut(side)
+            left = history.current_leg_m(side)
             assert cut is not None and left is not None
             if delta_m >= left:
                 raise RecordError(
@@ -616,8 +616,9 @@ def void_record(store: RecordStore, kind: VoidKind, record_id: int, reason: str,
             raise RecordError(f"void: there is no {kind} number {record_id}; `buildsheet "
                               "history ID` lists the numbers")
         history = _history_rows(conn, found[0])
-        record = next((r for r in (*history.measurements, *history.trims, *history.cuts)
-                       if r.id == record_id and _kind(r) == kind), None)
+        records: tuple[Measurement | Trim | LegCut, ...] = (
+            *history.measurements, *history.trims, *history.cuts)
+        record = next((r for r in records if r.id == record_id and _kind(r) == kind), None)
         if record is None:
             raise RecordError(f"void: {kind} {record_id} of {found[0]} is already void")
         key = _void_key(record)

@@ -127,7 +127,10 @@ def diff_manifests(old: Manifest | None, new: Manifest,
     if not (math.isfinite(tolerance) and tolerance >= 0):
         raise ValueError(f"tolerance must be a fraction >= 0, got {tolerance}")
     old_elements: Mapping[str, ManifestElement] = old.elements if old else {}
-    new_ids, changed, unchanged, rechecks = [], [], [], []
+    new_ids: list[str] = []
+    changed: list[str] = []
+    unchanged: list[str] = []
+    rechecks: list[Recheck] = []
     for eid in sorted(new.elements):
         entry = new.elements[eid]
         before = old_elements.get(eid)
@@ -218,17 +221,17 @@ def manifest_from_dict(data: Any) -> Manifest:
     files_map = {str(k): str(v) for k, v in data["files"].items()}
     notes = data.get("notes", [])
     if not isinstance(notes, list) or not all(isinstance(n, str) for n in notes):
-        raise ValueError("notes must be a list of text lines")
+        raise TypeError("notes must be a list of text lines")
     items = data.get("items", {})
     if not isinstance(items, Mapping) or not all(isinstance(v, str) for v in items.values()):
-        raise ValueError("items must map item names to content hashes")
+        raise TypeError("items must map item names to content hashes")
     reprinted = data.get("reprinted", {})
     if not isinstance(reprinted, Mapping) or not all(
             isinstance(v, list) and all(isinstance(x, str) for x in v) for v in reprinted.values()):
-        raise ValueError("reprinted must map kit_sheets, labels and day_pages to lists of names")
+        raise TypeError("reprinted must map kit_sheets, labels and day_pages to lists of names")
     store = data.get("store", "")
     if not isinstance(store, str):
-        raise ValueError("store must be a path (text)")
+        raise TypeError("store must be a path (text)")
     return Manifest(data["spec_hash"], data["revision"], data["built_at"], elements, files_map,
                     spec=str(data.get("spec", "")), notes=tuple(notes), items=dict(items),
                     reprinted={k: list(v) for k, v in reprinted.items()}, store=store)
