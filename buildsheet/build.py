@@ -18,6 +18,7 @@ from datetime import datetime
 from pathlib import Path
 from typing import Any
 
+from buildsheet.em.context import Solver
 from buildsheet.em.prediction import ModelName
 from buildsheet.errors import BuildError, Problem
 from buildsheet.packet import DAY_PAGES, ElementEntry, Packet, build_packet, entry_fingerprint
@@ -65,6 +66,8 @@ class BuildResult:
     store: Path | None = None
     sync: SyncReport | None = None
     report: str = ""  # the change table and re-check lines, for the terminal
+    matrix_fills: int = 0  # impedance matrices filled by this build's solver context
+    repeated_fills: int = 0  # of those, fills of a mesh and frequency already filled
 
 
 @dataclass(frozen=True)
@@ -321,7 +324,8 @@ def stored_calibrations(store: RecordStore, spec: Design) -> dict[str, Any]:
 
 
 def packet_from_store(spec: Design, store: RecordStore, *, built_at: str,
-                      model: ModelName = "mom") -> tuple[Packet, dict[str, ElementHistory]]:
+                      model: ModelName = "mom", solver: Solver | None = None,
+                      ) -> tuple[Packet, dict[str, ElementHistory]]:
     """Read the ledger once and compute the packet over it (used by ``build`` and by every
     record command that prints a number from the design)."""
     from buildsheet.store.ledger import load_histories
@@ -334,11 +338,12 @@ def packet_from_store(spec: Design, store: RecordStore, *, built_at: str,
         pin = organiser_pin(store)
     packet = build_packet(spec, built_at=built_at, model=model,
                           calibrations=stored_calibrations(store, spec), histories=histories,
-                          organiser_pin=pin)
+                          organiser_pin=pin, solver=solver)
     return packet, histories
 
 
-def entries_from_store(spec: Design, store: RecordStore, *, model: ModelName = "mom"
+def entries_from_store(spec: Design, store: RecordStore, *, model: ModelName = "mom",
+                       solver: Solver | None = None,
                        ) -> tuple[tuple[ElementEntry, ...], dict[str, ElementHistory]]:
     """The packet's element entries (as-built state, advice) over the ledger, without the
     day-level logistics and coverage: what the record commands print from."""
@@ -347,7 +352,7 @@ def entries_from_store(spec: Design, store: RecordStore, *, model: ModelName = "
 
     histories = {h.element.id: h for h in load_histories(store)}
     cals = usable_calibrations(spec, stored_calibrations(store, spec))
-    return element_entries(spec, solve_designs(spec, model, cals), histories), histories
+    return element_entries(spec, solve_designs(spec, model, cals, solver), histories), histories
 
 
 #: Store state key holding the spec of the latest packet (relative to the store's folder).
@@ -421,9 +426,10 @@ def _build(spec_path: str | Path, out_dir: str | Path, *, built_at: str, model: 
         pass  # prepare_staging reports an unwritable folder with its location
     previous = read_manifest(out / MANIFEST_JSON) if out.is_dir() else None
     missing_store(store_file, out, previous, new_store)
+    solver = Solver()  # every impedance matrix of this build is filled once, here
     with open_store(store_file, verify=True) as store:
         draft, histories = packet_from_store(spec, store, built_at=built_at,    # 2-3. ledger,
-                                             model=model)                         # packet
+                                             model=model, solver=solver)          # packet
         packet = replace(draft, revision=next_revision(previous, spec.spec_hash, draft.items))
         hashes = element_hashes(packet)
         diff = only_cut_rechecks(diff_manifests(previous, manifest_of(packet, hashes), tolerance),
@@ -478,7 +484,7 @@ def _build(spec_path: str | Path, out_dir: str | Path, *, built_at: str, model: 
     listed = [n for n in docs.files if "/" not in n]
     listed += sorted({n.split("/")[0] + "/" for n in docs.files if "/" in n})
     return BuildResult(out, (*listed, f"{SITE_DIR}/", MANIFEST_JSON), packet, manifest,
-                       diff, store_file, sync, report)
+                       diff, store_file, sync, report, solver.fills, solver.repeats)
 
 
 def _relative(path: Path, folder: Path) -> str:

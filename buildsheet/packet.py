@@ -37,6 +37,7 @@ from buildsheet.calc.logistics import logistics
 from buildsheet.calc.performance import DesignPerformance, design_performance
 from buildsheet.calc.safety import SITE_CAUTIONS
 from buildsheet.calc.stock import SpoolPlan
+from buildsheet.em.context import Solver, solver_or_new
 from buildsheet.em.prediction import ModelName
 from buildsheet.em.solve import predict
 from buildsheet.errors import BuildError, Problem
@@ -127,15 +128,17 @@ def element_id(kit: Kit, element_key: str) -> str:
 
 
 def solve_design(design: AntennaDesign, spec: Design, model: ModelName,
-                 calibration: Calibration | None = None) -> DesignCuts:
+                 calibration: Calibration | None = None,
+                 solver: Solver | None = None) -> DesignCuts:
     """Predict and cut one design: the one home of the prescribed cut length.
 
     With a site calibration for the design, the calibrated prediction replaces the model's
     and the trim allowance shrinks to the calibration's residual uncertainty.
     """
     closed = predict(design, spec.site.ground, "closed_form")
-    model_prediction = closed if model == "closed_form" else predict(design, spec.site.ground, model)
-    prediction = (calibrated_prediction(design, calibration) if calibration is not None
+    model_prediction = (closed if model == "closed_form" else
+                        predict(design, spec.site.ground, model, solver))
+    prediction = (calibrated_prediction(design, calibration, solver) if calibration is not None
                   else model_prediction)
     try:
         return design_cuts(design, prediction, closed,
@@ -264,10 +267,12 @@ def item_fingerprints(spec: Design, cuts: Sequence[DesignCuts],
     return items
 
 
-def solve_designs(spec: Design, model: ModelName,
-                  calibrations: Mapping[str, Calibration]) -> tuple[DesignCuts, ...]:
+def solve_designs(spec: Design, model: ModelName, calibrations: Mapping[str, Calibration],
+                  solver: Solver | None = None) -> tuple[DesignCuts, ...]:
     """Every design predicted and cut (calibrated where a calibration applies), spec order."""
-    return tuple(solve_design(d, spec, model, calibrations.get(d.key)) for d in spec.designs)
+    solver = solver_or_new(solver)
+    return tuple(solve_design(d, spec, model, calibrations.get(d.key), solver)
+                 for d in spec.designs)
 
 
 def element_entries(spec: Design, cuts: Sequence[DesignCuts],
@@ -289,12 +294,15 @@ def element_entries(spec: Design, cuts: Sequence[DesignCuts],
 def build_packet(spec: Design, *, built_at: str, revision: int = 1, model: ModelName = "mom",
                  calibrations: Mapping[str, Calibration] | None = None,
                  histories: Mapping[str, ElementHistory] | None = None,
-                 organiser_pin: str = "") -> Packet:
+                 organiser_pin: str = "", solver: Solver | None = None) -> Packet:
     """Compute everything to print for ``spec`` and the ledger ``histories`` (by element ID);
-    ``organiser_pin`` goes on the cover page only. Raises BuildError for an unbuildable design."""
+    ``organiser_pin`` goes on the cover page only; ``solver``: the build's solver context (a
+    fresh one if None: every matrix of the build is filled once there). Raises BuildError for
+    an unbuildable design."""
+    solver = solver_or_new(solver)
     histories = histories or {}
     cals = usable_calibrations(spec, calibrations or {})
-    cuts = solve_designs(spec, model, cals)
+    cuts = solve_designs(spec, model, cals, solver)
     entries = element_entries(spec, cuts, histories)
     already_cut = tuple(leg.leg_id for e in entries for leg in e.state.legs if leg.cut_m is not None)
     warnings = list(spec.warnings) + [w for c in cuts for w in c.warnings]
@@ -306,10 +314,11 @@ def build_packet(spec: Design, *, built_at: str, revision: int = 1, model: Model
         warnings.append(f"not enough {buy.material} on hand: "
                         f"{format_length(buy.short_m, units)} short ({what}); "
                         "see the spool cut plan")
-    performance = tuple(design_performance(c, spec.site.ground, spec.exposure) for c in cuts)
+    performance = tuple(design_performance(c, spec.site.ground, spec.exposure, solver)
+                        for c in cuts)
     site_m = (spec.site.width_m, spec.site.depth_m)
     advice = {c.design.key: design_advice(c, p, spec.event.units, site_m,
-                                          ground=spec.site.ground, model=model)
+                                          ground=spec.site.ground, model=model, solver=solver)
               for c, p in zip(cuts, performance)}
     warnings += [w for a in advice.values() for w in a.warnings]
     for key in sorted(set(calibrations or {}) - set(cals)):

@@ -403,10 +403,11 @@ def crossed_bearings(bearings: list[float]) -> list[float]:
 
 
 def fan_spacing_advice(cuts: DesignCuts, ground: object | None, model: str,
-                       units: UnitSystem) -> tuple[tuple[str, ...], tuple[str, ...]]:
+                       units: UnitSystem, solver: object | None = None) -> tuple[tuple[str, ...], tuple[str, ...]]:
     """(lines, warnings) for fan elements closer than about 30-45 degrees: which pairs, how far
     each modelled leg moves against the same elements spread evenly (crossed, for two), and
-    spreader guidance (common practice). ``ground``/``model`` re-solve the spread layout."""
+    spreader guidance (common practice). ``ground``/``model`` re-solve the spread layout (through
+    ``solver``, the build's solver context)."""
     els = cuts.elements
     d = cuts.design
     close = [(a, b, axis_separation_deg(a.element.bearing_deg, b.element.bearing_deg))
@@ -427,7 +428,7 @@ def fan_spacing_advice(cuts: DesignCuts, ground: object | None, model: str,
         spread = crossed_bearings([c.element.bearing_deg for c in els])
         variant = replace(d, elements=tuple(replace(c.element, bearing_deg=b)
                                             for c, b in zip(els, spread)))
-        ref = predict(variant, ground, model)  # type: ignore[arg-type]
+        ref = predict(variant, ground, model, solver)  # type: ignore[arg-type]
         what = "crossed at 90 deg" if len(els) == 2 else f"spread {180 / len(els):.0f} deg apart"
         moves = []
         for c in els:
@@ -449,7 +450,8 @@ def fan_spacing_advice(cuts: DesignCuts, ground: object | None, model: str,
 
 def design_advice(cuts: DesignCuts, perf: DesignPerformance, units: UnitSystem,
                   site_m: tuple[float | None, float | None] = (None, None), *,
-                  ground: object | None = None, model: str = "closed_form") -> DesignAdvice:
+                  ground: object | None = None, model: str = "closed_form",
+                  solver: object | None = None) -> DesignAdvice:
     """Word the advice for one solved design (``site_m``: site width E-W and depth N-S, m;
     ``ground`` and ``model`` let the fan-spacing note re-solve an evenly spread layout)."""
     d = cuts.design
@@ -460,7 +462,7 @@ def design_advice(cuts: DesignCuts, perf: DesignPerformance, units: UnitSystem,
                                                   units)) is not None]
     rules, sixty_warnings = sixty_metre_advice(cuts, screens)
     warnings += sixty_warnings
-    spacing, spacing_warnings = fan_spacing_advice(cuts, ground, model, units)
+    spacing, spacing_warnings = fan_spacing_advice(cuts, ground, model, units, solver)
     warnings += spacing_warnings
     if d.mount == "flat" and d.tie_off_angle_deg != 45.0:
         warnings.append(f"{d.key}: tie_off_angle is not used: a flat dipole hangs from end "

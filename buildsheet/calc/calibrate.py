@@ -28,8 +28,8 @@ from dataclasses import asdict, dataclass, replace
 from typing import Any
 
 import numpy as np
-from scipy.optimize import least_squares
 
+from buildsheet.em.context import Solver, solver_or_new
 from buildsheet.em.deployed import DeployedAntenna
 from buildsheet.em.ground import (
     FREE_SPACE,
@@ -39,7 +39,7 @@ from buildsheet.em.ground import (
     GroundClass,
     real_ground,
 )
-from buildsheet.em.mom import Mesh, mesh_for, port_impedances, with_ground
+from buildsheet.em.mom import Mesh, mesh_for, with_ground
 from buildsheet.em.prediction import DesignPrediction
 from buildsheet.em.solve import deployed_antenna, predict_mom
 from buildsheet.errors import BuildError
@@ -179,33 +179,34 @@ def _with_ground(mesh: Mesh, ground: Ground) -> Mesh:
     return with_ground(mesh, ground)
 
 
-def _impedance_and_slope(mesh: Mesh, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def _impedance_and_slope(solver: Solver, mesh: Mesh, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Feed impedance Z (ohm) at f and dX/df (ohm/Hz) by a forward difference."""
-    z = port_impedances(mesh, np.concatenate([f, f * (1 + DF_REL)]))[:, 0, 0]
+    z = solver.port_impedances(mesh, np.concatenate([f, f * (1 + DF_REL)]))[:, 0, 0]
     n = f.size
     return z[:n], (z[n:].imag - z[:n].imag) / (f * DF_REL)
 
 
-def _linear_resonance(mesh: Mesh, f: np.ndarray) -> np.ndarray:
+def _linear_resonance(solver: Solver, mesh: Mesh, f: np.ndarray) -> np.ndarray:
     """Model resonance near each f by one Newton step on X(f) = 0, Hz (error ~ second order)."""
-    return _linear_model(mesh, f)[0]
+    return _linear_model(solver, mesh, f)[0]
 
 
-def _linear_model(mesh: Mesh, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def _linear_model(solver: Solver, mesh: Mesh, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Model resonance (Hz, one Newton step from f) and feed resistance at f (ohm)."""
-    z, dx = _impedance_and_slope(mesh, f)
+    z, dx = _impedance_and_slope(solver, mesh, f)
     step = np.clip(-z.imag / np.where(dx > 0, dx, np.nan), -0.1 * f, 0.1 * f)
     return f + step, z.real
 
 
-def resonance_near(mesh: Mesh, f_start: float) -> float:
+def resonance_near(mesh: Mesh, f_start: float, solver: Solver | None = None) -> float:
     """Zero crossing of the feed reactance (rising with f) nearest ``f_start``, Hz.
 
     Newton's method with dX/df from the model; BuildError when it does not settle.
     """
+    solver = solver_or_new(solver)
     f = np.array([f_start])
     for _ in range(RESONANCE_ITERATIONS):
-        new = _linear_resonance(mesh, f)
+        new = _linear_resonance(solver, mesh, f)
         if not np.all(np.isfinite(new)):
             break
         if abs(new[0] - f[0]) <= 1e-7 * f[0]:
@@ -231,7 +232,7 @@ class _Case:
 
 
 def _kit_meshes(design: AntennaDesign, site_ground: Ground, observations: Sequence[Observation],
-                kit_legs: Mapping[str, Mapping[str, float]]) -> tuple[list[_Case], list[Outlier]]:
+                kit_legs: Mapping[str, Mapping[str, float]], solver: Solver) -> tuple[list[_Case], list[Outlier]]:
     """Mesh of each observed kit: observed legs, else kit_legs, else the site prediction."""
     keys = [e.key for e in design.elements]
     predicted: dict[str, float] | None = None
@@ -248,7 +249,7 @@ def _kit_meshes(design: AntennaDesign, site_ground: Ground, observations: Sequen
         legs[o.element_key] = o.electrical_leg_m
         if any(k not in legs for k in keys):
             if predicted is None:
-                predicted = {e.key: e.leg_length_m for e in predict_mom(design, site_ground).elements}
+                predicted = {e.key: e.leg_length_m for e in predict_mom(design, site_ground, solver).elements}
             legs = {**predicted, **legs}
         lengths = tuple(float(legs[k]) for k in keys)
         if lengths not in meshes:
@@ -258,7 +259,7 @@ def _kit_meshes(design: AntennaDesign, site_ground: Ground, observations: Sequen
                 ant: DeployedAntenna = deployed_antenna(design, _MESH_GROUND, lengths)
                 if any(abs(e.leg_length_m - l) > 1e-9 for e, l in zip(ant.elements, lengths)):
                     raise BuildError("a leg is too short to reach its end height")
-                meshes[lengths] = mesh_for(ant)
+                meshes[lengths] = mesh_for(ant, tables=solver.tables)
             except BuildError as exc:
                 bad.append(Outlier(o.element_id, o.element_key, o.dip_hz,
                                    f"probable mis-cut or wrong element: its kit cannot be "
@@ -268,13 +269,13 @@ def _kit_meshes(design: AntennaDesign, site_ground: Ground, observations: Sequen
     return cases, bad
 
 
-def _model_hz(cases: Sequence[_Case], ground: Ground) -> np.ndarray:
+def _model_hz(solver: Solver, cases: Sequence[_Case], ground: Ground) -> np.ndarray:
     """Linearised model resonance of every case over ``ground``, Hz (one Newton step from the
     dip, so it is exact where the fit matters: where model and dip agree)."""
-    return _model(cases, ground)[0]
+    return _model(solver, cases, ground)[0]
 
 
-def _model(cases: Sequence[_Case], ground: Ground) -> tuple[np.ndarray, np.ndarray]:
+def _model(solver: Solver, cases: Sequence[_Case], ground: Ground) -> tuple[np.ndarray, np.ndarray]:
     """Model resonance (Hz, as :func:`_model_hz`) and feed resistance at the dip (ohm) of every
     case over ``ground`` (the resistance varies slowly, so at the dip is at resonance)."""
     out, res = np.empty(len(cases)), np.empty(len(cases))
@@ -284,7 +285,7 @@ def _model(cases: Sequence[_Case], ground: Ground) -> tuple[np.ndarray, np.ndarr
     for idx in groups.values():
         mesh = _with_ground(cases[idx[0]].mesh, ground)
         f = np.array([cases[i].obs.dip_hz for i in idx])
-        out[idx], res[idx] = _linear_model(mesh, f)
+        out[idx], res[idx] = _linear_model(solver, mesh, f)
     return out, res
 
 
@@ -293,12 +294,12 @@ def _swr_of_resistance(r: np.ndarray) -> np.ndarray:
     return np.maximum(r / SWR_Z0_OHM, SWR_Z0_OHM / r)
 
 
-def _envelope_outliers(cases: Sequence[_Case]) -> list[int]:
+def _envelope_outliers(solver: Solver, cases: Sequence[_Case]) -> list[int]:
     """Indices whose dip lies outside every ground's resonance by more than the margin."""
     grounds = (FREE_SPACE, PERFECT_GROUND,
                Ground("real", fitted_class(EPS_RANGE[0], SIGMA_RANGE_S_PER_M[0])),
                Ground("real", fitted_class(EPS_RANGE[1], SIGMA_RANGE_S_PER_M[1])))
-    f = np.array([_model_hz(cases, g) for g in grounds])
+    f = np.array([_model_hz(solver, cases, g) for g in grounds])
     dip = np.array([c.obs.dip_hz for c in cases])
     lo, hi = np.nanmin(f, axis=0), np.nanmax(f, axis=0)
     bad = ~np.isfinite(lo) | (dip < lo * (1 - ENVELOPE_MARGIN)) | (dip > hi * (1 + ENVELOPE_MARGIN))
@@ -329,19 +330,21 @@ def _from_constants(eps_r: float, sigma: float) -> np.ndarray:
     return (u - _LO) / (_HI - _LO)
 
 
-def _fit(cases: Sequence[_Case], p0: np.ndarray, robust: bool) -> np.ndarray:
+def _fit(solver: Solver, cases: Sequence[_Case], p0: np.ndarray, robust: bool) -> np.ndarray:
     """Least squares of the fractional dip errors (scaled by DIP_FRACTION) plus the weak prior,
     over normalised (log eps_r, log sigma) in [0, 1]^2 (scipy trust-region reflective).
 
     Over the exact (Sommerfeld) ground the resonance is not monotonic in the constants, so the
     search starts from the best of the assumed ground and the P.527 classes (lowest objective).
     """
+    from scipy.optimize import least_squares  # a calibration needs it, a packet does not
+
     dip = np.array([c.obs.dip_hz for c in cases])
     has_swr = np.array([c.obs.swr is not None for c in cases])
     swr = np.array([c.obs.swr or 1.0 for c in cases])[has_swr]
 
     def fun(p: np.ndarray) -> np.ndarray:
-        f_model, r_model = _model(cases, _to_ground(p))
+        f_model, r_model = _model(solver, cases, _to_ground(p))
         r = dip / f_model - 1.0
         s = _swr_of_resistance(r_model[has_swr]) / swr - 1.0
         return np.concatenate([r / DIP_FRACTION, s / SWR_FRACTION, (p - p0) / PRIOR_WIDTH])
@@ -354,7 +357,8 @@ def _fit(cases: Sequence[_Case], p0: np.ndarray, robust: bool) -> np.ndarray:
 
 
 def fit_site(design: AntennaDesign, site_ground: Ground, observations: Sequence[Observation],
-             kit_legs: Mapping[str, Mapping[str, float]] | None = None) -> Calibration:
+             kit_legs: Mapping[str, Mapping[str, float]] | None = None,
+             solver: Solver | None = None) -> Calibration:
     """Fit the ground constants so the model reproduces the measured dips.
 
     ``site_ground``: the spec's assumed ground (the fit starts there and leans on it only where
@@ -364,8 +368,9 @@ def fit_site(design: AntennaDesign, site_ground: Ground, observations: Sequence[
     """
     if not observations:
         raise BuildError(f"design {design.key!r}: no measurements to calibrate from")
-    cases, outliers = _kit_meshes(design, site_ground, observations, kit_legs or {})
-    for i in _envelope_outliers(cases):
+    solver = solver_or_new(solver)
+    cases, outliers = _kit_meshes(design, site_ground, observations, kit_legs or {}, solver)
+    for i in _envelope_outliers(solver, cases):
         o = cases[i].obs
         outliers.append(Outlier(o.element_id, o.element_key, o.dip_hz,
                                 "probable mis-cut, wrong wire or wrong element: the dip is "
@@ -379,8 +384,8 @@ def fit_site(design: AntennaDesign, site_ground: Ground, observations: Sequence[
     gc = site_ground.ground_class
     p0 = (_from_constants(gc.eps_r, gc.sigma) if site_ground.kind == "real" and gc else
           _from_constants(*np.exp((_LO + _HI) / 2)))
-    p = _fit(keep, p0, robust=len(keep) >= 3)
-    r = np.array([c.obs.dip_hz for c in keep]) / _model_hz(keep, _to_ground(p)) - 1.0
+    p = _fit(solver, keep, p0, robust=len(keep) >= 3)
+    r = np.array([c.obs.dip_hz for c in keep]) / _model_hz(solver, keep, _to_ground(p)) - 1.0
     flagged = _mad_outliers(r)
     if flagged:
         for i in flagged:
@@ -390,20 +395,20 @@ def fit_site(design: AntennaDesign, site_ground: Ground, observations: Sequence[
                                     f"{r[i]:+.2%} from the fitted model while the others agree "
                                     f"within {np.median(np.abs(np.delete(r, flagged))):.2%}"))
         keep = [c for i, c in enumerate(keep) if i not in flagged]
-        p = _fit(keep, p0, robust=False)
-    return _summarise(design, site_ground, keep, outliers, p)
+        p = _fit(solver, keep, p0, robust=False)
+    return _summarise(solver, design, site_ground, keep, outliers, p)
 
 
-def _summarise(design: AntennaDesign, site_ground: Ground, keep: Sequence[_Case],
+def _summarise(solver: Solver, design: AntennaDesign, site_ground: Ground, keep: Sequence[_Case],
                outliers: Sequence[Outlier], p: np.ndarray) -> Calibration:
     """Exact residuals, nearest class, band ratios and uncertainty of a fitted ground."""
     fitted = _to_ground(p)
     assert fitted.ground_class is not None
     dip = np.array([c.obs.dip_hz for c in keep])
-    rms = {k: float(np.sqrt(np.mean((dip / _model_hz(keep, Ground("real", g)) - 1.0) ** 2)))
+    rms = {k: float(np.sqrt(np.mean((dip / _model_hz(solver, keep, Ground("real", g)) - 1.0) ** 2)))
            for k, g in GROUND_CLASSES.items()}
     like = min(rms, key=lambda k: rms[k])
-    model = np.array([resonance_near(_with_ground(c.mesh, fitted), c.obs.dip_hz) for c in keep])
+    model = np.array([resonance_near(_with_ground(c.mesh, fitted), c.obs.dip_hz, solver) for c in keep])
     frac = dip / model - 1.0
     residuals = tuple(Residual(c.obs.element_id, c.obs.element_key, c.obs.dip_hz, float(m),
                                float(x)) for c, m, x in zip(keep, model, frac))
@@ -435,7 +440,8 @@ def check_applies(design: AntennaDesign, calibration: Calibration) -> None:
                          "calibrate again from measurements of kits built to it")
 
 
-def calibrated_prediction(design: AntennaDesign, calibration: Calibration) -> DesignPrediction:
+def calibrated_prediction(design: AntennaDesign, calibration: Calibration,
+                          solver: Solver | None = None) -> DesignPrediction:
     """The design's prediction over the fitted ground, with per-band ratio corrections.
 
     Observed bands: leg + slope * (f0 / ratio - f0) (the real element dips at ratio x the model,
@@ -443,7 +449,7 @@ def calibrated_prediction(design: AntennaDesign, calibration: Calibration) -> De
     allowance) = the calibration's residual uncertainty.
     """
     check_applies(design, calibration)
-    base = predict_mom(design, calibration.fitted_ground())
+    base = predict_mom(design, calibration.fitted_ground(), solver)
     ratios = dict(calibration.band_ratios)
     elements = []
     for e, spec in zip(base.elements, design.elements, strict=True):

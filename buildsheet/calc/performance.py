@@ -13,16 +13,16 @@ sweep; bench/em.py prints its error against the full solve at the design height.
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
-from functools import lru_cache
 
 import numpy as np
 
 from buildsheet.calc import coverage, exposure, feedline
 from buildsheet.calc.cuts import DesignCuts
 from buildsheet.constants import C0
+from buildsheet.em.context import Solver, solver_or_new
 from buildsheet.em.deployed import DeployedAntenna, build_structure, highest_frequency
 from buildsheet.em.ground import Ground
-from buildsheet.em.sommerfeld import TableStore, covering_domain
+from buildsheet.em.sommerfeld import covering_domain
 from buildsheet.spec.design import ExposureSettings
 
 #: Gain used for the exposure screen: a half-wave dipole, 2.15 dBi, together with the
@@ -84,7 +84,7 @@ def raised(antenna: DeployedAntenna, apex_m: float) -> DeployedAntenna:
 
 
 def zenith_sweep_mom(antenna: DeployedAntenna, heights_m: np.ndarray,
-                     tables: TableStore | None = None) -> np.ndarray:
+                     solver: Solver | None = None) -> np.ndarray:
     """Zenith gain (dBi, normalised to input power) of every band (rows) at every apex height.
 
     One coarse mesh per height serves all bands; one table domain covers the whole sweep, so the
@@ -92,7 +92,7 @@ def zenith_sweep_mom(antenna: DeployedAntenna, heights_m: np.ndarray,
     """
     from buildsheet.em import mom
 
-    tables = tables or TableStore()
+    solver = solver_or_new(solver)
     legs = max(e.leg_length_m for e in antenna.elements)
     low = min(min(e.end_height_m for e in raised(antenna, h).elements) for h in heights_m)
     domain = covering_domain(2.0 * legs, 2.0 * low, 2.0 * float(np.max(heights_m)))
@@ -102,31 +102,35 @@ def zenith_sweep_mom(antenna: DeployedAntenna, heights_m: np.ndarray,
         structure = build_structure(raised(antenna, float(h)), f_top,
                                     segment_wavelengths=SWEEP_SEGMENT_WAVELENGTHS,
                                     min_segments=SWEEP_MIN_SEGMENTS)
-        mesh = mom.build_mesh(structure, tables, domain if antenna.ground.kind == "real" else None)
+        mesh = mom.build_mesh(structure, solver.tables, domain if antenna.ground.kind == "real" else None)
         for i, e in enumerate(antenna.elements):
-            sc = mom.currents_on(mesh, e.design_frequency_hz)
+            sc = solver.currents(mesh, e.design_frequency_hz)
             out[i, j] = coverage.zenith_gain_dbi(sc, antenna.ground)
     return out
 
 
-@lru_cache(maxsize=64)
-def design_performance(cuts: DesignCuts, ground: Ground, settings: ExposureSettings) -> DesignPerformance:
-    """Coverage, height advice and exposure screen of one solved design over ``ground``."""
+def design_performance(cuts: DesignCuts, ground: Ground, settings: ExposureSettings,
+                       solver: Solver | None = None) -> DesignPerformance:
+    """Coverage, height advice and exposure screen of one solved design over ``ground``
+    (currents through ``solver``, the build's context; a fresh one if None)."""
     from buildsheet.em import mom
     from buildsheet.em.solve import deployed_antenna
 
+    solver = solver_or_new(solver)
     d = cuts.design
     legs = tuple(c.predicted_leg_m for c in cuts.elements)
     antenna = deployed_antenna(d, ground, legs)
     cable = feedline.coax(d.coax_type)
     freqs = tuple(c.element.frequency_hz for c in cuts.elements)
     heights = sweep_heights(freqs)
-    sweep = zenith_sweep_mom(antenna, heights)
+    sweep = zenith_sweep_mom(antenna, heights, solver)
+    mesh = mom.mesh_for(antenna, mom.segmentation_frequency(antenna, np.array(freqs)),
+                        tables=solver.tables)
     lo_w, hi_w = SWEEP_RANGE_WAVELENGTHS
     bands = []
     for i, c in enumerate(cuts.elements):
         e = c.element
-        sc = mom.segment_currents(antenna, e.frequency_hz)
+        sc = solver.currents(mesh, e.frequency_hz)
         lam = C0 / e.frequency_hz
         own = (heights >= lo_w * lam * (1 - 1e-9)) & (heights <= hi_w * lam * (1 + 1e-9))
         loss = feedline.matched_loss_db(cable, d.coax_length_m, e.frequency_hz)

@@ -67,6 +67,7 @@ def handle_calibrate(args: argparse.Namespace, out: TextIO | None = None) -> int
     calibrated cuts and the batch trims exactly as the next packet prints them."""
     from buildsheet.build import entries_from_store
     from buildsheet.calc import calibrate as cal
+    from buildsheet.em.context import Solver
     from buildsheet.packet import solve_design
     from buildsheet.spec.reader import load_spec
     from buildsheet.spec.units import format_both
@@ -81,17 +82,18 @@ def handle_calibrate(args: argparse.Namespace, out: TextIO | None = None) -> int
     design = designs[args.design]
     path = Path(args.store) if args.store else default_store(args.spec)
     print(f"record store: {path}", file=sys.stderr)
+    solver = Solver()  # the fit, the entries and the before/after cuts share one context
     with rec.open_store(path, create=False, verify=True) as store:
         histories = {h.element.id: h for h in rec.load_histories(store)}
         obs, kit_legs = read_observations(store, design, args.sources, histories)
-        calibration = cal.fit_site(design, spec.site.ground, obs, kit_legs)
+        calibration = cal.fit_site(design, spec.site.ground, obs, kit_legs, solver)
         rec.save_calibration(store, design.key, calibration.fingerprint,
                              cal.calibration_to_json(calibration), calibration.source_ids,
                              datetime.now(UTC))
-        entries, _ = entries_from_store(spec, store)
+        entries, _ = entries_from_store(spec, store, solver=solver)
     units = spec.event.units
-    before = solve_design(design, spec, "mom")
-    after = solve_design(design, spec, "mom", calibration)
+    before = solve_design(design, spec, "mom", solver=solver)
+    after = solve_design(design, spec, "mom", calibration, solver)
     g = calibration.ground
     print(f"Design {design.key}: site behaves like {calibration.site_like_title} (fitted eps_r "
           f"{g.eps_r:.1f}, sigma {g.sigma:.2g} S/m; the spec assumed "

@@ -12,11 +12,11 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy.optimize import brentq
 from scipy.special import sici
 
 from buildsheet.constants import C0, ETA0, EULER_GAMMA, FOOT, RULE_468_FT_MHZ
 from buildsheet.em.loading import series_impedance_per_m
+from buildsheet.em.roots import brent_root
 from buildsheet.spec.wires import WireType
 
 
@@ -85,7 +85,7 @@ def resonant_length(frequency_hz: float, radius_m: float, wire: WireType | None 
     def reactance(l_over_lambda: float) -> float:
         return self_impedance(l_over_lambda * lam, radius_m, frequency_hz, wire).imag
 
-    return brentq(reactance, 0.38, 0.505, xtol=1e-10) * lam
+    return brent_root(reactance, 0.38, 0.505, xtol=1e-10) * lam
 
 
 def rule_468_length(frequency_hz: float) -> float:

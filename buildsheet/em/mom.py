@@ -35,14 +35,13 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, replace
-from functools import lru_cache
 
 import numpy as np
 
 from buildsheet.constants import C0, ETA0
+from buildsheet.em import sommerfeld
 from buildsheet.em.currents import SegmentCurrents
 from buildsheet.em.deployed import DeployedAntenna, Structure, build_structure, highest_frequency
-from buildsheet.em import sommerfeld
 from buildsheet.em.ground import Ground, complex_permittivity
 from buildsheet.em.loading import conductor_impedance_per_m, series_impedance_per_m
 from buildsheet.errors import BuildError
@@ -231,13 +230,10 @@ def _basis(structure: Structure, length: np.ndarray) -> tuple[np.ndarray, ...]:
     return T, D, np.array(port_basis, dtype=int), cols, signs, segs, divs
 
 
-@lru_cache(maxsize=8)
 def _gauss(n: int) -> tuple[np.ndarray, np.ndarray]:
-    """Gauss-Legendre nodes and weights on [0, 1] (cached; read-only arrays)."""
+    """Gauss-Legendre nodes and weights on [0, 1]."""
     x, w = np.polynomial.legendre.leggauss(n)
-    x, w = (x + 1.0) / 2.0, w / 2.0
-    x.flags.writeable = w.flags.writeable = False
-    return x, w
+    return (x + 1.0) / 2.0, w / 2.0
 
 
 def _static_integrals(p0: np.ndarray, t: np.ndarray, length: np.ndarray, a2: np.ndarray,
@@ -538,48 +534,36 @@ def impedance_matrix(mesh: Mesh, frequency_hz: float, *, direct: bool = False) -
     return Z + _loading(mesh, frequency_hz)
 
 
-def port_impedances(mesh: Mesh, frequencies_hz: np.ndarray | float, *,
-                    direct: bool = False) -> np.ndarray:
-    """Open-circuit impedance matrix of the ports, (F, P, P) complex ohm (``direct``: see
-    :func:`impedance_matrix`)."""
-    f = np.atleast_1d(np.asarray(frequencies_hz, dtype=float))
+def _unit_drives(mesh: Mesh) -> np.ndarray:
+    """Excitation vectors e_p: 1 V on port p's basis function, (N, P)."""
     V = np.zeros((mesh.n_unknowns, mesh.port_basis.size))
     V[mesh.port_basis, np.arange(mesh.port_basis.size)] = 1.0
-    out = np.empty((f.size, V.shape[1], V.shape[1]), dtype=complex)
-    for i, fi in enumerate(f):
-        Y = np.linalg.solve(impedance_matrix(mesh, float(fi), direct=direct), V)[mesh.port_basis]
-        out[i] = np.linalg.inv(Y)
-    return out
+    return V
 
 
-@lru_cache(maxsize=32)
-def mesh_for(antenna: DeployedAntenna, max_frequency_hz: float | None = None,
-             segment_counts: tuple[int, ...] | None = None,
-             tables: sommerfeld.TableStore | None = None) -> Mesh:
-    """Cached mesh of ``antenna`` (identical geometry is built and integrated once)."""
-    return build_mesh(build_structure(antenna, max_frequency_hz, segment_counts=segment_counts),
-                      tables)
+def port_responses(mesh: Mesh, frequency_hz: float, *, direct: bool = False) -> np.ndarray:
+    """Basis currents for 1 V on each port in turn, Z^-1 e_p, (N, P) complex, A/V.
+
+    One impedance-matrix fill and solve; port impedances and currents for any drive follow
+    (:func:`impedances_from`, :func:`currents_from`). ``direct``: see :func:`impedance_matrix`.
+    """
+    return np.linalg.solve(impedance_matrix(mesh, frequency_hz, direct=direct),
+                           _unit_drives(mesh).astype(complex))
 
 
-def _segmentation_frequency(antenna: DeployedAntenna, frequencies_hz: np.ndarray) -> float:
-    """Highest frequency analysed: the top band edge, or a higher requested frequency, Hz."""
-    return float(max(highest_frequency(antenna), float(np.max(frequencies_hz))))
+def impedances_from(mesh: Mesh, responses: np.ndarray) -> np.ndarray:
+    """Open-circuit port impedance matrix (P, P), ohm, from :func:`port_responses`."""
+    return np.linalg.inv(responses[mesh.port_basis])
 
 
-def feed_impedance(antenna: DeployedAntenna, frequencies_hz: np.ndarray | float) -> np.ndarray:
-    """Impedance at the shared feed point, complex ohm, one per frequency."""
-    f = np.atleast_1d(np.asarray(frequencies_hz, dtype=float))
-    mesh = mesh_for(antenna, _segmentation_frequency(antenna, f))
-    return port_impedances(mesh, f)[:, 0, 0]
-
-
-def currents_on(mesh: Mesh, frequency_hz: float, drive_v: float | np.ndarray = 1.0) -> SegmentCurrents:
-    """Segment currents with the ports driven by ``drive_v`` (V, one value or one per port)."""
-    V = np.zeros(mesh.n_unknowns, dtype=complex)
-    V[mesh.port_basis] = drive_v
-    c = np.linalg.solve(impedance_matrix(mesh, frequency_hz), V)
+def currents_from(mesh: Mesh, frequency_hz: float, responses: np.ndarray,
+                  drive_v: float | np.ndarray = 1.0) -> SegmentCurrents:
+    """Segment currents with the ports driven by ``drive_v`` (V, one value or one per port),
+    from :func:`port_responses` at ``frequency_hz`` (by linearity: c = sum_p V_p Z^-1 e_p)."""
+    drive = np.broadcast_to(np.asarray(drive_v, dtype=complex), (mesh.port_basis.size,))
+    c = responses @ drive
     ends = (mesh.T.T @ c).reshape(-1, 2)                  # current at each segment end, along t
-    p_in = 0.5 * float(np.real(np.vdot(c[mesh.port_basis], V[mesh.port_basis])))
+    p_in = 0.5 * float(np.real(np.vdot(c[mesh.port_basis], drive)))
     R = _loading(mesh, frequency_hz, loss_only=True)
     p_loss = 0.5 * float(np.real(np.vdot(c, R @ c)))
     return SegmentCurrents(
@@ -588,10 +572,44 @@ def currents_on(mesh: Mesh, frequency_hz: float, drive_v: float | np.ndarray = 1
         conductor_loss_w=p_loss)
 
 
+def port_impedances(mesh: Mesh, frequencies_hz: np.ndarray | float, *,
+                    direct: bool = False) -> np.ndarray:
+    """Open-circuit impedance matrix of the ports, (F, P, P) complex ohm, one fill per frequency
+    and nothing kept (a build asks :class:`buildsheet.em.context.Solver` instead)."""
+    f = np.atleast_1d(np.asarray(frequencies_hz, dtype=float))
+    return np.stack([impedances_from(mesh, port_responses(mesh, float(fi), direct=direct))
+                     for fi in f])
+
+
+def currents_on(mesh: Mesh, frequency_hz: float, drive_v: float | np.ndarray = 1.0) -> SegmentCurrents:
+    """Segment currents of ``mesh`` driven by ``drive_v`` (one fill, nothing kept)."""
+    return currents_from(mesh, frequency_hz, port_responses(mesh, frequency_hz), drive_v)
+
+
+def mesh_for(antenna: DeployedAntenna, max_frequency_hz: float | None = None,
+             segment_counts: tuple[int, ...] | None = None,
+             tables: sommerfeld.TableStore | None = None) -> Mesh:
+    """Mesh of ``antenna`` segmented for ``max_frequency_hz`` (or ``segment_counts``)."""
+    return build_mesh(build_structure(antenna, max_frequency_hz, segment_counts=segment_counts),
+                      tables)
+
+
+def segmentation_frequency(antenna: DeployedAntenna, frequencies_hz: np.ndarray) -> float:
+    """Highest frequency analysed: the top band edge, or a higher requested frequency, Hz."""
+    return float(max(highest_frequency(antenna), float(np.max(frequencies_hz))))
+
+
+def feed_impedance(antenna: DeployedAntenna, frequencies_hz: np.ndarray | float) -> np.ndarray:
+    """Impedance at the shared feed point, complex ohm, one per frequency (a one-off question:
+    the mesh is built and filled here and nothing is kept)."""
+    f = np.atleast_1d(np.asarray(frequencies_hz, dtype=float))
+    return port_impedances(mesh_for(antenna, segmentation_frequency(antenna, f)), f)[:, 0, 0]
+
+
 def segment_currents(antenna: DeployedAntenna, frequency_hz: float,
                      drive_v: float = 1.0) -> SegmentCurrents:
-    """Currents on every segment of ``antenna`` driven by ``drive_v`` volts at the feed."""
-    mesh = mesh_for(antenna, _segmentation_frequency(antenna, np.array([frequency_hz])))
+    """Currents on every segment of ``antenna`` driven by ``drive_v`` volts at the feed (one-off)."""
+    mesh = mesh_for(antenna, segmentation_frequency(antenna, np.array([frequency_hz])))
     return currents_on(mesh, frequency_hz, drive_v)
 
 

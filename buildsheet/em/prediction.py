@@ -9,7 +9,6 @@ site's ground, all elements solved jointly (buildsheet.em.resonance).
 from __future__ import annotations
 
 from dataclasses import dataclass
-from functools import lru_cache
 from typing import Literal
 
 import numpy as np
@@ -100,7 +99,6 @@ def sweep_frequencies(low_hz: float, high_hz: float, design_hz: float, n: int = 
     return np.linspace(lo - pad, hi + pad, n)
 
 
-@lru_cache(maxsize=256)
 def closed_form_prediction(design: AntennaDesign) -> DesignPrediction:
     wire = design.wire
     out = []

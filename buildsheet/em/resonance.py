@@ -21,13 +21,12 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass
-from functools import lru_cache
 
 import numpy as np
 from numpy.polynomial.chebyshev import chebder, chebfit, chebval
-from scipy.optimize import brentq
 
 from buildsheet.em.closed_form import swr
+from buildsheet.em.context import Solver, solver_or_new
 from buildsheet.em.deployed import (
     DeployedAntenna,
     build_structure,
@@ -37,8 +36,8 @@ from buildsheet.em.deployed import (
     with_leg_lengths,
 )
 from buildsheet.em.ground import Ground, ground_range
-from buildsheet.em.mom import Mesh, build_mesh, describe, mesh_for, port_impedances, with_ground
-from buildsheet.em.sommerfeld import TableStore
+from buildsheet.em.mom import Mesh, build_mesh, describe, with_ground
+from buildsheet.em.roots import brent_root
 from buildsheet.errors import BuildError
 
 #: Search range of a leg, in wavelengths at its design frequency (the half-wave resonance of a
@@ -145,18 +144,11 @@ class PredictionBand:
 
 
 def _mesh(antenna: DeployedAntenna, lengths: np.ndarray, f_seg: float,
-          counts: tuple[int, ...], tables: TableStore, *, cache: bool = True) -> Mesh:
-    """Mesh of ``antenna`` with ``lengths`` on ``counts`` segments per leg.
-
-    Where the segmentation rule gives the same counts (the usual case) the mesh comes from the
-    cache of :func:`buildsheet.em.mom.mesh_for`, so the solved antenna's mesh is built once and
-    reused by later calls (feed impedance, currents) on that antenna. Every mesh of one solve
-    reads Sommerfeld kernel tables from ``tables`` (one table per frequency and grid).
-    """
-    trial = with_leg_lengths(antenna, lengths)
-    if cache and element_segment_counts(trial, f_seg) == counts:
-        return mesh_for(trial, f_seg, None, tables)
-    return build_mesh(build_structure(trial, f_seg, segment_counts=counts), tables)
+          counts: tuple[int, ...], solver: Solver) -> Mesh:
+    """Mesh of ``antenna`` with ``lengths`` on ``counts`` segments per leg; every mesh of a
+    build reads Sommerfeld kernel tables from the solver's store (one per frequency and grid)."""
+    return build_mesh(build_structure(with_leg_lengths(antenna, lengths), f_seg,
+                                      segment_counts=counts), solver.tables)
 
 
 def _no_resonance(antenna: DeployedAntenna, e: int, lo: float, hi: float, x: float) -> BuildError:
@@ -169,7 +161,7 @@ def _no_resonance(antenna: DeployedAntenna, e: int, lo: float, hi: float, x: flo
 
 def _solve_lengths(antenna: DeployedAntenna, start: np.ndarray, f_seg: float,
                    counts: tuple[int, ...],
-                   tables: TableStore) -> tuple[np.ndarray, int, Mesh, np.ndarray]:
+                   solver: Solver) -> tuple[np.ndarray, int, Mesh, np.ndarray]:
     """Leg lengths giving X = 0 at every design frequency, on a fixed segmentation.
 
     Returns the lengths, the iterations, and the mesh and feed impedances (ohm, one per element
@@ -187,11 +179,11 @@ def _solve_lengths(antenna: DeployedAntenna, start: np.ndarray, f_seg: float,
     slope = x_prev = l_prev = None
     pinned = np.zeros(f.size, dtype=int)
     for it in range(1, MAX_ITERATIONS + 1):
-        mesh = _mesh(antenna, L, f_seg, counts, tables)
-        z = port_impedances(mesh, f)[:, 0, 0]
+        mesh = _mesh(antenna, L, f_seg, counts, solver)
+        z = solver.port_impedances(mesh, f)[:, 0, 0]
         x = z.imag
         if slope is None:
-            dxdf = (port_impedances(mesh, f * (1 + 1e-4))[:, 0, 0].imag - x) / (f * 1e-4)
+            dxdf = (solver.port_impedances(mesh, f * (1 + 1e-4))[:, 0, 0].imag - x) / (f * 1e-4)
             slope = np.where(dxdf > 0, dxdf * f / L, np.nan)
             slope = np.where(np.isnan(slope), np.nanmax(np.append(slope, 1.0)), slope)
         else:
@@ -234,7 +226,7 @@ class _Curve:
         return chebval(u, chebder(self.coef)) * 2.0 / (self.hi - self.lo)
 
 
-def _interpolant(mesh: Mesh, lo: float, hi: float, n_max: int) -> _Curve:
+def _interpolant(solver: Solver, mesh: Mesh, lo: float, hi: float, n_max: int) -> _Curve:
     """Feed impedance on [lo, hi] interpolated through Chebyshev-Lobatto nodes (direct solves).
 
     Z(f) of a dipole is smooth across one band: its Chebyshev coefficients fall geometrically,
@@ -246,7 +238,7 @@ def _interpolant(mesh: Mesh, lo: float, hi: float, n_max: int) -> _Curve:
     """
     n = min(CURVE_NODES_FIRST, n_max)
     u = np.cos(np.pi * np.arange(n) / (n - 1))
-    z = port_impedances(mesh, (lo + hi) / 2 + (hi - lo) / 2 * u)[:, 0, 0]
+    z = solver.port_impedances(mesh, (lo + hi) / 2 + (hi - lo) / 2 * u)[:, 0, 0]
     while True:
         coef = chebfit(u, z.real, n - 1) + 1j * chebfit(u, z.imag, n - 1)
         last, before = np.abs(coef[-1]), np.abs(coef[-2])
@@ -255,7 +247,7 @@ def _interpolant(mesh: Mesh, lo: float, hi: float, n_max: int) -> _Curve:
             return _Curve(lo, hi, coef, n)
         n = 2 * n - 1
         fine = np.cos(np.pi * np.arange(n) / (n - 1))
-        z_new = port_impedances(mesh, (lo + hi) / 2 + (hi - lo) / 2 * fine[1::2])[:, 0, 0]
+        z_new = solver.port_impedances(mesh, (lo + hi) / 2 + (hi - lo) / 2 * fine[1::2])[:, 0, 0]
         z_all = np.empty(n, dtype=complex)
         z_all[0::2], z_all[1::2] = z, z_new
         u, z = fine, z_all
@@ -272,7 +264,7 @@ def _edge_by_bracket(direct: Callable[[float], float], f0: float, end: float, si
             raise BuildError(f"2:1 SWR edge not found within 30 % of {f0 / 1e6:.4f} MHz")
     if direct(a) >= 0:
         a = f0
-    return float(brentq(direct, min(a, b), max(a, b), xtol=EDGE_XTOL_HZ))
+    return float(brent_root(direct, min(a, b), max(a, b), xtol=EDGE_XTOL_HZ))
 
 
 def _polish(direct: Callable[[float], float], f: float, slope: float) -> float | None:
@@ -294,7 +286,7 @@ def _polish(direct: Callable[[float], float], f: float, slope: float) -> float |
     return None
 
 
-def _bandwidth(mesh: Mesh, f0: float, lo: float, hi: float, curve: _Curve, z0: float,
+def _bandwidth(solver: Solver, mesh: Mesh, f0: float, lo: float, hi: float, curve: _Curve, z0: float,
                s0: float) -> tuple[float, float] | None:
     """Frequencies where SWR = 2 on each side of f0, Hz; None if SWR >= 2 at f0.
 
@@ -310,7 +302,7 @@ def _bandwidth(mesh: Mesh, f0: float, lo: float, hi: float, curve: _Curve, z0: f
         return None
 
     def direct(fr: float) -> float:
-        return float(swr(port_impedances(mesh, fr)[0, 0, 0], z0)) - 2.0
+        return float(swr(solver.port_impedances(mesh, fr)[0, 0, 0], z0)) - 2.0
 
     def fitted(fr: float | np.ndarray) -> np.ndarray:
         return swr(curve.z(fr), z0) - 2.0
@@ -330,7 +322,7 @@ def _bandwidth(mesh: Mesh, f0: float, lo: float, hi: float, curve: _Curve, z0: f
         h = 1e-6 * f0
         if over.size and over[0] > 0:
             a, b = grid[over[0] - 1], grid[over[0]]
-            guess = float(brentq(lambda fr: float(fitted(fr)), min(a, b), max(a, b), xtol=0.5))
+            guess = float(brent_root(lambda fr: float(fitted(fr)), min(a, b), max(a, b), xtol=0.5))
             slope = float(fitted(guess + h) - fitted(guess - h)) / (2 * h)
             edge = _polish(direct, guess, slope)
         elif x_edge2 > 0 and dxdf > 0:
@@ -343,31 +335,43 @@ def _bandwidth(mesh: Mesh, f0: float, lo: float, hi: float, curve: _Curve, z0: f
     return edges[0], edges[1]
 
 
-@lru_cache(maxsize=32)
-def solve_resonance(antenna: DeployedAntenna, *, z0: float = 50.0, n_swr_points: int = 41,
-                    tables: TableStore | None = None) -> AntennaSolution:
+def solve_resonance(antenna: DeployedAntenna, solver: Solver | None = None, *, z0: float = 50.0,
+                    n_swr_points: int = 41) -> AntennaSolution:
     """Solve every element's leg length jointly for zero feed reactance at its design frequency.
 
     Returns the antenna with solved lengths, the feed impedance, the SWR curve on ``z0`` across
     each band, the 2:1 SWR bandwidth and the model's own tuning slope per element.
     Raises BuildError naming the element and the leg range tried when no resonance is found.
-    ``tables``: Sommerfeld kernel tables to reuse (a fresh store for this solve if None).
+    ``solver``: the build's solver context (a fresh one if None); the solution is kept there,
+    so asking again for the same antenna solves nothing.
     """
-    tables = tables or TableStore()
+    solver = solver_or_new(solver)
+    key = (antenna, z0, n_swr_points)
+    if key in solver.solutions:
+        return solver.solutions[key]
+    solution = _solve_resonance(antenna, solver, z0, n_swr_points)
+    solver.solutions[key] = solution
+    return solution
+
+
+def _solve_resonance(antenna: DeployedAntenna, solver: Solver, z0: float,
+                     n_swr_points: int) -> AntennaSolution:
+    """:func:`solve_resonance` without the context's memory."""
     f_seg = highest_frequency(antenna)
     L = np.array([e.leg_length_m for e in antenna.elements])
     counts = element_segment_counts(antenna, f_seg)
     iterations = 0
     for _ in range(4):
-        L, it, mesh, z_design = _solve_lengths(antenna, L, f_seg, counts, tables)
+        L, it, mesh, z_design = _solve_lengths(antenna, L, f_seg, counts, solver)
         iterations += it
         new_counts = element_segment_counts(with_leg_lengths(antenna, L), f_seg)
         if new_counts == counts:
             break
         counts = new_counts
     else:
-        mesh = mesh_for(with_leg_lengths(antenna, L), f_seg, None, tables)
-        z_design = port_impedances(mesh, np.array([e.design_frequency_hz
+        mesh = _mesh(antenna, L, f_seg, element_segment_counts(with_leg_lengths(antenna, L), f_seg),
+                     solver)
+        z_design = solver.port_impedances(mesh, np.array([e.design_frequency_hz
                                                    for e in antenna.elements]))[:, 0, 0]
     solved = with_leg_lengths(antenna, L)
     f = np.array([e.design_frequency_hz for e in antenna.elements])
@@ -377,7 +381,7 @@ def solve_resonance(antenna: DeployedAntenna, *, z0: float = 50.0, n_swr_points:
     for e in range(f.size):
         dl = np.zeros_like(L)
         dl[e] = 1e-5 * L[e]
-        x = port_impedances(_mesh(antenna, L + dl, f_seg, counts, tables, cache=False),
+        x = solver.port_impedances(_mesh(antenna, L + dl, f_seg, counts, solver),
                             f[e])[0, 0, 0].imag
         dxdl[e] = (x - z_design[e].imag) / dl[e]
     results = []
@@ -385,7 +389,7 @@ def solve_resonance(antenna: DeployedAntenna, *, z0: float = 50.0, n_swr_points:
     for e, el in enumerate(solved.elements):
         freqs = np.linspace(el.band_low_hz, el.band_high_hz, n_swr_points)
         lo, hi = min(el.band_low_hz, f[e]), max(el.band_high_hz, f[e])
-        curve = _interpolant(mesh, lo, hi, min(n_swr_points, CURVE_NODES))
+        curve = _interpolant(solver, mesh, lo, hi, min(n_swr_points, CURVE_NODES))
         s = swr(curve.z(freqs), z0)
         s0 = float(swr(z_design[e], z0))
         dxdf = float(curve.dz_df(f[e]).imag)
@@ -395,22 +399,22 @@ def solve_resonance(antenna: DeployedAntenna, *, z0: float = 50.0, n_swr_points:
         results.append(ElementSolution(
             key=el.key, leg_length_m=float(L[e]), z_feed=complex(z_design[e]),
             frequencies_hz=freqs, swr=s,
-            bandwidth_2to1_hz=_bandwidth(mesh, f[e], lo, hi, curve, z0, s0),
+            bandwidth_2to1_hz=_bandwidth(solver, mesh, f[e], lo, hi, curve, z0, s0),
             slope_m_per_hz=float(-dxdf / dxdl[e]), swr_at_design=s0,
             dx_dl_ohm_per_m=float(dxdl[e])))
     return AntennaSolution(solved, tuple(results), antenna.ground, tuple(notes), describe(mesh),
                            z0, iterations, mesh)
 
 
-def _leg_shift(mesh: Mesh, sol: AntennaSolution) -> np.ndarray:
+def _leg_shift(solver: Solver, mesh: Mesh, sol: AntennaSolution) -> np.ndarray:
     """Linearised change of each resonant leg when ``mesh`` replaces the solved one, m:
     -X_e(f_e) / (dX_e/dL_e), X on ``mesh`` at each design frequency (zero on the solved mesh)."""
     f = np.array([e.design_frequency_hz for e in sol.antenna.elements])
-    x = port_impedances(mesh, f)[:, 0, 0].imag
+    x = solver.port_impedances(mesh, f)[:, 0, 0].imag
     return -x / np.array([e.dx_dl_ohm_per_m for e in sol.elements])
 
 
-def prediction_band(antenna: DeployedAntenna, tables: TableStore | None = None) -> PredictionBand:
+def prediction_band(antenna: DeployedAntenna, solver: Solver | None = None) -> PredictionBand:
     """Resonant legs over the antenna's own ground with their uncertainty parts.
 
     Ground: the legs over the poorer and the better end of the ground class's range
@@ -419,22 +423,22 @@ def prediction_band(antenna: DeployedAntenna, tables: TableStore | None = None) 
     extrapolation (order RICHARDSON_ORDER) to zero segment length; what remains is estimated as
     the extrapolation's own step. Model: MODEL_UNCERTAINTY_* (coated if any leg is insulated).
     """
-    tables = tables or TableStore()
-    sol = solve_resonance(antenna, tables=tables)
+    solver = solver_or_new(solver)
+    sol = solve_resonance(antenna, solver)
     assert sol.mesh is not None
     L = np.array([e.leg_length_m for e in sol.elements])
     f_seg = highest_frequency(antenna)
     fine = build_mesh(build_structure(sol.antenna, f_seg,
                                       segment_wavelengths=antenna.segment_wavelengths / 2.0),
-                      tables)
-    d_fine = _leg_shift(fine, sol)
+                      solver.tables)
+    d_fine = _leg_shift(solver, fine, sol)
     step = d_fine / (1.0 - 0.5**RICHARDSON_ORDER)          # L* - L = (L_h/2 - L_h) / (1 - 2^-p)
     extrapolated = L + step
     mesh_part = np.abs(step - d_fine) / extrapolated       # |L* - L_h/2|
     grounds = ground_range(antenna.ground)
     ground_part = np.zeros_like(L)
     if grounds is not None:
-        shifts = np.stack([_leg_shift(with_ground(sol.mesh, g), sol) for g in grounds])
+        shifts = np.stack([_leg_shift(solver, with_ground(sol.mesh, g), sol) for g in grounds])
         ground_part = np.max(np.abs(shifts), axis=0) / extrapolated
     coated = any(e.wire.insulated for e in antenna.elements)
     model = MODEL_UNCERTAINTY_COATED if coated else MODEL_UNCERTAINTY_BARE

@@ -12,9 +12,8 @@ the model's stated figure (buildsheet.em.resonance.prediction_band).
 
 from __future__ import annotations
 
-from functools import lru_cache
-
 from buildsheet.em import closed_form
+from buildsheet.em.context import Solver, solver_or_new
 from buildsheet.em.deployed import DeployedAntenna, ElementGeometry
 from buildsheet.em.ground import Ground
 from buildsheet.em.prediction import (
@@ -43,10 +42,19 @@ def deployed_antenna(design: AntennaDesign, ground: Ground,
     return DeployedAntenna(design.apex_height_m, tuple(elements), ground)
 
 
-@lru_cache(maxsize=64)
-def predict_mom(design: AntennaDesign, ground: Ground) -> DesignPrediction:
-    """Method-of-moments prediction of every element of ``design`` over ``ground``."""
-    band = prediction_band(deployed_antenna(design, ground))
+def predict_mom(design: AntennaDesign, ground: Ground,
+                solver: Solver | None = None) -> DesignPrediction:
+    """Method-of-moments prediction of every element of ``design`` over ``ground``; kept in
+    ``solver`` (a fresh context if None), so a build predicts each design once."""
+    solver = solver_or_new(solver)
+    key = ("mom", design, ground)
+    if key not in solver.predictions:
+        solver.predictions[key] = _predict_mom(design, ground, solver)
+    return solver.predictions[key]
+
+
+def _predict_mom(design: AntennaDesign, ground: Ground, solver: Solver) -> DesignPrediction:
+    band = prediction_band(deployed_antenna(design, ground), solver)
     own = band.own
     elements = tuple(
         ElementPrediction(s.key, "mom", b.leg_m, s.z_feed, s.slope_m_per_hz,
@@ -64,8 +72,10 @@ def predict_mom(design: AntennaDesign, ground: Ground) -> DesignPrediction:
     )
 
 
-def predict(design: AntennaDesign, ground: Ground, model: ModelName = "closed_form") -> DesignPrediction:
-    """Predicted resonant leg lengths of every element of ``design`` by ``model``."""
+def predict(design: AntennaDesign, ground: Ground, model: ModelName = "closed_form",
+            solver: Solver | None = None) -> DesignPrediction:
+    """Predicted resonant leg lengths of every element of ``design`` by ``model`` (the
+    method of moments through ``solver``, the build's context)."""
     if model == "closed_form":
         return closed_form_prediction(design)
-    return predict_mom(design, ground)
+    return predict_mom(design, ground, solver)

@@ -93,7 +93,7 @@ def covering_domain(rho_max: float, zeta_min: float, zeta_max: float) -> TableDo
     return TableDomain(r, lo, max(up(zeta_max * 1.0001), lo * 1.5), max(r / RHO_SCALE, lo))
 
 
-def _kz(k2: complex | float, krho: np.ndarray) -> np.ndarray:
+def _kz(k2: complex, krho: np.ndarray) -> np.ndarray:
     """sqrt(k2 - krho^2) on the proper sheet (Im <= 0) for real or first-quadrant krho."""
     s = np.sqrt(k2 - krho * krho + 0j)
     return np.where(s.imag > 0, -s, s)

@@ -5,6 +5,7 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
+from buildsheet.em.context import Solver
 from buildsheet.em.deployed import DeployedAntenna, ElementGeometry
 from buildsheet.em.ground import FREE_SPACE, PERFECT_GROUND, real_ground
 from buildsheet.em.mom import feed_impedance
@@ -70,8 +71,11 @@ def test_insulation_shortening_table_6_3():
 
 def test_fan_joint_resonance_and_outputs():
     ant = fan(real_ground("medium_dry"))
-    sol = solve_resonance(ant)
-    assert sol is solve_resonance(ant)  # cached: identical geometry solved once
+    solver = Solver()
+    sol = solve_resonance(ant, solver)
+    fills = solver.fills
+    assert sol is solve_resonance(ant, solver)  # one build's context solves an antenna once
+    assert solver.fills == fills
     f = np.array([e.design_frequency_hz for e in ant.elements])
     # Independent re-evaluation of the solved antenna: zero reactance at every design frequency.
     z = feed_impedance(sol.antenna, f)
@@ -188,8 +192,8 @@ def test_unbracketable_frequency_is_error():
 
 def test_deterministic():
     a = fan(PERFECT_GROUND, ("75m", "40m"), (0.0, 90.0))
-    s1 = solve_resonance.__wrapped__(a)
-    s2 = solve_resonance.__wrapped__(a)
+    s1 = solve_resonance(a)
+    s2 = solve_resonance(a)
     assert [e.leg_length_m for e in s1.elements] == [e.leg_length_m for e in s2.elements]
 
 
@@ -200,14 +204,14 @@ def test_edges_and_slope_against_direct_solves(monkeypatch):
     from buildsheet.em.deployed import with_leg_lengths
 
     ant = fan(real_ground("medium_dry"))
-    sol = solve_resonance.__wrapped__(ant)
+    sol = solve_resonance(ant)
     e60 = sol.element("60m")
     assert e60.bandwidth_2to1_hz[0] < 5.33e6 and e60.bandwidth_2to1_hz[1] > 5.41e6
     for el in sol.elements:
         np.testing.assert_allclose(swr(feed_impedance(sol.antenna, el.bandwidth_2to1_hz)), 2.0,
                                    atol=1e-5)
     monkeypatch.setattr(resonance, "EDGE_EXTRAPOLATION", 0.0)
-    bracketed = solve_resonance.__wrapped__(ant).element("60m").bandwidth_2to1_hz
+    bracketed = solve_resonance(ant).element("60m").bandwidth_2to1_hz
     np.testing.assert_allclose(e60.bandwidth_2to1_hz, bracketed, atol=5.0)  # Hz
     # Tuning slope -(dX/df)/(dX/dL) by central differences of direct solves, each element
     # moved alone (the definition), within 0.05 %.
@@ -235,7 +239,7 @@ def test_curve_nodes_follow_band_width():
     nodes = {}
     for el in sol.antenna.elements:
         lo, hi = el.band_low_hz, el.band_high_hz
-        curve = _interpolant(mesh, lo, hi, CURVE_NODES)
+        curve = _interpolant(Solver(), mesh, lo, hi, CURVE_NODES)
         fr = np.linspace(lo, hi, 13)
         z = port_impedances(mesh, fr)[:, 0, 0]
         assert np.abs(curve.z(fr) - z).max() < 1e-5 * np.abs(z).max()
