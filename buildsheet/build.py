@@ -16,7 +16,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from datetime import datetime
 from pathlib import Path
-from typing import Any
+from typing import Any, Literal
 
 from buildsheet.em.context import Solver
 from buildsheet.em.prediction import ModelName
@@ -291,9 +291,9 @@ def site_pages(packet: Packet, histories: Mapping[str, ElementHistory], docs: Do
                         units=packet.design.event.units)
     url = packet.design.event.record_url or ""
     if "{leg}" in url:
-        for e in packet.entries:
-            for leg_id in e.leg_ids:
-                pages.setdefault(page_name(leg_id), pages[page_name(e.element_id)])
+        for entry in packet.entries:
+            for leg_id in entry.leg_ids:
+                pages.setdefault(page_name(leg_id), pages[page_name(entry.element_id)])
     return pages
 
 
@@ -366,7 +366,9 @@ def _record_prints(store: RecordStore, packet: Packet, hashes: Mapping[str, str]
                    now: datetime) -> None:
     from buildsheet.store.ledger import record_print
 
-    for kind, where in (("sheet", docs.sheet_of), ("label", docs.label_of)):
+    printed: tuple[tuple[Literal["sheet", "label"], Mapping[str, str]], ...] = (
+        ("sheet", docs.sheet_of), ("label", docs.label_of))
+    for kind, where in printed:
         for eid in sorted(where):
             done = {(p.revision, p.kind, p.hash, p.file)
                     for p in (histories[eid].prints if eid in histories else ())}

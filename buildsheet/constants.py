@@ -28,3 +28,8 @@ HALF_WAVE_M_HZ: float = C0 / 2.0
 RULE_468_FT_MHZ: float = 468.0
 #: 1/(2 pi c eps0) = 59.9585 ohm, the "60" in eps_c = eps_r - j 60 sigma lambda.
 SIXTY: float = 1.0 / (2.0 * math.pi * C0 * EPS0)
+
+#: Where the build-day station listens unless told otherwise (loopback only: the organiser
+#: opens it to the club network with --host).
+STATION_HOST = "127.0.0.1"
+STATION_PORT = 8080

@@ -29,6 +29,7 @@ from buildsheet.calc.calibrate import Calibration, calibrated_prediction, design
 from buildsheet.calc.cuts import DesignCuts, ElementCut, design_cuts
 from buildsheet.calc.labels import (
     LabelContent,
+    Leg,
     offline_record,
     record_url,
     station_record_url,
@@ -43,7 +44,7 @@ from buildsheet.em.solve import predict
 from buildsheet.errors import BuildError, Problem
 from buildsheet.records import ElementHistory
 from buildsheet.spec.design import AntennaDesign, Design, Kit
-from buildsheet.spec.units import format_both, format_frequency, format_length
+from buildsheet.spec.units import UnitSystem, format_both, format_frequency, format_length
 from buildsheet.store.manifest import content_hash
 
 #: The kit-sheet cautions (their one home is buildsheet.calc.safety).
@@ -154,31 +155,31 @@ def usable_calibrations(spec: Design, calibrations: Mapping[str, Calibration]) -
 
 
 def record_rows(cut: ElementCut, state: ElementState,
-                units: str = "metric") -> tuple[tuple[str, str], ...]:
+                units: UnitSystem = "metric") -> tuple[tuple[str, str], ...]:
     """The record page's model / calibrated / measured rows of one element."""
     f0, slope = cut.element.frequency_hz, cut.prediction.slope_m_per_hz
     mean = (state.legs[0].current_m + state.legs[1].current_m) / 2.0
     model_target = design_target_m(cut, uncalibrated=True)
     rows = [("Resonant leg, model" + (" before calibration" if cut.calibrated else ""),
              format_both(cut.uncalibrated_leg_m if cut.calibrated and cut.uncalibrated_leg_m
-                         else cut.predicted_leg_m, units)),  # type: ignore[arg-type]
+                         else cut.predicted_leg_m, units)),
             ("Dip expected now, model", format_frequency(
                 expected_dip_hz(mean, model_target, f0, slope)))]
     if cut.calibrated:
-        rows += [("Resonant leg, calibrated", format_both(cut.predicted_leg_m, units)),  # type: ignore[arg-type]
+        rows += [("Resonant leg, calibrated", format_both(cut.predicted_leg_m, units)),
                  ("Dip expected now, calibrated", format_frequency(
                      expected_dip_hz(mean, design_target_m(cut), f0, slope)))]
     if state.latest_dip_hz is not None:
         rows.append(("Latest measured dip", format_frequency(state.latest_dip_hz)))
     rows.append(("Target leg (" + state.target_source + ")",
-                 format_both(state.legs[0].target_m, units)))  # type: ignore[arg-type]
+                 format_both(state.legs[0].target_m, units)))
     rows.append(("Tuning", tuning_words(cut, units)))
     return tuple(rows)
 
 
-def _length_text(metres: float, units: str) -> str:
+def _length_text(metres: float, units: UnitSystem) -> str:
     """A label length, primary unit first: "10.43 m / 34 ft 2 5/8 in"."""
-    return format_both(metres, units).replace(" (", " / ").rstrip(")")  # type: ignore[arg-type]
+    return format_both(metres, units).replace(" (", " / ").rstrip(")")
 
 
 def label_contents(spec: Design, entries: Sequence[ElementEntry]) -> tuple[LabelContent, ...]:
@@ -189,7 +190,8 @@ def label_contents(spec: Design, entries: Sequence[ElementEntry]) -> tuple[Label
     for entry in entries:
         cut = entry.cut
         freq = format_frequency(cut.element.frequency_hz)
-        for leg_id, side, leg in zip(entry.leg_ids, ("A", "B"), entry.state.legs):
+        sides: tuple[Leg, Leg] = ("A", "B")
+        for leg_id, side, leg in zip(entry.leg_ids, sides, entry.state.legs):
             as_cut = leg.cut_m if leg.cut_m is not None else leg.prescribed_cut_m
             length = _length_text(as_cut, ev.units)
             trimmed = leg.cut_m is not None and abs(leg.current_m - leg.cut_m) > 1e-9
@@ -203,7 +205,7 @@ def label_contents(spec: Design, entries: Sequence[ElementEntry]) -> tuple[Label
             else:
                 payload = offline_record(leg_id, cut.element.band_label, freq, short,
                                          entry.kit.kit_id, "")
-            out.append(LabelContent(entry.kit.kit_id, entry.element_id, leg_id, side,  # type: ignore[arg-type]
+            out.append(LabelContent(entry.kit.kit_id, entry.element_id, leg_id, side,
                                     cut.element.band_label, freq, length, payload,
                                     current_length_text=now_text))
     return tuple(out)

@@ -5,6 +5,9 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
+from buildsheet.constants import STATION_HOST as DEFAULT_HOST
+from buildsheet.constants import STATION_PORT as DEFAULT_PORT
+
 
 def handle_serve(args: argparse.Namespace) -> int:
     """Run the station for a spec until Ctrl+C."""
@@ -25,8 +28,6 @@ def _port(text: str) -> int:
 
 def register(subparsers: Any) -> None:
     """Add ``serve`` to an ``add_subparsers()`` object (sets ``handler``)."""
-    from buildsheet.station.server import DEFAULT_HOST, DEFAULT_PORT
-
     p = subparsers.add_parser(
         "serve", help="run the build-day station: element pages, readings, day board",
         description="Serve the element pages (the winder labels' QR codes lead there when the "

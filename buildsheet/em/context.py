@@ -10,10 +10,16 @@ from them by linearity. It also holds the Sommerfeld kernel tables and the solve
 predictions of this build, keyed by their (immutable) inputs.
 
 Nothing here is module level: a build makes one :class:`Solver`, passes it down, and drops it.
+
+BLAS threads: the matrices are small (a few hundred unknowns), where a multi-threaded BLAS
+spends more time waking and synchronising its threads than computing, and on a shared
+machine oversubscribes the cores. Each fill and solve therefore runs with one BLAS thread
+(threadpoolctl), the rest of the program with the default; bench/packet.py prints both.
 """
 
 from __future__ import annotations
 
+from contextlib import nullcontext
 from dataclasses import dataclass, field, replace
 from typing import Any
 
@@ -44,6 +50,9 @@ class Solver:
     #: solved antennas and predictions of this build, by the callers' own immutable keys
     solutions: dict[Any, Any] = field(default_factory=dict, repr=False)
     predictions: dict[Any, Any] = field(default_factory=dict, repr=False)
+    #: BLAS threads for a fill and solve (None: leave the library's default)
+    blas_threads: int | None = 1
+    _blas: Any = field(default=None, repr=False)
 
     def responses(self, mesh: mom.Mesh, frequency_hz: float) -> np.ndarray:
         """Z^-1 e_p for every port p of ``mesh`` at ``frequency_hz``, (N, P) complex, A/V."""
@@ -53,10 +62,21 @@ class Solver:
             self.repeats += key in self._filled
             self._filled.add(key)
             self.fills += 1
-            out = mom.port_responses(mesh, float(frequency_hz))
+            with self._thread_limit():
+                out = mom.port_responses(mesh, float(frequency_hz))
             out.flags.writeable = False
             self._responses[key] = out
         return out
+
+    def _thread_limit(self) -> Any:
+        """Context limiting BLAS to ``blas_threads`` (the library's pools found once)."""
+        if self.blas_threads is None:
+            return nullcontext()
+        if self._blas is None:
+            from threadpoolctl import ThreadpoolController
+
+            self._blas = ThreadpoolController()
+        return self._blas.limit(limits=self.blas_threads, user_api="blas")
 
     def port_impedances(self, mesh: mom.Mesh, frequencies_hz: np.ndarray | float) -> np.ndarray:
         """Open-circuit impedance matrix of the ports, (F, P, P) complex ohm."""

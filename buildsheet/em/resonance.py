@@ -198,12 +198,13 @@ def _solve_lengths(antenna: DeployedAntenna, start: np.ndarray, f_seg: float,
         at_bound = (new == lo) & (x > 0) & (L == lo) | (new == hi) & (x < 0) & (L == hi)
         pinned = np.where(at_bound, pinned + 1, 0)
         if np.any(pinned >= 2):
-            e = int(np.argmax(pinned))
-            raise _no_resonance(antenna, e, lo[e], hi[e], x[e])
+            stuck = int(np.argmax(pinned))
+            raise _no_resonance(antenna, stuck, lo[stuck], hi[stuck], x[stuck])
         x_prev, l_prev, L = x, L, new
-    e = int(np.argmax(np.abs(x)))
-    raise BuildError(f"element {antenna.elements[e].key!r}: the resonance solve did not converge "
-                     f"in {MAX_ITERATIONS} iterations (leg {lo[e]:.3f}-{hi[e]:.3f} m tried)")
+    worst = int(np.argmax(np.abs(x)))
+    raise BuildError(f"element {antenna.elements[worst].key!r}: the resonance solve did not "
+                     f"converge in {MAX_ITERATIONS} iterations (leg {lo[worst]:.3f}-"
+                     f"{hi[worst]:.3f} m tried)")
 
 
 @dataclass(frozen=True, eq=False)

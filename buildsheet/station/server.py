@@ -5,10 +5,10 @@ from __future__ import annotations
 from pathlib import Path
 from typing import TextIO
 
+from buildsheet.constants import STATION_HOST, STATION_PORT
 from buildsheet.em.prediction import ModelName
 
-DEFAULT_HOST = "127.0.0.1"
-DEFAULT_PORT = 8080
+DEFAULT_HOST, DEFAULT_PORT = STATION_HOST, STATION_PORT
 
 
 def address_lines(host: str, port: int, pin: str, spec_url: str | None) -> list[str]:
