@@ -25,11 +25,6 @@ def coating_inductance_per_m(a: float, b: float, eps_r: float) -> float:
     return MU0 / (2.0 * math.pi) * (1.0 - 1.0 / eps_r) * math.log(b / a)
 
 
-def surface_resistance(frequency_hz: float, sigma: float) -> float:
-    """Surface resistance R_s = sqrt(pi f mu0 / sigma), ohm per square (good conductor)."""
-    return math.sqrt(math.pi * frequency_hz * MU0 / sigma)
-
-
 def skin_depth(frequency_hz: float, sigma: float) -> float:
     """Skin depth delta = 1/sqrt(pi f mu0 sigma), m."""
     return 1.0 / math.sqrt(math.pi * frequency_hz * MU0 * sigma)

@@ -121,10 +121,3 @@ def band_containing(frequency_hz: float, region: int) -> Band | None:
         if band.contains(frequency_hz):
             return band
     return None
-
-
-def nearest_band(frequency_hz: float, region: int) -> Band:
-    """The band of ``region`` whose edges are nearest to ``frequency_hz``."""
-    def distance(b: Band) -> float:
-        return max(b.low_hz - frequency_hz, frequency_hz - b.high_hz, 0.0)
-    return min((get_band(n, region) for n in band_names(region)), key=distance)
