@@ -113,7 +113,7 @@ def test_exposure_box_prints_governing_and_keep_out(tmp_path):
 def test_printed_parts_add_up_and_trims_in_words(tmp_path):
     # Arithmetic on the printed sheet (issue 14 part 13): model leg + trim + termination + feed,
     # each as printed (1 cm or 1/8 in), add up to the printed cut, in both unit systems.
-    from buildsheet.calc.advice import trim_words
+    from buildsheet.calc.asbuilt import Action
     from buildsheet.calc.cuts import printed_parts
     p = packet_of(tmp_path, spec_text([element(band="75m"), element(band="40m", bearing=90)]))
     for c in p.cuts[0].elements:
@@ -122,8 +122,9 @@ def test_printed_parts_add_up_and_trims_in_words(tmp_path):
             total = parts.model_leg_m + parts.trim_m + parts.termination_m + parts.feed_m
             assert round(total / q) == round(parts.cut_m / q) == round(c.cut_leg_m / q)
             assert abs(parts.trim_m - c.trim_m) <= 2 * q
-    assert trim_words(0.04, "metric") == "shorten by 40 mm (1 5/8 in)"
-    assert trim_words(-0.04, "metric").startswith("lengthen by 40 mm")
+    # trims in words, never a signed number (40 mm = 1.575 in, to the nearest 1/8 in)
+    assert Action("shorten", 0.04).words("metric") == "shorten each leg by 40 mm (1 5/8 in)"
+    assert Action("lengthen", 0.04).words("metric", both=False) == "lengthen this leg by 40 mm (1 5/8 in)"
 
 
 def test_first_dip_below_band_edge_is_explained(tmp_path):

@@ -49,18 +49,6 @@ class DesignAdvice:
     station_cautions: tuple[str, ...] = ()  # the short list, in the packet's units
 
 
-def trim_words(metres: float, units: UnitSystem, *, each_leg: bool = False) -> str:
-    """A trim amount in words: +0.04 m -> "shorten by 40 mm", -0.04 m -> "lengthen by 40 mm
-    (add wire back)"; never a signed number."""
-    what = "each leg " if each_leg else ""
-    amount = format_both(abs(metres), units)
-    if format_length(abs(metres), units) in ("0 mm", "0 in"):
-        return "no change"
-    if metres > 0:
-        return f"shorten {what}by {amount}"
-    return f"lengthen {what}by {amount} (add wire back)"
-
-
 def tuning_words(cut: ElementCut, units: UnitSystem) -> str:
     """The tuning line in words, from the model's slope (length per 100 kHz, each leg)."""
     step = format_both(cut.tuning_m_per_100khz, units)
