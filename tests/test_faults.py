@@ -60,21 +60,27 @@ def test_killed_builds_leave_the_previous_packet_intact(tmp_path: Path) -> None:
     heights = ('apex_height = "7 m"', 'apex_height = "7.5 m"')
     out = folder / "out"
     store = default_store(spec)
-    start = time.monotonic()
-    done = subprocess.run(_command(spec, out), env=_env(0), capture_output=True, text=True,
-                          timeout=120, check=False)
-    assert done.returncode == 0, done.stderr
-    full = time.monotonic() - start
+    durations = []
+    for run in (0, 100):  # two whole builds: the first also compiles and warms the imports
+        start = time.monotonic()
+        done = subprocess.run(_command(spec, out), env=_env(run), capture_output=True,
+                              text=True, timeout=120, check=False)
+        assert done.returncode == 0, done.stderr
+        durations.append(time.monotonic() - start)
+    full = min(durations)
     assert_complete_packet(out, store)
-    killed_midway = 0
+    killed_midway = attempts = 0
     text = spec.read_text(encoding="utf-8")
-    for run in range(1, RUNS + 1):
+    # Kill at a random instant inside a build; a machine whose speed changes under load may let
+    # a build finish first, so keep going (up to twice the runs) until RUNS builds were killed.
+    while killed_midway < RUNS and attempts < 2 * RUNS:
+        attempts += 1
         # Alternate the mast height so each build changes every element (store writes too).
-        spec.write_text(text.replace(heights[0], heights[run % 2]), encoding="utf-8")
-        proc = subprocess.Popen(_command(spec, out), env=_env(run), stdout=subprocess.DEVNULL,
-                                stderr=subprocess.DEVNULL)
+        spec.write_text(text.replace(heights[0], heights[attempts % 2]), encoding="utf-8")
+        proc = subprocess.Popen(_command(spec, out), env=_env(attempts),
+                                stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
         try:
-            time.sleep(rng.uniform(0.05, full * 1.1))
+            time.sleep(rng.uniform(0.05, full * 0.95))
             if proc.poll() is None:
                 killed_midway += 1
                 proc.send_signal(signal.SIGKILL)
@@ -84,7 +90,7 @@ def test_killed_builds_leave_the_previous_packet_intact(tmp_path: Path) -> None:
         assert_complete_packet(out, store)
         leftovers = [p.name for p in folder.iterdir() if p.name.startswith(".out.")]
         assert leftovers == [], leftovers  # recover() removed the dead build's staging folder
-    assert killed_midway >= RUNS // 2, f"only {killed_midway} of {RUNS} kills hit a running build"
+    assert killed_midway >= RUNS // 2, f"only {killed_midway} of {attempts} kills hit a running build"
     # The next ordinary build still works and bumps the revision past the surviving packet.
     spec.write_text(text.replace(heights[0], 'apex_height = "8 m"'), encoding="utf-8")
     before = assert_complete_packet(out, store)
