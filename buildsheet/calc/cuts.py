@@ -13,13 +13,17 @@ from buildsheet.calc.geometry import (
     leg_geometry,
 )
 from buildsheet.em import closed_form
-from buildsheet.em.prediction import DesignPrediction, ElementPrediction
+from buildsheet.em.prediction import DesignPrediction, ElementPrediction, Uncertainty
 from buildsheet.spec.design import AntennaDesign, ElementSpec
 
 #: Frequency step of the printed tuning line, Hz.
 TUNING_STEP_HZ = 100e3
 #: Included angle below which the sheet warns (common practice: 90-120 degrees).
 MIN_INCLUDED_ANGLE_DEG = 90.0
+
+#: The default trim allowance covers the prediction band (its half-width, the combined
+#: ground, mesh and model uncertainty) with this margin.
+TRIM_BAND_MARGIN: float = 1.5
 
 
 @dataclass(frozen=True)
@@ -37,11 +41,20 @@ class ElementCut:
     feed_m: float
     cut_leg_m: float  # predicted + trim + termination + feed, m
     prediction: ElementPrediction
-    spread_fraction: float | None  # prediction-band half-width, fraction (None without one)
+    band_fraction: float | None  # prediction-band half-width, fraction of the leg (None: no band)
     legs: tuple[LegGeometry, LegGeometry]
     included_angle_deg: float
     calibrated: bool = False  # predicted_leg_m comes from a site calibration
     uncalibrated_leg_m: float | None = None  # the model's leg before calibration, if calibrated
+    uncertainty: Uncertainty | None = None  # the parts of the band (ground, mesh, model)
+    band_legs_m: tuple[float, float] | None = None  # the band as leg lengths (low, high), m
+    trim_rule: str = "default"  # which rule set the trim (TRIM_RULES)
+
+    @property
+    def band_cover_fraction(self) -> float | None:
+        """The trim that covers the prediction band with the stated margin (TRIM_BAND_MARGIN
+        times the band), fraction of the leg; None without a band."""
+        return None if self.band_fraction is None else TRIM_BAND_MARGIN * self.band_fraction
 
     @property
     def tuning_m_per_100khz(self) -> float:
@@ -61,34 +74,50 @@ class DesignCuts:
     warnings: tuple[str, ...]
 
 
-#: The default trim allowance covers the prediction band (its half-width, the combined
-#: ground, mesh and model uncertainty) with this margin.
-TRIM_BAND_MARGIN: float = 1.5
+#: How the trim allowance of an element was set: "spec" (trim_allowance in the spec), "band"
+#: (TRIM_BAND_MARGIN times the prediction band), "minimum" (min_trim, larger than that),
+#: "calibrated" (the calibration's residual, at least min_trim), "default" (no band: the
+#: spec default, at least min_trim).
+TRIM_RULES: tuple[str, ...] = ("spec", "band", "minimum", "calibrated", "default")
 
 
-def trim_fraction_for(design: AntennaDesign, spread: float | None, calibrated: bool = False) -> float:
-    """Trim allowance as a fraction of the leg.
+def trim_rule_for(design: AntennaDesign, band: float | None, calibrated: bool = False
+                  ) -> tuple[float, str]:
+    """Trim allowance as a fraction of the leg, and the rule that set it (TRIM_RULES).
 
-    A calibrated design's allowance is its residual uncertainty (never below the spec's
-    minimum). Otherwise an explicit spec value wins, then the prediction band ``spread`` (the
-    half-width of the resonant-leg uncertainty) times TRIM_BAND_MARGIN, never below the minimum;
-    without a band the default (3 %) applies.
+    A calibrated design's allowance is its residual uncertainty ``band`` (never below the
+    spec's minimum). Otherwise an explicit spec value wins; then the prediction band ``band``
+    (the half-width of the resonant-leg uncertainty) times TRIM_BAND_MARGIN, never below the
+    minimum; without a band the default (3 %), never below the minimum.
     """
     a = design.allowances
-    if calibrated and spread is not None:
-        return max(a.min_trim_fraction, spread)
-    if a.trim_explicit or spread is None:
-        return a.trim_fraction if a.trim_fraction is not None else 0.0
-    return max(a.min_trim_fraction, TRIM_BAND_MARGIN * spread)
+    if calibrated and band is not None:
+        return max(a.min_trim_fraction, band), "calibrated"
+    if a.trim_explicit:
+        return (a.trim_fraction if a.trim_fraction is not None else 0.0), "spec"
+    if band is None:
+        return max(a.min_trim_fraction, a.trim_fraction or 0.0), "default"
+    covered = TRIM_BAND_MARGIN * band  # ElementCut.band_cover_fraction
+    if covered >= a.min_trim_fraction:
+        return covered, "band"
+    return a.min_trim_fraction, "minimum"
+
+
+def trim_fraction_for(design: AntennaDesign, band: float | None, calibrated: bool = False) -> float:
+    """Trim allowance as a fraction of the leg (:func:`trim_rule_for` without the rule)."""
+    return trim_rule_for(design, band, calibrated)[0]
 
 
 def element_cut(design: AntennaDesign, element: ElementSpec, prediction: ElementPrediction,
-                closed: ElementPrediction, spread: float | None, model: str,
-                calibrated: bool = False, uncalibrated_leg_m: float | None = None) -> ElementCut:
-    """Cut length and geometry of one element from its predicted resonant leg length."""
+                closed: ElementPrediction, band: float | None, model: str,
+                calibrated: bool = False, uncalibrated_leg_m: float | None = None,
+                uncertainty: Uncertainty | None = None,
+                band_legs_m: tuple[float, float] | None = None) -> ElementCut:
+    """Cut length and geometry of one element from its predicted resonant leg length and its
+    prediction band (half-width ``band``, a fraction of the leg; its parts ``uncertainty``)."""
     a = design.allowances
     leg = prediction.leg_length_m
-    fraction = trim_fraction_for(design, spread, calibrated)
+    fraction, rule = trim_rule_for(design, band, calibrated)
     trim = (a.trim_m if (a.trim_explicit and a.trim_m is not None and not calibrated)
             else fraction * leg)
     cut = leg + trim + a.termination_m + a.feed_m
@@ -101,8 +130,8 @@ def element_cut(design: AntennaDesign, element: ElementSpec, prediction: Element
     angle = included_angle_deg(leg, design.apex_height_m - element.end_height_m)
     return ElementCut(element, closed_form.rule_468_length(element.frequency_hz) / 2.0,
                       closed.leg_length_m, leg, model, trim / leg, trim, a.termination_m, a.feed_m,
-                      cut, prediction, spread, legs, angle,  # type: ignore[arg-type]
-                      calibrated, uncalibrated_leg_m)
+                      cut, prediction, band, legs, angle,  # type: ignore[arg-type]
+                      calibrated, uncalibrated_leg_m, uncertainty, band_legs_m, rule)
 
 
 #: Printed resolution of lengths: 1 cm (metric) and 1/8 in (imperial), m.
@@ -141,11 +170,13 @@ def design_cuts(design: AntennaDesign, prediction: DesignPrediction,
     cuts, warnings = [], list(prediction.notes)
     for i, e in enumerate(design.elements):
         p = prediction.element(e.key)
-        spread = prediction.spread[i] if prediction.spread else None
+        band = prediction.spread[i] if prediction.spread else None
         try:
-            cut = element_cut(design, e, p, closed.element(e.key), spread, prediction.model,
+            cut = element_cut(design, e, p, closed.element(e.key), band, prediction.model,
                               bool(prediction.calibrated_from),
-                              uncalibrated.element(e.key).leg_length_m if uncalibrated else None)
+                              uncalibrated.element(e.key).leg_length_m if uncalibrated else None,
+                              prediction.uncertainty[i] if prediction.uncertainty else None,
+                              prediction.band_legs_m[i] if prediction.band_legs_m else None)
         except ValueError as exc:
             raise ValueError(f"designs.{design.key}.elements[{i}] ({e.key}): {exc}; allowed: a "
                              "drop from apex_height to end_height shorter than the leg (lower "
@@ -157,13 +188,14 @@ def design_cuts(design: AntennaDesign, prediction: DesignPrediction,
                             "raise the apex or lower the ends less")
         if a_trim_short(design, cut):
             warnings.append(f"{design.key} {e.key}: the trim allowance {cut.trim_fraction:.1%} "
-                            f"is less than the model spread {cut.spread_fraction:.1%} (the prediction "
-                            "band: ground class range, mesh and model)")
+                            f"is less than the prediction band {cut.band_fraction:.1%} of the leg "
+                            "(ground class range, mesh and model combined): the wire may come "
+                            "out short; leave trim_allowance unset to size it from the band")
     legs = [leg for c in cuts for leg in c.legs]
     return DesignCuts(design, tuple(cuts), footprint(legs), prediction, closed, tuple(warnings))
 
 
 def a_trim_short(design: AntennaDesign, cut: ElementCut) -> bool:
-    """True when an explicit trim allowance does not cover the prediction band (the spread)."""
-    return (design.allowances.trim_explicit and cut.spread_fraction is not None
-            and cut.trim_fraction < cut.spread_fraction)
+    """True when an explicit trim allowance does not cover the prediction band."""
+    return (design.allowances.trim_explicit and cut.band_fraction is not None
+            and cut.trim_fraction < cut.band_fraction)

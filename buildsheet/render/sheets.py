@@ -31,7 +31,7 @@ from reportlab.platypus import (
 )
 
 from buildsheet.calc.bom import DAY_BOM_CSV, catalogue_title, kit_bom_csv_name, shop_length_text
-from buildsheet.calc.cuts import DesignCuts, printed_parts
+from buildsheet.calc.cuts import TRIM_BAND_MARGIN, DesignCuts, ElementCut, printed_parts
 from buildsheet.calc.performance import DesignPerformance
 from buildsheet.calc.safety import SITE_CAUTIONS
 from buildsheet.packet import ElementEntry, Packet
@@ -170,6 +170,63 @@ def tuning_lines(cuts: DesignCuts, units: str) -> list[Flowable]:
     return out
 
 
+def _pct(fraction: float) -> str:
+    """A small share of the leg as printed in the prediction band: "0.32 %"."""
+    return f"{100 * fraction:.2f} %"
+
+
+def trim_words(c: ElementCut, min_trim_fraction: float) -> str:
+    """How the trim allowance of ``c`` was set, two plain lines (the rule is in calc.cuts)."""
+    trim, minimum = _pct(c.trim_fraction), _pct(min_trim_fraction)
+    if c.trim_rule == "band" and c.band_fraction is not None:
+        return f"{trim} = {TRIM_BAND_MARGIN:g} x combined band\n(more than min_trim {minimum})"
+    cover = c.band_cover_fraction
+    if c.trim_rule == "minimum" and cover is not None:
+        return (f"{trim} = min_trim\n({TRIM_BAND_MARGIN:g} x combined band is only "
+                f"{_pct(cover)})")
+    if c.trim_rule == "calibrated":
+        return f"{trim} = calibration residual\n(at least min_trim {minimum})"
+    if c.trim_rule == "spec":
+        return f"{trim}\nset in the spec (trim_allowance)"
+    return f"{trim}: the default\n(at least min_trim {minimum})"
+
+
+def band_flowables(cuts: DesignCuts, units: str) -> list[Flowable]:
+    """The prediction band of every resonant leg: its parts (ground class range, mesh, model),
+    the combined half-width, the leg range it spans, and how the trim allowance covers it."""
+    els = cuts.elements
+    if all(c.band_fraction is None for c in els):
+        return [_p("No prediction band with this model (the closed form has none): the trim "
+                   "allowance is the spec's or the default, never less than min_trim.", "small")]
+    head = ["Band", "Ground class\nrange", "Mesh\n(Richardson)", "Model (thin\nwire, coating)",
+            "Combined\n(RSS)", "Resonant leg\nwithin", "Trim allowance"]
+    rows = [head]
+    for c in els:
+        u = c.uncertainty
+        parts = ([_pct(u.ground), _pct(u.mesh), _pct(u.model)] if u is not None
+                 else ["-", "-", "-"])
+        within = ("-" if c.band_legs_m is None else
+                  f"{format_length(c.band_legs_m[0], units)} to\n"  # type: ignore[arg-type]
+                  f"{format_length(c.band_legs_m[1], units)}")  # type: ignore[arg-type]
+        rows.append([c.element.band_label, *parts,
+                     "-" if c.band_fraction is None else _pct(c.band_fraction), within,
+                     trim_words(c, cuts.design.allowances.min_trim_fraction)])
+    table = _table(rows, [38, 56, 58, 66, 50, 66, 174], bold_cols=(4,))
+    calibrated = any(c.trim_rule == "calibrated" for c in els)
+    text = ("<b>Prediction band</b> of each resonant leg, as half-widths (share of the leg). "
+            + ("Calibrated: the band is the site calibration's residual uncertainty. "
+               if calibrated else
+               "Ground: the documented range of the site's ground class (a measured ground: "
+               "its stated tolerance); mesh: the Richardson estimate from two meshes of what "
+               "remains of the discretisation error; model: a stated figure for the thin-wire "
+               "model and the wire's coating. ")
+            + "Combined: the root sum of squares of the parts. Unless the spec sets "
+            f"trim_allowance, the trim allowance is {TRIM_BAND_MARGIN:g} times the combined band "
+            "and never less than min_trim, so the wire is cut long enough to trim to resonance "
+            "wherever in the band the site puts it.")
+    return [_p(text, "small"), Spacer(1, 2), table, Spacer(1, 3)]
+
+
 def feed_lines(cuts: DesignCuts) -> list[Flowable]:
     """Feed impedance, SWR and 2:1 bandwidth per element, with plain advice above 2:1."""
     out = []
@@ -180,9 +237,6 @@ def feed_lines(cuts: DesignCuts) -> list[Flowable]:
         text = (f"<b>{c.element.band_label}:</b> feed impedance at {format_frequency(c.element.frequency_hz)} "
                 f"{p.z_feed.real:.1f} {'+' if p.z_feed.imag >= 0 else '-'} j{abs(p.z_feed.imag):.1f} ohm, "
                 f"SWR {p.swr_at_design:.2f}:1 on 50 ohm; {bw}.")
-        if c.spread_fraction is not None:
-            text += (f" Model spread across free space, perfect and site ground: "
-                     f"{c.spread_fraction:.1%} of the leg.")
         if p.swr_at_design > 2.0:
             text += (" <b>SWR above 2:1 at resonance</b>: a low antenna's feed resistance falls "
                      "well below 50 ohm. A higher apex, a wider included angle, or a matching "
@@ -259,18 +313,20 @@ def exposure_box(packet: Packet, design_key: str, width: float = 500) -> Table:
 
 
 def nvis_table(perf: DesignPerformance, units: str) -> Table:
+    """Per band: zenith gain, high-angle shares, main lobe, ground loss, efficiency (radiated
+    over input power) and the best height with its 1 dB window."""
     rows = [["Band", "Zenith gain", "Power above\n60 deg", "Power above\n45 deg",
-             "Main lobe\nelevation", "Ground loss\nshare", "Best height\n(zenith)",
-             "Within 1 dB\nof best"]]
+             "Main lobe\nelevation", "Ground loss\nshare", "Efficiency\n(radiated/in)",
+             "Best height\n(zenith)", "Within 1 dB\nof best"]]
     for b in perf.bands:
         n, h = b.nvis, b.height
         rows.append([b.band_label, f"{n.zenith_gain_dbi:.1f} dBi", f"{n.share_above_60:.0%}",
                      f"{n.share_above_45:.0%}", f"{n.main_lobe_elevation_deg:.0f} deg",
-                     f"{n.ground_loss_share:.0%}",
-                     f"{format_length(h.best_height_m, units)}\n"
-                     f"({h.best_height_m / h.wavelength_m:.2f} wl)",
+                     f"{n.ground_loss_share:.0%}", f"{n.efficiency:.0%}",
+                     (f"{format_length(h.best_height_m, units)}\n"
+                      f"({h.best_height_m / h.wavelength_m:.2f} wl)"),
                      f"{format_length(h.range_low_m, units)} to\n{format_length(h.range_high_m, units)}"])
-    return _table(rows, [44, 58, 62, 62, 58, 60, 72, 84])
+    return _table(rows, [40, 50, 54, 54, 52, 56, 60, 62, 82])
 
 
 def coverage_page(packet: Packet, cuts: DesignCuts) -> list[Flowable]:
@@ -280,7 +336,12 @@ def coverage_page(packet: Packet, cuts: DesignCuts) -> list[Flowable]:
     d = cuts.design
     story: list[Flowable] = [_p(f"Coverage and exposure: {plain(d.title)}", "h1"),
                              _p(perf.method_note, "small"), Spacer(1, 3), nvis_table(perf, units),
-                             Spacer(1, 4)]
+                             Spacer(1, 2),
+                             _p("Ground loss share: the input power, after conductor loss, that is "
+                                "not radiated upward (it heats the ground). Efficiency: the power "
+                                "radiated into the sky over the input power. The best height and "
+                                "the 1 dB window come from the zenith gain over the input power, "
+                                "so ground loss is in them.", "small"), Spacer(1, 4)]
     n = len(perf.bands)
     w = min(250, 500 / n) - 6
     polar = [charts.elevation_polar_drawing(b.cuts.angle_deg, b.cuts.broadside_dbi,
@@ -314,7 +375,8 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list
         f"{'s' if len(d.elements) > 1 else ''}) on one 1:1 balun, {d.mount.replace('_', ' ')}, "
         f"apex {format_both(d.apex_height_m, units)}. Wire: "
         f"{plain(catalogue_title(d.wire.title, units))}. "
-        f"Ground: {plain(packet.design.site.ground.title)}.", "body"))
+        f"Ground: {plain(packet.design.site.ground.title)}, ground model: "
+        f"{plain(cuts.prediction.ground_model or cuts.prediction.ground_title)}.", "body"))
     if len(kits) > 1:
         roster = ", ".join(f"{k.kit_id}{' ' + plain(k.builder) if k.builder else ''}"
                            for k in kits)
@@ -330,6 +392,7 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list
         f"Cut = model leg + trim allowance + termination at the end insulator + feed allowance "
         f"(pigtail to the balun terminal). Model: {plain(cuts.prediction.model_note)}. The 468/f rule and the straight-dipole closed form are "
         "shown for comparison.", "small"))
+    story += band_flowables(cuts, units)
     story += tuning_lines(cuts, units)
     story += [_p(t, "body") for t in packet.advice[d.key].dips]
     story += [_p(plain(t), "body") for t in packet.advice[d.key].spacing]
