@@ -30,9 +30,9 @@ def _ring_levels(peak_dbi: float, span_db: float = 30.0, step_db: float = 10.0) 
 
 
 def elevation_polar_drawing(
-    elevation_deg: Sequence[float],
-    gain_dbi_broadside: Sequence[float],
-    gain_dbi_endfire: Sequence[float],
+    elevation_deg: Sequence[float] | np.ndarray,
+    gain_dbi_broadside: Sequence[float] | np.ndarray,
+    gain_dbi_endfire: Sequence[float] | np.ndarray,
     width_pt: float,
     title: str,
 ) -> Drawing:

@@ -244,8 +244,8 @@ def plan_view(cuts: DesignCuts, size: float, system: UnitSystem) -> Drawing:
                          (px - 2.5, py - 2.5, px + 2.5, py + 2.5))
             s.symbol(Rect(sx - 2.5, sy - 2.5, 5, 5, fillColor=colors.black, strokeWidth=0),
                      (sx - 2.5, sy - 2.5, sx + 2.5, sy + 2.5))
-            stakes.append((f"{c.element.band_label} {leg.leg_id} {leg.bearing_deg:.0f} deg\n"
-                           f"{format_length(leg.stake_distance_m, system)}", sx, sy,
+            stakes.append(((f"{c.element.band_label} {leg.leg_id} {leg.bearing_deg:.0f} deg\n"
+                            f"{format_length(leg.stake_distance_m, system)}"), sx, sy,
                            90.0 - leg.bearing_deg))
     s.symbol(Circle(cx, cy, 3, fillColor=colors.black), (cx - 3, cy - 3, cx + 3, cy + 3))
     _scale_bar(s, 6, 6, scale, size / 3, system)

@@ -38,7 +38,7 @@ from buildsheet.packet import ElementEntry, Packet
 from buildsheet.render import buildday, charts, drawings
 from buildsheet.render.markup import plain, shorten
 from buildsheet.spec.design import Kit
-from buildsheet.spec.units import format_both, format_frequency, format_length
+from buildsheet.spec.units import UnitSystem, format_both, format_frequency, format_length
 from buildsheet.store.files import write_output
 
 _BASE = getSampleStyleSheet()
@@ -120,12 +120,12 @@ def _p(text: str, style: str = "cell") -> Paragraph:
     return Paragraph(text, STYLES[style])
 
 
-def _two_line(metres: float, units: str) -> str:
+def _two_line(metres: float, units: UnitSystem) -> str:
     """Primary unit on the first line, the other in brackets below (plain table cell text)."""
     return format_both(metres, units).replace(" (", "\n(")
 
 
-def _parts_cell(printed_m: float, exact_m: float, units: str) -> str:
+def _parts_cell(printed_m: float, exact_m: float, units: UnitSystem) -> str:
     """A cut-list cell: the primary unit from the parts that add up, the other unit in brackets
     from the exact length (so it matches the labels)."""
     other = "imperial" if units == "metric" else "metric"
@@ -141,7 +141,7 @@ def _table(rows: list[list[str]], widths: list[float], bold_cols: tuple[int, ...
     return t
 
 
-def element_table(cuts: DesignCuts, units: str) -> Table:
+def element_table(cuts: DesignCuts, units: UnitSystem) -> Table:
     """The cut table: per element the model lengths, allowances and the cut length per leg."""
     rows = [["Band", "Design\nfreq.", "468/f leg", "Closed-form\nleg", "Model leg", "Trim",
              "Termi-\nnation", "Feed", "CUT EACH LEG"]]
@@ -159,7 +159,7 @@ def element_table(cuts: DesignCuts, units: str) -> Table:
     return _table(rows, [40, 54, 60, 60, 62, 50, 50, 46, 82], bold_cols=(0, 8))
 
 
-def tuning_lines(cuts: DesignCuts, units: str) -> list[Flowable]:
+def tuning_lines(cuts: DesignCuts, units: UnitSystem) -> list[Flowable]:
     out = []
     for c in cuts.elements:
         out.append(_p(
@@ -191,7 +191,7 @@ def trim_words(c: ElementCut, min_trim_fraction: float) -> str:
     return f"{trim}: the default\n(at least min_trim {minimum})"
 
 
-def band_flowables(cuts: DesignCuts, units: str) -> list[Flowable]:
+def band_flowables(cuts: DesignCuts, units: UnitSystem) -> list[Flowable]:
     """The prediction band of every resonant leg: its parts (ground class range, mesh, model),
     the combined half-width, the leg range it spans, and how the trim allowance covers it."""
     els = cuts.elements
@@ -206,8 +206,8 @@ def band_flowables(cuts: DesignCuts, units: str) -> list[Flowable]:
         parts = ([_pct(u.ground), _pct(u.mesh), _pct(u.model)] if u is not None
                  else ["-", "-", "-"])
         within = ("-" if c.band_legs_m is None else
-                  f"{format_length(c.band_legs_m[0], units)} to\n"  # type: ignore[arg-type]
-                  f"{format_length(c.band_legs_m[1], units)}")  # type: ignore[arg-type]
+                  f"{format_length(c.band_legs_m[0], units)} to\n"
+                  f"{format_length(c.band_legs_m[1], units)}")
         rows.append([c.element.band_label, *parts,
                      "-" if c.band_fraction is None else _pct(c.band_fraction), within,
                      trim_words(c, cuts.design.allowances.min_trim_fraction)])
@@ -245,7 +245,7 @@ def feed_lines(cuts: DesignCuts) -> list[Flowable]:
     return out
 
 
-def geometry_table(cuts: DesignCuts, units: str) -> Table:
+def geometry_table(cuts: DesignCuts, units: UnitSystem) -> Table:
     if any(leg.has_support for c in cuts.elements for leg in c.legs):
         return support_table(cuts, units)
     rows = [["Leg", "Bearing", "Reach", "Slope", "End height", "Cord line", "Cord to cut",
@@ -261,7 +261,7 @@ def geometry_table(cuts: DesignCuts, units: str) -> Table:
     return _table(rows, [50, 44, 66, 36, 66, 70, 74, 78], bold_cols=(6,))
 
 
-def support_table(cuts: DesignCuts, units: str) -> Table:
+def support_table(cuts: DesignCuts, units: UnitSystem) -> Table:
     """Flat mount: end supports, the cord to each, halyards and the guy anchors."""
     rows = [["Leg", "Bearing", "Reach", "Support\nfrom mast", "Support\nheight",
              "Cord to\nsupport", "Halyard", "Guys (3),\neach", "Guy anchors\nfrom mast"]]
@@ -312,7 +312,7 @@ def exposure_box(packet: Packet, design_key: str, width: float = 500) -> Table:
     return t
 
 
-def nvis_table(perf: DesignPerformance, units: str) -> Table:
+def nvis_table(perf: DesignPerformance, units: UnitSystem) -> Table:
     """Per band: zenith gain, high-angle shares, main lobe, ground loss, efficiency (radiated
     over input power) and the best height with its 1 dB window."""
     rows = [["Band", "Zenith gain", "Power above\n60 deg", "Power above\n45 deg",
@@ -481,7 +481,7 @@ def contents_table(entries: list[tuple[int, str]]) -> Table:
     return t
 
 
-def _qty(line: buildday.BomLine, units: str) -> str:
+def _qty(line: buildday.BomLine, units: UnitSystem) -> str:
     return (shop_length_text(line.quantity, units).split(" (")[0] if line.unit == "m"
             else f"{line.quantity:g}")
 
@@ -519,7 +519,7 @@ def cover(packet: Packet) -> list[Flowable]:
     return story
 
 
-def _fmt(units: str) -> Callable[[float], str]:
+def _fmt(units: UnitSystem) -> Callable[[float], str]:
     return lambda m: _two_line(m, units)
 
 
@@ -557,7 +557,7 @@ def logistics_pages(packet: Packet, only: Collection[str] | None = None) -> list
     return story
 
 
-def as_built_table(entries: tuple[ElementEntry, ...], units: str) -> Table:
+def as_built_table(entries: tuple[ElementEntry, ...], units: UnitSystem) -> Table:
     """Per leg: prescribed cut, length as cut, current length, target and the action."""
     rows = [["Leg", "Prescribed cut", "As cut", "Now", "Target", "Do"]]
     for e in entries:
@@ -565,11 +565,11 @@ def as_built_table(entries: tuple[ElementEntry, ...], units: str) -> Table:
             rows.append([leg.leg_id, _two_line(leg.prescribed_cut_m, units),
                          "not cut" if leg.cut_m is None else _two_line(leg.cut_m, units),
                          _two_line(leg.current_m, units), _two_line(leg.target_m, units),
-                         leg.action.words(units, both=False)])  # type: ignore[arg-type]
+                         leg.action.words(units, both=False)])
     return _table(rows, [70, 72, 72, 72, 72, 142], bold_cols=(5,))
 
 
-def as_built_flowables(entries: tuple[ElementEntry, ...], units: str) -> list[Flowable]:
+def as_built_flowables(entries: tuple[ElementEntry, ...], units: UnitSystem) -> list[Flowable]:
     """The kit's legs as built, with the instruction for each element (only once cut)."""
     if not any(leg.cut_m is not None for e in entries for leg in e.state.legs):
         return []
