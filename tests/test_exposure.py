@@ -179,5 +179,5 @@ def test_bad_inputs():
     with pytest.raises(BuildError):
         screen(7.2e6, 100.0, "ssb", 1.5, 2.15)
     with pytest.raises(BuildError):
-        screen(7.2e6, 100.0, "ssb", 0.5, 2.15, regime="mars")  # type: ignore[arg-type]
+        screen(7.2e6, 100.0, "ssb", 0.5, 2.15, regime="mars")  # type: ignore[arg-type]  # bad on purpose
     assert math.isfinite(screen(1.9e6, 100.0, "cw", 0.5, 2.15).eirp_w)

@@ -7,7 +7,9 @@ Lengths in metres inside, formatted for the packet's unit system.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, replace
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -27,6 +29,11 @@ from buildsheet.spec.units import (
     format_frequency,
     format_length,
 )
+
+if TYPE_CHECKING:
+    from buildsheet.em.context import Solver
+    from buildsheet.em.ground import Ground
+    from buildsheet.em.prediction import ModelName
 
 
 @dataclass(frozen=True)
@@ -291,7 +298,8 @@ def _fit_words(fp: Footprint, w: float, d: float) -> str:
             None: "does not fit"}[o]
 
 
-def _bisect(fits, lo: float, hi: float, want_high: bool, steps: int = 30) -> float | None:
+def _bisect(fits: Callable[[float], bool], lo: float, hi: float, want_high: bool,
+            steps: int = 30) -> float | None:
     """The extreme value in [lo, hi] where ``fits`` holds, assuming it holds on one side only:
     the largest (``want_high``) or the smallest value; None if it holds nowhere."""
     good = hi if not want_high else lo
@@ -334,9 +342,9 @@ def site_fit_lines(cuts: DesignCuts, width_m: float | None, depth_m: float | Non
                      "guys; an inverted V (ends lower than the apex) takes less room.")
         return tuple(lines)
 
-    def fits(**change: float) -> bool:
+    def fits(*, apex_m: float | None = None, end_m: float | None = None) -> bool:
         try:
-            return _layout(cuts, **change).fits(width_m, depth_m)  # type: ignore[arg-type]
+            return _layout(cuts, apex_m=apex_m, end_m=end_m).fits(width_m, depth_m)
         except ValueError:  # a leg too short for that drop
             return False
 
@@ -390,8 +398,9 @@ def crossed_bearings(bearings: list[float]) -> list[float]:
     return [(bearings[0] + k * 180.0 / n) % 360.0 for k in range(n)]
 
 
-def fan_spacing_advice(cuts: DesignCuts, ground: object | None, model: str,
-                       units: UnitSystem, solver: object | None = None) -> tuple[tuple[str, ...], tuple[str, ...]]:
+def fan_spacing_advice(cuts: DesignCuts, ground: Ground | None, model: ModelName,
+                       units: UnitSystem, solver: Solver | None = None
+                       ) -> tuple[tuple[str, ...], tuple[str, ...]]:
     """(lines, warnings) for fan elements closer than about 30-45 degrees: which pairs, how far
     each modelled leg moves against the same elements spread evenly (crossed, for two), and
     spreader guidance (common practice). ``ground``/``model`` re-solve the spread layout (through
@@ -416,7 +425,7 @@ def fan_spacing_advice(cuts: DesignCuts, ground: object | None, model: str,
         spread = crossed_bearings([c.element.bearing_deg for c in els])
         variant = replace(d, elements=tuple(replace(c.element, bearing_deg=b)
                                             for c, b in zip(els, spread)))
-        ref = predict(variant, ground, model, solver)  # type: ignore[arg-type]
+        ref = predict(variant, ground, model, solver)
         what = "crossed at 90 deg" if len(els) == 2 else f"spread {180 / len(els):.0f} deg apart"
         moves = []
         for c in els:
@@ -438,8 +447,8 @@ def fan_spacing_advice(cuts: DesignCuts, ground: object | None, model: str,
 
 def design_advice(cuts: DesignCuts, perf: DesignPerformance, units: UnitSystem,
                   site_m: tuple[float | None, float | None] = (None, None), *,
-                  ground: object | None = None, model: str = "closed_form",
-                  solver: object | None = None) -> DesignAdvice:
+                  ground: Ground | None = None, model: ModelName = "closed_form",
+                  solver: Solver | None = None) -> DesignAdvice:
     """Word the advice for one solved design (``site_m``: site width E-W and depth N-S, m;
     ``ground`` and ``model`` let the fan-spacing note re-solve an evenly spread layout)."""
     d = cuts.design

@@ -15,12 +15,12 @@ from dataclasses import dataclass
 from buildsheet.calc.stock import DEFAULT_TOLERANCE_M
 from buildsheet.constants import FOOT
 from buildsheet.errors import Problem, SpecError
-from buildsheet.spec.units import format_distance, format_length
+from buildsheet.spec.units import UnitSystem, format_distance, format_length
 
 _MM = re.compile(r"(?<![(\w.])(\d+(?:\.\d+)?(?:-\d+(?:\.\d+)?)? mm2?)(?![\w)])")
 
 
-def catalogue_title(text: str, units: str) -> str:
+def catalogue_title(text: str, units: UnitSystem) -> str:
     """A catalogue description for the packet's units: in an imperial packet its metric sizes
     go in brackets ("PVC jacket 0.4 mm" -> "PVC jacket (0.4 mm)"); metric text is unchanged."""
     return text if units == "metric" else _MM.sub(r"(\1)", text)
@@ -74,7 +74,7 @@ class KitNeeds:
     pulleys: int = 0  # one per end support, for the halyard
     halyards_m: tuple[float, ...] = ()
     support_guys_m: tuple[float, ...] = ()
-    units: str = "metric"  # primary unit system of the packet (for notes)
+    units: UnitSystem = "metric"  # primary unit system of the packet (for notes)
 
     @property
     def cord_pieces_m(self) -> tuple[float, ...]:
@@ -95,7 +95,7 @@ _STAKE_NOTE = ("drive leaning 45-60 degrees away from the load; double-stake in 
 def kit_bom(needs: KitNeeds) -> tuple[BomLine, ...]:
     """Bill of materials for one kit; lines with zero quantity are left out."""
     tol = needs.cutting_tolerance_m
-    tol_text = format_length(tol, needs.units)  # type: ignore[arg-type]
+    tol_text = format_length(tol, needs.units)
     lines: list[BomLine] = []
     for w in needs.wires:
         total = math.fsum(x + tol for x in w.leg_lengths_m)
@@ -105,7 +105,7 @@ def kit_bom(needs: KitNeeds) -> tuple[BomLine, ...]:
     tie = math.fsum(needs.tie_off_cords_m)
     spare = needs.spare_cord_m
     flat = needs.end_supports > 0
-    support = (f"end support, at least {format_distance(needs.support_height_m, needs.units)} "  # type: ignore[arg-type]
+    support = (f"end support, at least {format_distance(needs.support_height_m, needs.units)} "
                "high (mast, pole or tree)")
     lines += [
         BomLine("cord", f"{cord}, tie-offs", round(tie, 6), "m",

@@ -12,6 +12,7 @@ from buildsheet.calc.feedline import coax
 from buildsheet.calc.geometry import SUPPORT_GUYS
 from buildsheet.calc.stock import DEFAULT_TOLERANCE_M, Cut, SpoolPlan, StockItem, plan_spools
 from buildsheet.spec.design import Design, Kit
+from buildsheet.spec.units import UnitSystem
 
 #: Material key for tie-off cord in the spec's [[stock]] tables.
 CORD = "cord"
@@ -23,7 +24,7 @@ HANG_LOOP_CORD_M = 1.0
 BALUN_LOOP_CORD_M = 0.5
 
 
-def kit_needs(kit: Kit, cuts: DesignCuts, units: str = "metric") -> KitNeeds:
+def kit_needs(kit: Kit, cuts: DesignCuts, units: UnitSystem = "metric") -> KitNeeds:
     """Plain quantities for one kit of a design: legs, cords, hardware (notes in ``units``)."""
     d = cuts.design
     legs = [c.cut_leg_m for c in cuts.elements for _ in c.legs]
@@ -82,7 +83,7 @@ def day_cuts(spec: Design, cuts_by_design: dict[str, DesignCuts],
 
 
 def stock_items(spec: Design, used_m: Mapping[str, float] | None = None,
-                units: str = "metric") -> tuple[StockItem, ...]:
+                units: UnitSystem = "metric") -> tuple[StockItem, ...]:
     """The spec's stock on hand, less ``used_m`` (metres per material already cut from it,
     taken from the spools in the order the spec lists them; a part-used spool is its own item)."""
     titles = {k: catalogue_title(w.title, units) for k, w in spec.wires.items()}

@@ -21,6 +21,7 @@ from buildsheet.errors import RecordError, UsageError
 from buildsheet.store.ledger import STORE_SUFFIX
 
 if TYPE_CHECKING:
+    from buildsheet.records import VoidKind
     from buildsheet.spec.units import UnitSystem
 
 #: Where a record command looks, in order, when no option names the store.
@@ -309,8 +310,9 @@ def handle_void(args: argparse.Namespace, out: TextIO | None = None) -> int:
     from buildsheet.store import ledger as rec
 
     out = out or sys.stdout
-    chosen = [(k, n) for k, n in (("measurement", args.measurement), ("trim", args.trim),
-                                  ("cut", args.cut)) if n is not None]
+    given: tuple[tuple[VoidKind, int | None], ...] = (
+        ("measurement", args.measurement), ("trim", args.trim), ("cut", args.cut))
+    chosen = [(k, n) for k, n in given if n is not None]
     if len(chosen) != 1:
         raise RecordError("void: give exactly one of --measurement N, --trim N or --cut N")
     kind, number = chosen[0]
@@ -323,7 +325,7 @@ def handle_void(args: argparse.Namespace, out: TextIO | None = None) -> int:
         if number not in mine:
             raise RecordError(f"void: {kind} {number} does not belong to {row.id}; "
                               f"`buildsheet history {row.id}` lists its numbers")
-        rec.void_record(store, kind, number, args.reason or "", _now())  # type: ignore[arg-type]
+        rec.void_record(store, kind, number, args.reason or "", _now())
     print(f"{row.id}: {kind} {number} is void (kept in the history, ignored from now on).",
           file=out)
     return 0

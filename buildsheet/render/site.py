@@ -19,7 +19,7 @@ import jinja2
 
 from buildsheet.errors import BuildError
 from buildsheet.records import SIDES, ElementHistory
-from buildsheet.spec.units import format_frequency, format_length
+from buildsheet.spec.units import UnitSystem, format_frequency, format_length
 from buildsheet.store.files import write_atomic
 
 if TYPE_CHECKING:
@@ -173,14 +173,15 @@ def _time(iso: str) -> str:
     return f"{m.group(1)} {m.group(2)} {'UTC' if zone in ('Z', '+00:00') else zone}".strip()
 
 
-def leg_views(h: ElementHistory, entry: ElementEntry | None, units: str) -> tuple[LegView, ...]:
+def leg_views(h: ElementHistory, entry: ElementEntry | None,
+              units: UnitSystem) -> tuple[LegView, ...]:
     """Formatted legs: from the packet's as-built state when the element is in the packet,
     else (archived) from the ledger alone."""
     if entry is not None:
         return tuple(LegView(leg.leg_id, _precise(leg.prescribed_cut_m),
                              None if leg.cut_m is None else _precise(leg.cut_m),
                              _precise(leg.current_m), _precise(leg.target_m),
-                             leg.action.words(units, both=False))  # type: ignore[arg-type]
+                             leg.action.words(units, both=False))
                      for leg in entry.state.legs)
     out = []
     for side in SIDES:
@@ -194,7 +195,7 @@ def leg_views(h: ElementHistory, entry: ElementEntry | None, units: str) -> tupl
 
 def element_page(h: ElementHistory, built_at: str, sheet_file: str = "",
                  sheet_href: str = "", entry: ElementEntry | None = None,
-                 units: str = "metric") -> ElementPage:
+                 units: UnitSystem = "metric") -> ElementPage:
     """The typed context of one element page."""
     e = h.element
     f0 = e.design_frequency_hz
@@ -261,7 +262,7 @@ def render_site(histories: Sequence[ElementHistory], built_at: str,
                 title: str = "Element records",
                 env: jinja2.Environment | None = None,
                 entries: Mapping[str, ElementEntry] | None = None,
-                units: str = "metric") -> dict[str, str]:
+                units: UnitSystem = "metric") -> dict[str, str]:
     """All pages as {file name: HTML text}. ``sheet_files`` / ``sheet_hrefs`` map element IDs to
     the build sheet's name and a relative link to it (optional); ``entries`` are the packet's
     elements (as-built state, advice, record rows) by ID."""

@@ -14,7 +14,7 @@ import re
 import tomllib
 from collections.abc import Callable, Mapping
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from buildsheet.calc.exposure import DUTY_FACTORS
 from buildsheet.calc.feedline import COAX_TYPES
@@ -46,6 +46,9 @@ from buildsheet.spec.design import (
 from buildsheet.spec.units import format_frequency, parse_frequency, parse_length
 from buildsheet.spec.values import kind_of, shown
 from buildsheet.spec.wires import BUILTIN_WIRES, MATERIALS, WireType, awg_diameter
+
+if TYPE_CHECKING:  # calc.labels imports the spec package: no import at run time
+    from buildsheet.calc.labels import LabelStock
 
 _TOP_KEYS = ("event", "site", "wires", "designs", "kits", "labels", "exposure", "stock")
 _EVENT_KEYS = ("name", "club", "date", "region", "units", "paper", "record_url", "layout",
@@ -516,7 +519,7 @@ def read_spec_text(text: str, source: str = "spec.toml") -> Design:
         from buildsheet.calc.labels import check_start_cell
 
         try:
-            check_start_cell(stock, start, where=f"{source}: labels.start_cell")  # type: ignore
+            check_start_cell(stock, start, where=f"{source}: labels.start_cell")
         except SpecError as exc:
             r.problems.extend(exc.problems)
 
@@ -558,7 +561,7 @@ def read_spec_text(text: str, source: str = "spec.toml") -> Design:
                   LabelSettings(stock, start), exposure, tuple(spools), tuple(r.warnings))
 
 
-def _label_stock(r: _Reader, value: Any) -> object:
+def _label_stock(r: _Reader, value: Any) -> LabelStock | None:
     from buildsheet.calc import labels
 
     if isinstance(value, str):
