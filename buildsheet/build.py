@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import hashlib
 import io
-from collections.abc import Mapping
+from collections.abc import Collection, Mapping
 from dataclasses import dataclass, replace
 from datetime import datetime
 from pathlib import Path
@@ -343,13 +343,17 @@ def packet_from_store(spec: Design, store: RecordStore, *, built_at: str,
 
 
 def entries_from_store(spec: Design, store: RecordStore, *, model: ModelName = "mom",
-                       solver: Solver | None = None,
+                       solver: Solver | None = None, designs: Collection[str] | None = None,
                        ) -> tuple[tuple[ElementEntry, ...], dict[str, ElementHistory]]:
     """The packet's element entries (as-built state, advice) over the ledger, without the
-    day-level logistics and coverage: what the record commands print from."""
+    day-level logistics and coverage: what the record commands print from. ``designs``: only
+    the kits of these design keys (a command about one element solves only its design)."""
     from buildsheet.packet import element_entries, solve_designs, usable_calibrations
     from buildsheet.store.ledger import load_histories
 
+    if designs is not None:
+        spec = replace(spec, designs=tuple(d for d in spec.designs if d.key in designs),
+                       kits=tuple(k for k in spec.kits if k.design_key in designs))
     histories = {h.element.id: h for h in load_histories(store)}
     cals = usable_calibrations(spec, stored_calibrations(store, spec))
     return element_entries(spec, solve_designs(spec, model, cals, solver), histories), histories

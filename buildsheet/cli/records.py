@@ -187,7 +187,9 @@ def _entry(store: Any, choice: StoreChoice, args: argparse.Namespace,
     if path is None:
         return None
     spec = load_spec(path)
-    entries, _ = entries_from_store(spec, store)
+    kit_id = element_id.split("-", 1)[0]
+    designs = {k.design_key for k in spec.kits if k.kit_id == kit_id}
+    entries, _ = entries_from_store(spec, store, designs=designs)  # solve its design only
     found = [e for e in entries if e.element_id == element_id]
     if not found:
         raise RecordError(f"{element_id} is not in the spec any more (archived)")
