@@ -1,10 +1,12 @@
 """Benchmark: winder labels in the field. Decode rates of the demo labels, clean and with
 synthetic damage, on every built-in stock; plus the time to plan and render the labels.
 
-Damage: round blots of 1-2 mm radius (dark or light) covering a share of each QR symbol, with
-the finder patterns spared or anywhere (tests/damage.py; fixed seeds). Pages are rasterised
-at 150 dpi with pypdfium2 and decoded with zxing-cpp. Target (issue 13): every label decodes
-with 10 % blotted (finders spared) and with 5 % anywhere, on the smallest built-in stock.
+Damage (tests/damage.py, fixed seeds): round blots of 1-2 mm radius, dark or light at random,
+centred anywhere on the label until the given share of the label's area is covered; either no
+blot touches a finder pattern of any copy of the symbol ("finders spared") or blots may land
+anywhere. Pages are rasterised at 150 dpi with pypdfium2 and decoded with zxing-cpp; a label
+counts as read when a code on it decodes to its payload (either copy). Issue 13 asks for
+decoding with 10 % blotted (finders spared) and with 5 % anywhere, on the smallest stock.
 Run: python bench/labels.py  (needs the test extras)
 """
 
@@ -23,7 +25,7 @@ import zxingcpp
 from PIL import Image
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
-from damage import blot, finder_zones  # noqa: E402
+from damage import blot, label_finder_zones
 
 DPI = 150
 SEEDS = (1, 2, 3)
@@ -37,13 +39,13 @@ def demo_labels(record_url: str | None):
     from buildsheet.spec.reader import read_spec_text
 
     spec = read_spec_text(demo_spec_text(), "demo.toml")
-    if record_url:
-        spec = replace(spec, event=replace(spec.event, record_url=record_url))
+    spec = replace(spec, event=replace(spec.event, record_url=record_url))
     packet = build_packet(spec, built_at="2027-03-01T00:00:00Z", model="closed_form")
     return list(packet.labels)
 
 
 def rates(labels, stock) -> dict[str, tuple[int, int]]:
+    """(read, trials) per damage condition for ``labels`` printed on ``stock``."""
     from buildsheet.calc.labels import MM_PER_PT
     from buildsheet.render.labels import plan_labels, render_labels
 
@@ -61,21 +63,17 @@ def rates(labels, stock) -> dict[str, tuple[int, int]]:
         for i, (label, plan) in enumerate(zip(labels, plans, strict=True)):
             page, cell = divmod(i, stock.cells_per_page)
             left, top = stock.cell_origin(cell)
-            lay = plan.layout
             x0, y0 = round(left * px), round(top * px)
             pixels = pages[page][y0:y0 + round(stock.label_height * px),
-                               x0:x0 + round(stock.label_width * px)]
-            symbol = (round((lay.qr.x + lay.quiet_zone) * px),
-                      round((lay.qr.y + lay.quiet_zone) * px), round(lay.modules * lay.module * px))
-            spared = finder_zones(symbol, lay.modules) if spare else []
+                                 x0:x0 + round(stock.label_width * px)]
+            spared = label_finder_zones(plan.layout, px) if spare else []
+            whole = (0, 0, pixels.shape[1], pixels.shape[0])
             for seed in SEEDS if share else (0,):
                 cut = (blot(pixels, share, seed * 1000 + i, px_per_mm=px, spare=spared,
-                            region=(symbol[0], symbol[1], symbol[0] + symbol[2],
-                                    symbol[1] + symbol[2]))
-                       if share else pixels)
+                            region=whole) if share else pixels)
                 found = zxingcpp.read_barcodes(Image.fromarray(cut),
                                                formats=zxingcpp.BarcodeFormat.QRCode)
-                ok += [r.text for r in found] == [label.payload]
+                ok += label.payload in {r.text for r in found}
                 total += 1
         out[name] = (ok, total)
     return out
@@ -86,18 +84,19 @@ def main() -> None:
     from buildsheet.render.labels import plan_labels, render_labels
 
     for kind, url in (("offline record", None),
-                      ("record URL", "https://fcen.example.org/antennas/{leg}.html")):
+                      ("record URL", "http://buildsheet.local:8000/{element}.html")):
         labels = demo_labels(url)
         print(f"{len(labels)} demo labels, payload: {kind} (e.g. {labels[0].payload!r})")
         for name in sorted(STOCKS, key=lambda n: STOCKS[n].label_width * STOCKS[n].label_height):
             stock = STOCKS[name]
             plans = plan_labels(labels, stock)
-            modules = {len(p.matrix) for p in plans}
-            levels = "".join(sorted({p.error for p in plans}))
+            shapes = sorted({(len(getattr(p.layout, "symbols", (0,))), len(p.matrix), p.error)
+                             for p in plans})
+            shown = ", ".join(f"{c} x {m} modules {e}" for c, m, e in shapes)
             mm = min(p.layout.module for p in plans)
             line = ", ".join(f"{c} {ok}/{n}" for c, (ok, n) in rates(labels, stock).items())
-            print(f"  {name:12s} {stock.label_width:g} x {stock.label_height:g} mm, level "
-                  f"{levels}, {sorted(modules)} modules, module {mm:.2f} mm: {line}")
+            print(f"  {name:12s} {stock.label_width:g} x {stock.label_height:g} mm, {shown}, "
+                  f"module >= {mm:.2f} mm: {line}")
         t0 = time.perf_counter()
         with tempfile.TemporaryDirectory() as tmp:
             render_labels(labels, STOCKS["sheet-a4"], Path(tmp) / "labels.pdf")

@@ -1,11 +1,12 @@
 """Synthetic field damage for winder labels: round blots on a label (our own model).
 
 A winder label gets scuffed, smeared and splashed. The model: discs of 1 to 2 mm radius, each
-dark (ink, mud) or light (worn print) at random, centred at random on the QR symbol (quiet
-zone excluded) until the given share of the symbol's area is covered (damage elsewhere on the
-label does not matter to the code). With ``spare_finders`` no disc touches the QR
-symbol's three finder patterns with their separators (8 x 8 modules each; ISO/IEC 18004
-clause 6.3.3). Everything is seeded, so a run is repeatable.
+dark (ink, mud) or light (worn print) at random, centred at random anywhere in a region until
+the given share of the region's area is covered. The label tests and the bench use the whole
+label as the region ("5 % of its area" is 5 % of the label: blots land on the text, the quiet
+zones and the symbols alike). With spared finders no disc touches any symbol's three finder
+patterns with their separators (8 x 8 modules each; ISO/IEC 18004 clause 6.3.3). Everything
+is seeded, so a run is repeatable.
 
 Shared by the label tests and ``bench/labels.py``; pixels are numpy grey arrays (0 black).
 """
@@ -27,6 +28,18 @@ def finder_zones(symbol: tuple[int, int, int], modules: int) -> list[tuple[int, 
     f = round(8 * side / modules)
     return [(left, top, left + f, top + f), (left + side - f, top, left + side, top + f),
             (left, top + side - f, left + f, top + side)]
+
+
+def label_finder_zones(layout, px_per_mm: float) -> list[tuple[int, int, int, int]]:
+    """Finder zones (x0, y0, x1, y1 px) of every copy of the symbol in a label ``layout``
+    (buildsheet.calc.labels.LabelLayout), pixels measured from the label's top-left."""
+    zones = []
+    for box in getattr(layout, "symbols", None) or (layout.qr,):
+        left = round((box.x + layout.quiet_zone) * px_per_mm)
+        top = round((box.y + layout.quiet_zone) * px_per_mm)
+        zones += finder_zones((left, top, round(layout.modules * layout.module * px_per_mm)),
+                              layout.modules)
+    return zones
 
 
 def blot(label: np.ndarray, share: float, seed: int, *, px_per_mm: float,

@@ -6,6 +6,7 @@ read with pypdf, pages are rasterised with pypdfium2; QR geometry from ISO/IEC 1
 
 from __future__ import annotations
 
+import dataclasses
 import io
 import math
 import re
@@ -25,9 +26,6 @@ from buildsheet.calc.labels import (
     LabelContent,
     LabelStock,
     check_fit,
-    label_symbol,
-    layout_label,
-    make_symbol,
     offline_record,
     record_url,
     resolve_stock,
@@ -71,14 +69,7 @@ def render_bytes(labels, stock, **kw) -> bytes:
 
 
 def layouts(labels, stock, ec="q"):
-    return [
-        layout_label(
-            stock.label_width,
-            stock.label_height,
-            label_symbol(lb.payload, stock, ec).symbol_size(border=0)[0],
-        )
-        for lb in labels
-    ]
+    return [plan.layout for plan in plan_labels(labels, stock, ec=ec)]
 
 
 def raster_scale(labels, stock, ec="q") -> float:
@@ -321,14 +312,16 @@ def test_every_qr_decodes_to_its_label(name):
     scale = raster_scale(labels, stock)
     pages = pages_as_gray(pdf, scale)
     assert len(pages) == math.ceil(len(labels) / stock.cells_per_page)
+    copies = [len(lay.symbols) for lay in layouts(labels, stock)]
     for i, label in enumerate(labels):
         page, cell = divmod(i, stock.cells_per_page)
         found = decode(cell_pixels(pages[page], stock, cell, scale))
-        assert [r.text for r in found] == [label.payload]  # zxing-cpp decode
-        assert found[0].ec_level in ("Q", "H")  # decoder reports level Q or better
-    # Whole pages too: every payload found once, none extra.
+        assert [r.text for r in found] == [label.payload] * copies[i]  # zxing-cpp decode
+        assert {r.ec_level for r in found} <= {"Q", "H"}  # decoder reports Q or better
+    # Whole pages too: every payload found once per copy, none extra.
     decoded = sorted(r.text for img in pages for r in decode(img))
-    assert decoded == sorted(lb.payload for lb in labels)
+    assert decoded == sorted(lb.payload for lb, n in zip(labels, copies, strict=True)
+                             for _ in range(n))
 
 
 def test_url_payloads_match_generated_record_addresses():
@@ -377,9 +370,9 @@ def test_start_cell_skips_cells_of_a_partly_used_sheet():
         assert cell_pixels(pages[0], stock, cell, scale).min() > 250  # untouched cells blank
     order = [(0, 22), (0, 23), (1, 0), (1, 1)]
     for label, (page, cell) in zip(labels, order, strict=True):
-        assert [r.text for r in decode(cell_pixels(pages[page], stock, cell, scale))] == [
+        assert {r.text for r in decode(cell_pixels(pages[page], stock, cell, scale))} == {
             label.payload
-        ]
+        }
     assert cell_pixels(pages[1], stock, 2, scale).min() > 250
     for bad in (-1, 24):
         with pytest.raises(SpecError, match="start cell"):
@@ -392,13 +385,16 @@ def test_module_size_and_quiet_zone(name):
     labels = make_labels(2)
     for lay in layouts(labels, stock):  # from the layout
         assert lay.module >= 0.5
-        assert lay.qr.width == pytest.approx((lay.modules + 8) * lay.module)
         assert lay.quiet_zone == pytest.approx(4 * lay.module)  # ISO/IEC 18004 cl. 9.1: 4X
-        assert lay.qr.x >= 0 and lay.qr.x + lay.qr.width <= stock.label_width
-        assert lay.qr.y >= 0 and lay.qr.y + lay.qr.height <= stock.label_height
-        assert (
-            lay.text.x + lay.text.width <= lay.qr.x or lay.text.y >= lay.qr.y + lay.qr.height
-        )  # text clear of the quiet zone
+        for box in lay.symbols:
+            assert box.width == pytest.approx((lay.modules + 8) * lay.module)
+            assert box.x >= 0 and box.x + box.width <= stock.label_width
+            assert box.y >= 0 and box.y + box.height <= stock.label_height
+            assert (lay.text.x + lay.text.width <= box.x or lay.text.x >= box.x + box.width
+                    or lay.text.y >= box.y + box.height)  # text clear of the quiet zone
+        for first, second in zip(lay.symbols, lay.symbols[1:], strict=False):
+            # Two copies side by side may share quiet zone, never symbol modules.
+            assert second.x + lay.quiet_zone >= first.x + first.width - 1e-9
     # ... and measured on the raster: the dark symbol's extent and a white quiet zone.
     scale = raster_scale(labels, stock)
     px = scale / MM_PER_PT
@@ -406,20 +402,29 @@ def test_module_size_and_quiet_zone(name):
     for i, (label, lay) in enumerate(zip(labels, layouts(labels, stock), strict=True)):
         page, cell = divmod(i, stock.cells_per_page)
         pixels = cell_pixels(pages[page], stock, cell, scale)
-        (result,) = decode(pixels)
-        modules = 17 + 4 * int(result.extra["Version"])  # ISO/IEC 18004 cl. 6.3.1
-        x0, y0 = round(lay.qr.x * px), round(lay.qr.y * px)
-        box = pixels[y0 : y0 + round(lay.qr.width * px), x0 : x0 + round(lay.qr.width * px)]
-        ys, xs = np.nonzero(box < 128)
-        width_mm = (xs.max() - xs.min() + 1) / px
-        height_mm = (ys.max() - ys.min() + 1) / px
-        assert width_mm / modules >= 0.5 - 1 / px  # module >= 0.5 mm within a pixel
-        assert width_mm == pytest.approx(height_mm, abs=2 / px)
-        quiet_left, quiet_top = xs.min() / px, ys.min() / px
-        quiet_right = (box.shape[1] - 1 - xs.max()) / px
-        quiet_bottom = (box.shape[0] - 1 - ys.max()) / px
-        for q in (quiet_left, quiet_top, quiet_right, quiet_bottom):
-            assert q >= 4 * width_mm / modules - 2 / px  # 4 modules of white, 2 px tolerance
+        results = decode(pixels)
+        assert len(results) == len(lay.symbols)
+        modules = 17 + 4 * int(results[0].extra["Version"])  # ISO/IEC 18004 cl. 6.3.1
+        for box in lay.symbols:
+            # The symbol alone: its quiet zone without a neighbouring copy's shared part.
+            x0, y0 = round(box.x * px), round(box.y * px)
+            area = pixels[y0 : y0 + round(box.width * px), x0 : x0 + round(box.width * px)]
+            inner = (math.floor(lay.quiet_zone * px) - 2,
+                     math.ceil((box.width - lay.quiet_zone) * px) + 2)  # 2 px: grid, smoothing
+            ring = np.zeros(area.shape, dtype=bool)
+            ring[2:-2, 2:-2] = True
+            ring[inner[0] : inner[1], inner[0] : inner[1]] = False
+            assert area[ring].min() >= 128  # the whole quiet zone is white (no neighbour)
+            ys, xs = np.nonzero(area[inner[0] : inner[1], inner[0] : inner[1]] < 128)
+            width_mm = (xs.max() - xs.min() + 1) / px
+            height_mm = (ys.max() - ys.min() + 1) / px
+            assert width_mm / modules >= 0.5 - 1 / px  # module >= 0.5 mm within a pixel
+            assert width_mm == pytest.approx(height_mm, abs=2 / px)
+            for start, end in ((xs.min(), xs.max()), (ys.min(), ys.max())):
+                quiet_before = (start + inner[0]) / px
+                quiet_after = (area.shape[0] - 1 - end - inner[0]) / px
+                for q in (quiet_before, quiet_after):  # 4 modules of white, 2 px slack
+                    assert q >= 4 * width_mm / modules - 2 / px
 
 
 def _operations(pdf: bytes):
@@ -496,8 +501,8 @@ def test_error_correction_h_renders_and_decodes_as_h():
     pdf = render_bytes(labels, STOCKS["roll"], ec="h")
     scale = raster_scale(labels, STOCKS["roll"], "h")
     for img in pages_as_gray(pdf, scale):
-        (result,) = decode(img)
-        assert result.ec_level == "H"  # zxing-cpp reports the level it decoded
+        results = decode(img)
+        assert results and {r.ec_level for r in results} == {"H"}  # as zxing-cpp decoded it
 
 
 def test_symbol_rectangles_cover_exactly_the_dark_modules():
@@ -513,9 +518,9 @@ def test_symbol_rectangles_cover_exactly_the_dark_modules():
 
 
 def _damaged_decodes(labels, stock, share: float, spare_finders: bool, seeds=(1, 2)) -> float:
-    """Share of (label, seed) trials that zxing-cpp still decodes to the label's payload, from
-    a 150 dpi pypdfium2 raster with blots covering ``share`` of each QR symbol."""
-    from damage import blot, finder_zones
+    """Share of (label, seed) trials in which zxing-cpp still reads the label's payload (from
+    either copy) from a 150 dpi pypdfium2 raster with blots covering ``share`` of the label."""
+    from damage import blot, label_finder_zones
 
     plans = plan_labels(labels, stock)
     scale = 150 / 72
@@ -525,24 +530,73 @@ def _damaged_decodes(labels, stock, share: float, spare_finders: bool, seeds=(1,
     for i, (label, plan) in enumerate(zip(labels, plans, strict=True)):
         page, cell = divmod(i, stock.cells_per_page)
         pixels = cell_pixels(pages[page], stock, cell, scale)
-        lay = plan.layout
-        left, top = round((lay.qr.x + lay.quiet_zone) * px), round((lay.qr.y + lay.quiet_zone) * px)
-        side = round(lay.modules * lay.module * px)
-        spare = finder_zones((left, top, side), lay.modules) if spare_finders else []
+        spare = label_finder_zones(plan.layout, px) if spare_finders else []
         for seed in seeds:
             hurt = blot(pixels, share, 1000 * seed + i, px_per_mm=px, spare=spare,
-                        region=(left, top, left + side, top + side))
-            ok += [r.text for r in decode(hurt)] == [label.payload]
+                        region=(0, 0, pixels.shape[1], pixels.shape[0]))
+            ok += label.payload in {r.text for r in decode(hurt)}
             total += 1
     return ok / total
 
 
-def test_labels_survive_scuffs_on_the_smallest_builtin_stock():
-    """Issue 13 target: decode with 10 % of the symbol blotted (finder patterns spared).
-    Level H (ISO/IEC 18004 Table 12: about 30 % of codewords restorable) and a version with
-    modules of at least 0.6 mm. Measured 136/138 on the demo labels (bench/labels.py); the
-    labels of the previous layout (level Q, longer payload) managed 107/138."""
-    stock = min(STOCKS.values(), key=lambda s: s.label_width * s.label_height)
-    labels = make_labels(4)  # 16 labels, offline records and record URLs
-    assert {p.error for p in plan_labels(labels, stock)} == {"H"}
-    assert _damaged_decodes(labels, stock, 0.10, spare_finders=True) >= 0.9
+def _smallest_stock():
+    return min(STOCKS.values(), key=lambda s: s.label_width * s.label_height)
+
+
+def field_labels(kits: int = 4) -> list[LabelContent]:
+    """Labels as a packet makes them (no revision in the offline record) with a short record
+    URL of the kind issue 13 asks for (ID plus URL): odd kits offline, even kits the URL."""
+    out = []
+    for label in make_labels(kits):
+        k = int(label.kit_id[1:])
+        payload = (offline_record(label.leg_id, label.band_name, label.frequency_text,
+                                  label.cut_length_text, label.kit_id, "") if k % 2 else
+                   record_url("https://ridge.example.org/{leg}", label.kit_id, label.element_id,
+                              label.leg_id))
+        out.append(dataclasses.replace(label, payload=payload))
+    return out
+
+
+def test_labels_survive_scuffs_with_the_finders_spared():
+    """Issue 13: decode with 10 % of the label blotted, finder patterns spared. Target 95 %
+    of trials (the bar we chose: at most one label in twenty needs the text read by eye).
+    Measured 136/138 on the demo labels on sheet-a4 (bench/labels.py); the one-symbol layout
+    before managed about 87 % under this damage model."""
+    stock = _smallest_stock()
+    labels = field_labels(4)  # 16 labels, offline records and record URLs
+    assert {len(p.layout.symbols) for p in plan_labels(labels, stock)} == {2}
+    assert _damaged_decodes(labels, stock, 0.10, spare_finders=True, seeds=(1, 2, 3)) >= 0.95
+
+
+def test_labels_survive_scuffs_anywhere_better_with_two_copies():
+    """Issue 13: 5 % of the label blotted anywhere. zxing-cpp reads no symbol with a blot on
+    any of its three finder patterns (tests below), and at 5 % about sixteen 1-2 mm blots fall
+    on a 66 x 35 mm label, so one symbol survives only about a third of the trials whatever
+    its module size; two copies far enough apart that one blot rarely spoils both reach about
+    two thirds. The bar asserts that gain (measured 92/138 on the demo labels, the one-symbol
+    layout 33 %); 95 % is not reachable with this reader on this label (see bench/labels.py)."""
+    stock = _smallest_stock()
+    labels = field_labels(4)
+    assert _damaged_decodes(labels, stock, 0.05, spare_finders=False, seeds=(1, 2, 3)) >= 0.55
+
+
+def test_one_blot_on_a_finder_spoils_one_copy_not_the_label():
+    """A single dark 1.5 mm blot on a finder pattern of one copy: zxing-cpp no longer reads
+    that copy, yet the label still reads from the other."""
+    stock = _smallest_stock()
+    labels = field_labels(1)
+    (plan, *_) = plan_labels(labels, stock)
+    scale = 150 / 72
+    px = scale / MM_PER_PT
+    (page,) = pages_as_gray(render_bytes(labels[:1], stock), scale)
+    pixels = cell_pixels(page, stock, 0, scale).copy()
+    lay = plan.layout
+    box = lay.symbols[0]
+    cx, cy = (box.x + lay.quiet_zone + 3.5 * lay.module) * px, (box.y + lay.quiet_zone
+                                                               + 3.5 * lay.module) * px
+    yy, xx = np.mgrid[0 : pixels.shape[0], 0 : pixels.shape[1]]
+    pixels[(xx - cx) ** 2 + (yy - cy) ** 2 <= (1.5 * px) ** 2] = 0
+    found = decode(pixels)
+    assert [r.text for r in found] == [labels[0].payload]  # one copy read, not two
+    left_edge = found[0].position.top_left.x / px
+    assert left_edge > box.x + box.width - lay.quiet_zone  # ... and it is the second copy

@@ -165,7 +165,7 @@ def build_symbol(content: str, error: str, version: int | None = None) -> Symbol
     or the smallest that holds it; the data mask with the lowest penalty. Raises
     segno.DataOverflowError when the content does not fit."""
     fixed = segno.make_qr(content, error=error, version=version, mask=0, boost_error=False)
-    v, n = fixed.version, len(fixed.matrix)
+    v, n = int(fixed.version), len(fixed.matrix)
     base = np.array(fixed.matrix, dtype=np.uint8) & 1
     data = ~function_modules(v)
     patterns = mask_patterns(n) & data

@@ -12,12 +12,13 @@ import difflib
 import math
 import string
 import urllib.parse
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import dataclass
-from typing import Literal
+from typing import Literal, TypeGuard
 
 import segno
 
+from buildsheet.calc.label_qr import Symbol, build_symbol
 from buildsheet.errors import Problem, SpecError
 
 #: Millimetres per typographic point (1 pt = 1/72 in, 1 in = 25.4 mm exactly).
@@ -138,15 +139,29 @@ class Box:
     height: float
 
 
+#: How the QR symbol(s) and the text share a label: "flank" (a copy of the symbol at each end,
+#: the text between), "pair" (text, then two copies side by side sharing one quiet zone),
+#: "beside" (text, then one symbol) or "above" (one symbol above the text).
+Arrangement = Literal["flank", "pair", "beside", "above"]
+#: Copies of the symbol per arrangement: with two, a blot that spoils one rarely reaches the
+#: other, and a reader that finds either copy has the record (bench/labels.py measures this).
+COPIES: Mapping[str, int] = {"flank": 2, "pair": 2, "beside": 1, "above": 1}
+
+
 @dataclass(frozen=True)
 class LabelLayout:
-    """Where the QR symbol and the text block go on one label; lengths in mm."""
+    """Where the QR symbol copies and the text block go on one label; lengths in mm."""
 
-    arrangement: Literal["beside", "above"]  # QR beside the text (right) or above it
-    qr: Box  # the symbol including its quiet zone (a square)
+    arrangement: Arrangement
+    symbols: tuple[Box, ...]  # each copy including its quiet zone (squares), left to right
     modules: int  # symbol side in modules, quiet zone excluded
     module: float  # module size, mm
     text: Box
+
+    @property
+    def qr(self) -> Box:
+        """The first (leftmost) copy of the symbol, quiet zone included."""
+        return self.symbols[0]
 
     @property
     def quiet_zone(self) -> float:
@@ -257,43 +272,56 @@ def check_ec(ec: str, where: str = "labels.ec") -> str:
     return level
 
 
-def make_symbol(payload: str, ec: str = "q") -> segno.QRCode:
-    """The QR symbol (never Micro QR) for ``payload`` at level ``ec`` or higher if free."""
-    return segno.make_qr(payload, error=check_ec(ec), boost_error=True)
+def version_room(stock: LabelStock) -> Mapping[int, tuple[int, int]]:
+    """Per number of symbol copies (2, 1): the largest QR version that fits the stock's label
+    and the :func:`robust_version` among them, (0, 0) when none fits."""
+    return {copies: (_largest_version(stock, copies), robust_version(stock, copies))
+            for copies in (2, 1)}
 
 
-def robust_version(stock: LabelStock) -> int:
-    """Version whose symbol best survives scuffs on ``stock``: the largest that keeps modules of
-    at least ROBUST_MODULE_MM in the label's layout (0 if none).
+def robust_version(stock: LabelStock, copies: int = 1) -> int:
+    """Version whose symbol best survives scuffs on ``stock`` with ``copies`` copies: the
+    largest that keeps modules of at least ROBUST_MODULE_MM in the label's layout (0 if none).
 
     Scuffs are millimetres across whatever the module size; the more (and smaller) codewords
     a symbol has, the fewer of them one scuff spoils (bench/labels.py measures this).
     """
     for version in range(40, 0, -1):
-        layout = layout_label(stock.label_width, stock.label_height, symbol_modules(version))
+        layout = layout_label(stock.label_width, stock.label_height, symbol_modules(version),
+                              copies)
         if layout.fits and layout.module >= ROBUST_MODULE_MM - 1e-9:
             return version
     return 0
 
 
-def label_symbol(payload: str, stock: LabelStock, ec: str = "q") -> segno.QRCode | None:
-    """The QR symbol of one label (None when none fits ``stock``).
+def label_options(payload: str, stock: LabelStock, ec: str = "q",
+                  room: Mapping[int, tuple[int, int]] | None = None
+                  ) -> Iterator[tuple[LabelLayout, Symbol]]:
+    """Layouts of one label with their QR symbol, most robust first (none when no symbol fits).
 
-    The best level of EC_PREFERENCE, never below ``ec``, at the :func:`robust_version` of the
-    stock, or at the smallest version that holds the payload when that is larger and still
-    fits. Built once when the payload fits the robust version at level H.
+    Two copies of the symbol before one; within each, the best level of EC_PREFERENCE (never
+    below ``ec``) at the copies' :func:`robust_version`, or the smallest version that holds the
+    payload when that is larger and still fits. Each (level, version) symbol is built once;
+    the caller takes the first option whose text fits. ``room`` is :func:`version_room`.
     """
-    floor = EC_PREFERENCE.index(check_ec(ec)) if check_ec(ec) in EC_PREFERENCE else 0
-    largest, robust = _largest_version(stock), robust_version(stock)
-    for level in EC_PREFERENCE[: floor + 1]:
-        for version in ((robust, None) if robust else (None,)):
-            try:
-                symbol = segno.make_qr(payload, error=level, version=version, boost_error=False)
-            except segno.DataOverflowError:
-                continue
-            if symbol.version <= largest:
-                return symbol
-    return None
+    level_floor = check_ec(ec)
+    levels = EC_PREFERENCE[: EC_PREFERENCE.index(level_floor) + 1]
+    room = version_room(stock) if room is None else room
+    built: dict[tuple[str, int], Symbol | None] = {}
+    for copies in (2, 1):
+        largest, robust = room[copies]
+        for level in levels:
+            for version in range(max(robust, 1), largest + 1):
+                if (level, version) not in built:
+                    try:
+                        built[level, version] = build_symbol(payload, level, version)
+                    except segno.DataOverflowError:
+                        built[level, version] = None
+                symbol = built[level, version]
+                if symbol is not None:
+                    yield (layout_label(stock.label_width, stock.label_height,
+                                        len(symbol.matrix), copies), symbol)
+                    break
 
 
 def symbol_modules(version: int) -> int:
@@ -301,48 +329,69 @@ def symbol_modules(version: int) -> int:
     return 17 + 4 * version
 
 
-def layout_label(width: float, height: float, modules: int) -> LabelLayout:
-    """Best layout of a ``modules``-wide symbol and the text block on a width x height mm label.
+def _row_layout(width: float, height: float, modules: int, arrangement: Arrangement
+                ) -> LabelLayout:
+    """The symbol copies and the text side by side ("flank", "pair" or "beside").
 
-    Tries the QR beside the text and above it; keeps the text block at its preferred width
-    when the module stays >= MIN_MODULE_MM, else shrinks the text to its minimum. Returns the
-    fitting layout with the largest module (the first candidate when none fits).
+    The text block narrows from PREFERRED_TEXT_WIDTH_MM toward MIN_TEXT_WIDTH_MM while that
+    brings the module up to ROBUST_MODULE_MM; the symbols take the rest, up to the height.
     """
     span = modules + 2 * QUIET_ZONE_MODULES
-    candidates: list[LabelLayout] = []
+    # Width of the symbol group in modules: two copies side by side share one quiet zone.
+    group = {"flank": 2 * span, "pair": 2 * span - QUIET_ZONE_MODULES, "beside": span,
+             "above": span}[arrangement]
+    gaps = 2 if arrangement == "flank" else 1
+    avail_w, avail_h = width - 2 * INSET_MM - gaps * GAP_MM, height - 2 * INSET_MM
+    text_w = min(PREFERRED_TEXT_WIDTH_MM,
+                 max(MIN_TEXT_WIDTH_MM, avail_w - ROBUST_MODULE_MM * group))
+    module = max(min(avail_h / span, (avail_w - text_w) / group), 0.0)
+    text_w = avail_w - module * group
+    side = span * module
+    top = INSET_MM + (avail_h - side) / 2
+    boxes: tuple[Box, ...]
+    if arrangement == "flank":
+        boxes = (Box(INSET_MM, top, side, side), Box(width - INSET_MM - side, top, side, side))
+        text = Box(INSET_MM + side + GAP_MM, INSET_MM, text_w, avail_h)
+    else:
+        left = width - INSET_MM - module * group
+        boxes = tuple(Box(left + k * (modules + QUIET_ZONE_MODULES) * module, top, side, side)
+                      for k in range(COPIES[arrangement]))
+        text = Box(INSET_MM, INSET_MM, text_w, avail_h)
+    return LabelLayout(arrangement, boxes, modules, module, text)
 
-    # QR at the right, text at the left.
-    avail_w, avail_h = width - 2 * INSET_MM - GAP_MM, height - 2 * INSET_MM
-    side = min(avail_h, avail_w - PREFERRED_TEXT_WIDTH_MM)
-    if side / span < MIN_MODULE_MM:
-        side = min(avail_h, avail_w - MIN_TEXT_WIDTH_MM)
-    side = max(side, 0.0)
-    candidates.append(
-        LabelLayout(
-            "beside",
-            Box(width - INSET_MM - side, INSET_MM + (avail_h - side) / 2, side, side),
-            modules,
-            side / span,
-            Box(INSET_MM, INSET_MM, avail_w - side, avail_h),
-        )
-    )
 
-    # QR at the top, text below.
-    avail_w, avail_h = width - 2 * INSET_MM, height - 2 * INSET_MM - GAP_MM
-    side = max(min(avail_w, avail_h - MIN_TEXT_HEIGHT_MM), 0.0)
-    candidates.append(
-        LabelLayout(
-            "above",
-            Box(INSET_MM + (avail_w - side) / 2, INSET_MM, side, side),
-            modules,
-            side / span,
-            Box(INSET_MM, INSET_MM + side + GAP_MM, avail_w, avail_h - side),
+def layout_label(width: float, height: float, modules: int, copies: int = 1) -> LabelLayout:
+    """Best layout of ``copies`` (1 or 2) ``modules``-wide symbols and the text block on a
+    width x height mm label.
+
+    One copy: the QR beside the text or above it. Two: a copy at each end with the text
+    between (preferred: the copies lie farthest apart) or the text and the two copies side by
+    side. Returns the fitting layout with the largest module, counting modules above
+    ROBUST_MODULE_MM as equal for two copies (the first candidate when none fits).
+    """
+    if copies == 2:
+        candidates = [_row_layout(width, height, modules, "flank"),
+                      _row_layout(width, height, modules, "pair")]
+    else:
+        candidates = [_row_layout(width, height, modules, "beside")]
+        # QR at the top, text below.
+        span = modules + 2 * QUIET_ZONE_MODULES
+        avail_w, avail_h = width - 2 * INSET_MM, height - 2 * INSET_MM - GAP_MM
+        side = max(min(avail_w, avail_h - MIN_TEXT_HEIGHT_MM), 0.0)
+        candidates.append(
+            LabelLayout(
+                "above",
+                (Box(INSET_MM + (avail_w - side) / 2, INSET_MM, side, side),),
+                modules,
+                side / span,
+                Box(INSET_MM, INSET_MM + side + GAP_MM, avail_w, avail_h - side),
+            )
         )
-    )
     fitting = [c for c in candidates if c.fits]
     if not fitting:
         return candidates[0]
-    return max(fitting, key=lambda c: c.module)  # max() keeps the first of equals
+    cap = ROBUST_MODULE_MM if copies == 2 else math.inf
+    return max(fitting, key=lambda c: min(c.module, cap))  # max() keeps the first of equals
 
 
 def _minimum_labels(modules: int) -> tuple[tuple[float, float], tuple[float, float]]:
@@ -364,10 +413,12 @@ def _ceil_tenth(value: float) -> float:
     return math.ceil(value * 10.0 - 1e-9) / 10.0
 
 
-def _largest_version(stock: LabelStock) -> int:
-    """Largest QR version that fits the stock's label by the weatherproof rules (0 if none)."""
+def _largest_version(stock: LabelStock, copies: int = 1) -> int:
+    """Largest QR version that fits the stock's label by the weatherproof rules with
+    ``copies`` copies of the symbol (0 if none)."""
     for version in range(40, 0, -1):
-        if layout_label(stock.label_width, stock.label_height, symbol_modules(version)).fits:
+        if layout_label(stock.label_width, stock.label_height, symbol_modules(version),
+                        copies).fits:
             return version
     return 0
 
@@ -405,7 +456,7 @@ def check_fit(
     for payload in payloads:
         try:
             # A fixed mask skips the mask evaluation; the version does not depend on it.
-            version = segno.make_qr(payload, error=level, mask=0, boost_error=False).version
+            version = int(segno.make_qr(payload, error=level, mask=0, boost_error=False).version)
         except segno.DataOverflowError:
             problems.append(
                 Problem(
@@ -469,7 +520,7 @@ _NUMBER_FIELDS: tuple[str, ...] = (
 _ALLOWED_KEYS: tuple[str, ...] = ("name", "page", "rows", "columns", *_NUMBER_FIELDS)
 
 
-def _is_number(value: object) -> bool:
+def _is_number(value: object) -> TypeGuard[int | float]:
     return isinstance(value, int | float) and not isinstance(value, bool) and math.isfinite(value)
 
 
@@ -648,8 +699,3 @@ def check_start_cell(stock: LabelStock, start_cell: int, where: str = "start_cel
                 )
             ]
         )
-
-
-def payloads_of(labels: Sequence[LabelContent]) -> list[str]:
-    """The QR payloads of ``labels`` in order."""
-    return [label.payload for label in labels]

@@ -1,7 +1,7 @@
-"""Render winder labels to PDF (reportlab + segno): black on white, no hairlines, text >= 7 pt.
+"""Render winder labels to PDF (reportlab): black on white, no hairlines, text >= 7 pt.
 
-The QR symbol is drawn as filled vector rectangles (one per horizontal run of dark modules)
-from segno's matrix, so it stays sharp at any printer resolution. Geometry comes from
+Each copy of the QR symbol is drawn as filled vector rectangles (one per horizontal run of dark
+modules) from the symbol's matrix, so it stays sharp at any printer resolution. Geometry comes from
 ``buildsheet.calc.labels`` in mm and is converted to PDF points here.
 """
 
@@ -27,9 +27,9 @@ from buildsheet.calc.labels import (
     check_ec,
     check_fit,
     check_start_cell,
-    label_symbol,
-    layout_label,
+    label_options,
     pages_needed,
+    version_room,
 )
 from buildsheet.errors import BuildError, Problem, SpecError
 from buildsheet.store.files import write_output
@@ -171,13 +171,9 @@ def _draw_label(canvas: Canvas, plan: LabelPlan, left: float, top: float) -> Non
     """Draw one label whose top-left corner is at (left, top) in PDF points."""
     layout, set_lines = plan.layout, plan.lines
     qz = layout.quiet_zone * mm
-    _draw_symbol(
-        canvas,
-        plan.matrix,
-        left + layout.qr.x * mm + qz,
-        top - layout.qr.y * mm - qz,
-        layout.module * mm,
-    )
+    for box in layout.symbols:
+        _draw_symbol(canvas, plan.matrix, left + box.x * mm + qz, top - box.y * mm - qz,
+                     layout.module * mm)
     block = sum(s.size * LEADING for s in set_lines)
     box_top = top - layout.text.y * mm
     y = box_top - (layout.text.height * mm - block) / 2  # centred vertically
@@ -192,7 +188,8 @@ def _draw_label(canvas: Canvas, plan: LabelPlan, left: float, top: float) -> Non
 
 @dataclass(frozen=True)
 class LabelPlan:
-    """Everything needed to draw one label: layout (mm), set text, the QR matrix and level."""
+    """Everything needed to draw one label: layout (mm, with every copy of the symbol), set
+    text, the QR matrix and its level."""
 
     layout: LabelLayout
     lines: list[SetLine]
@@ -205,24 +202,28 @@ def plan_labels(labels: Sequence[LabelContent], stock: LabelStock, *, start_cell
     """Layout, QR symbol and set text of every label, exactly as :func:`render_labels` draws
     them; raise SpecError naming each label that cannot fit (``buildsheet check`` runs this).
 
-    Each symbol is built once, at level H where it fits the stock, else at Q (never below
-    ``ec``). ``where`` locates problems (file and key of the spec's stock).
+    Each label takes the first option of :func:`label_options` whose text fits: two copies of
+    the symbol where they fit, level H where it fits, else Q (never below ``ec``); each symbol
+    is built once. ``where`` locates problems (file and key of the spec's stock).
     """
     level = check_ec(ec)
     check_start_cell(stock, start_cell, where=where.replace("labels.stock", "labels.start_cell"))
+    room = version_room(stock)
     plans: list[LabelPlan] = []
     problems: list[Problem] = []
     for i, label in enumerate(labels):
-        symbol = label_symbol(label.payload, stock, level)
-        if symbol is None:
+        layout = None
+        for layout, symbol in label_options(label.payload, stock, level, room):
+            set_lines = set_text(label_lines(label), layout.text.width * mm,
+                                 layout.text.height * mm)
+            if set_lines is not None:
+                break
+        if layout is None:
             try:
                 check_fit(stock, [label.payload], ec=level, where=f"{where} (label {label.leg_id})")
             except SpecError as exc:
                 problems += [p for p in exc.problems if p not in problems]
             continue
-        matrix = symbol.matrix
-        layout = layout_label(stock.label_width, stock.label_height, len(matrix))
-        set_lines = set_text(label_lines(label), layout.text.width * mm, layout.text.height * mm)
         if set_lines is None:
             problems.append(
                 Problem(
@@ -233,7 +234,7 @@ def plan_labels(labels: Sequence[LabelContent], stock: LabelStock, *, start_cell
                 )
             )
         else:
-            plans.append(LabelPlan(layout, set_lines, matrix, symbol.error.upper()))
+            plans.append(LabelPlan(layout, set_lines, symbol.matrix, symbol.error))
     if problems:
         raise SpecError(problems)
     return plans
