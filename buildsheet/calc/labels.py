@@ -295,29 +295,32 @@ def robust_version(stock: LabelStock, copies: int = 1) -> int:
 
 
 def label_options(payload: str, stock: LabelStock, ec: str = "q",
-                  room: Mapping[int, tuple[int, int]] | None = None
+                  room: Mapping[int, tuple[int, int]] | None = None,
+                  built: dict[tuple[str, str, int], Symbol | None] | None = None
                   ) -> Iterator[tuple[LabelLayout, Symbol]]:
     """Layouts of one label with their QR symbol, most robust first (none when no symbol fits).
 
     Two copies of the symbol before one; within each, the best level of EC_PREFERENCE (never
     below ``ec``) at the copies' :func:`robust_version`, or the smallest version that holds the
     payload when that is larger and still fits. Each (level, version) symbol is built once;
-    the caller takes the first option whose text fits. ``room`` is :func:`version_room`.
+    the caller takes the first option whose text fits. ``room`` is :func:`version_room`;
+    ``built`` keeps the symbols by (payload, level, version) across the labels of one build.
     """
     level_floor = check_ec(ec)
     levels = EC_PREFERENCE[: EC_PREFERENCE.index(level_floor) + 1]
     room = version_room(stock) if room is None else room
-    built: dict[tuple[str, int], Symbol | None] = {}
+    built = {} if built is None else built
     for copies in (2, 1):
         largest, robust = room[copies]
         for level in levels:
             for version in range(max(robust, 1), largest + 1):
-                if (level, version) not in built:
+                key = (payload, level, version)
+                if key not in built:
                     try:
-                        built[level, version] = build_symbol(payload, level, version)
+                        built[key] = build_symbol(payload, level, version)
                     except segno.DataOverflowError:
-                        built[level, version] = None
-                symbol = built[level, version]
+                        built[key] = None
+                symbol = built[key]
                 if symbol is not None:
                     yield (layout_label(stock.label_width, stock.label_height,
                                         len(symbol.matrix), copies), symbol)

@@ -17,6 +17,7 @@ from reportlab.lib.units import mm
 from reportlab.pdfbase.pdfmetrics import getFont, stringWidth
 from reportlab.pdfgen.canvas import Canvas
 
+from buildsheet.calc.label_qr import Symbol
 from buildsheet.calc.labels import (
     LEADING,
     MIN_BAND_PT,
@@ -204,16 +205,17 @@ def plan_labels(labels: Sequence[LabelContent], stock: LabelStock, *, start_cell
 
     Each label takes the first option of :func:`label_options` whose text fits: two copies of
     the symbol where they fit, level H where it fits, else Q (never below ``ec``); each symbol
-    is built once. ``where`` locates problems (file and key of the spec's stock).
+    is built once per build. ``where`` locates problems (file and key of the spec's stock).
     """
     level = check_ec(ec)
     check_start_cell(stock, start_cell, where=where.replace("labels.stock", "labels.start_cell"))
     room = version_room(stock)
+    built: dict[tuple[str, str, int], Symbol | None] = {}  # labels sharing a payload share it
     plans: list[LabelPlan] = []
     problems: list[Problem] = []
     for i, label in enumerate(labels):
         layout = None
-        for layout, symbol in label_options(label.payload, stock, level, room):
+        for layout, symbol in label_options(label.payload, stock, level, room, built):
             set_lines = set_text(label_lines(label), layout.text.width * mm,
                                  layout.text.height * mm)
             if set_lines is not None:
