@@ -13,11 +13,9 @@ import urllib.parse
 from datetime import UTC, datetime
 from pathlib import Path
 
-import numpy as np
 import pypdfium2 as pdfium
 import pytest
 import zxingcpp
-from PIL import Image
 from pypdf import PdfReader
 
 from buildsheet.build import build, default_store
@@ -27,6 +25,7 @@ from buildsheet.spec.units import format_frequency, format_length
 from buildsheet.store import exchange
 from buildsheet.store import ledger as rec
 from buildsheet.store.manifest import read_manifest
+from tests.label_reading import label_codes
 
 T1, T2, T3 = "2027-03-01T09:00:00Z", "2027-03-02T09:00:00Z", "2027-03-03T09:00:00Z"
 
@@ -65,14 +64,9 @@ def small_spec(folder: Path, *, record_url: str | None = None, sixty_in_fan: boo
 
 
 def qr_texts(pdf: Path) -> list[str]:
-    """Every QR code on every page, decoded by zxing-cpp from a 6 px/pt pypdfium2 raster."""
-    doc = pdfium.PdfDocument(str(pdf))
-    try:
-        pages = [np.asarray(page.render(scale=6).to_pil().convert("L")) for page in doc]
-    finally:
-        doc.close()
-    return [r.text for px in pages for r in zxingcpp.read_barcodes(
-        Image.fromarray(px), formats=zxingcpp.BarcodeFormat.QRCode)]
+    """The QR code of every label on every page, decoded by zxing-cpp from a 6 px/pt pypdfium2
+    raster, once per label (a label may carry its code twice; tests/label_reading.py)."""
+    return label_codes(pdf)
 
 
 def pdf_text(pdf: Path) -> str:

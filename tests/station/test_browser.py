@@ -14,11 +14,9 @@ import re
 import shutil
 from pathlib import Path
 
-import numpy as np
-import pypdfium2 as pdfium
 import pytest
-import zxingcpp
-from PIL import Image
+
+from tests.label_reading import label_codes
 
 from .conftest import LiveStation
 
@@ -34,14 +32,9 @@ FLAGS = ("--headless", "--no-sandbox", "--disable-gpu", "--disable-background-ne
 
 
 def label_urls(pdf: Path) -> list[str]:
-    """Every QR code of the labels PDF, decoded by zxing-cpp from a pypdfium2 raster."""
-    doc = pdfium.PdfDocument(str(pdf))
-    try:
-        pages = [np.asarray(page.render(scale=6).to_pil().convert("L")) for page in doc]
-    finally:
-        doc.close()
-    return [r.text for px in pages for r in zxingcpp.read_barcodes(
-        Image.fromarray(px), formats=zxingcpp.BarcodeFormat.QRCode)]
+    """The QR code of every label of the labels PDF, decoded by zxing-cpp from a pypdfium2
+    raster, once per label (a label may carry its code twice; tests/label_reading.py)."""
+    return label_codes(pdf)
 
 
 @pytest.fixture
