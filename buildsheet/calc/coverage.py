@@ -527,8 +527,8 @@ def compromise_from_sweeps(heights_m: np.ndarray, gains_dbi: np.ndarray,
 # ---------------------------------------------------------------------------------------------
 
 _NVIS_ADVICE: tuple[tuple[float, float, str], ...] = (
-    (1.8e6, 2.0e6, "160 m: night only, and mostly in winter and at solar minimum, when 75/80 m "
-     "goes above the critical frequency; absorbed by day (common practice)."),
+    (1.8e6, 2.0e6, ("160 m: night only, and mostly in winter and at solar minimum, when 75/80 m "
+                    "goes above the critical frequency; absorbed by day (common practice).")),
     (3.3e6, 4.1e6, "75/80 m: the night and early-morning NVIS band (common practice)."),
     (5.2e6, 5.5e6, "60 m: the steadiest between day and night, dusk and dawn (common practice)."),
     (6.9e6, 7.4e6, "40 m: the daytime NVIS band (common practice)."),
