@@ -51,3 +51,35 @@ def test_imperial_packet_has_no_bare_metric_length(tmp_path):
     bill = next(" ".join(p.extract_text().split()) for p in PdfReader(io.BytesIO(buf.getvalue())).pages
                 if "Bill of materials for the day" in p.extract_text() and "Category" in p.extract_text())
     assert re.search(r"\b\d+ ft \(\d+ m\)", bill)
+
+
+def test_imperial_record_page_and_commands_put_feet_first(tmp_path, capsys):
+    # The record page and the record commands follow the packet's primary unit system too:
+    # every length cell of the page reads feet and inches first, metric after it; the `cut` and
+    # `trim` answers likewise (a bare metric length only inside parentheses).
+    import html
+
+    from buildsheet.cli.main import main
+
+    text = demo_spec_text().replace('units = "metric"', 'units = "imperial"')
+    spec = tmp_path / "demo.toml"
+    spec.write_text(text, encoding="utf-8")
+    out = tmp_path / "out"
+    assert main(["packet", str(spec), "-o", str(out), "--model", "closed_form"]) == 0
+    capsys.readouterr()
+    assert main(["cut", "K01-40m", "--spec", str(spec)]) == 0
+    assert main(["trim", "K01-40m", "--removed", "20mm", "--spec", str(spec)]) == 0
+    said = capsys.readouterr().out
+    assert "ft" in said
+    bare = [(m.group(0), line) for line in said.splitlines()
+            for m in METRIC.finditer(outside_parentheses(line))]
+    assert not bare, bare
+    assert main(["packet", str(spec), "-o", str(out), "--model", "closed_form"]) == 0
+    page = html.unescape((out / "site" / "K01-40m.html").read_text(encoding="utf-8"))
+    cells = re.findall(r'<td class="num[^"]*">(.*?)</td>', page, flags=re.DOTALL)
+    lengths = [re.sub(r"<[^>]+>", "|", c) for c in cells if re.search(r"\d (?:ft|in)\b", c)]
+    assert lengths
+    for cell in lengths:
+        first = next(part for part in cell.split("|") if part.strip())
+        assert "ft" in first or "in" in first, cell
+        assert not METRIC.search(outside_parentheses(first)), cell

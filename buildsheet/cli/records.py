@@ -108,6 +108,22 @@ def spec_of_store(store: Any, path: Path, args: argparse.Namespace,
     return spec
 
 
+def tape_length(metres: float, units: UnitSystem) -> str:
+    """A length as read off a tape: the primary unit first, metric to the millimetre."""
+    from buildsheet.spec.units import format_length
+
+    metric, imperial = f"{metres:.3f} m", format_length(metres, "imperial")
+    return f"{imperial} ({metric})" if units == "imperial" else f"{metric} ({imperial})"
+
+
+def _units(store: Any, choice: StoreChoice, args: argparse.Namespace) -> UnitSystem:
+    """The unit system of the store's spec (metric when the spec is not known)."""
+    from buildsheet.spec.reader import load_spec
+
+    path = spec_of_store(store, choice.path, args, required=False)
+    return load_spec(path).event.units if path is not None else "metric"
+
+
 def _now() -> datetime:
     """The one clock read for a record command (UTC)."""
     return datetime.now(UTC)
@@ -198,16 +214,15 @@ def _entry(store: Any, choice: StoreChoice, args: argparse.Namespace,
 
 def print_state(found: tuple[Any, UnitSystem] | None, out: TextIO) -> None:
     """Both legs and the instruction, as the sheets print them."""
-    from buildsheet.spec.units import format_both
-
     if found is None:
         print("  " + NO_SPEC, file=out)
         return
     entry, units = found
     for leg in entry.state.legs:
-        cut = "not cut" if leg.cut_m is None else f"cut {leg.cut_m:.3f} m"
-        print(f"  {leg.leg_id}: {cut}, now {format_both(leg.current_m, units)}, target "
-              f"{leg.target_m:.3f} m: {leg.action.words(units, both=False)}", file=out)
+        cut = "not cut" if leg.cut_m is None else f"cut {tape_length(leg.cut_m, units)}"
+        print(f"  {leg.leg_id}: {cut}, now {tape_length(leg.current_m, units)}, target "
+              f"{tape_length(leg.target_m, units)}: {leg.action.words(units, both=False)}",
+              file=out)
     for line in entry.advice:
         print("  " + line, file=out)
 
@@ -226,8 +241,9 @@ def handle_cut(args: argparse.Namespace, out: TextIO | None = None) -> int:
 
     out = out or sys.stdout
     length = _length("--length", args.length) if args.length else None
-    store, _choice = _open(args, sys.stderr)
+    store, choice = _open(args, sys.stderr)
     with store:
+        units = _units(store, choice, args)
         for text in args.ids:
             row, leg = rec.resolve_id(store, text)
             done = rec.confirm_cut(store, row.id, (leg,) if leg else ("A", "B"), _now(),
@@ -235,7 +251,8 @@ def handle_cut(args: argparse.Namespace, out: TextIO | None = None) -> int:
             if not done:
                 print(f"{text}: already confirmed as cut", file=out)
             for c in done:
-                print(f"{c.element_id}-{c.leg}: {c.how} at {c.length_m:.3f} m", file=out)
+                print(f"{c.element_id}-{c.leg}: {c.how} at {tape_length(c.length_m, units)}",
+                      file=out)
     return 0
 
 
@@ -302,7 +319,9 @@ def handle_trim(args: argparse.Namespace, out: TextIO | None = None) -> int:
         entry = _entry(store, choice, args, row.id)
     verb = "removed from" if trim.delta_m > 0 else "added back to"
     which = "each leg" if leg == "both" else f"leg {leg}"
-    print(f"{row.id}: {format_both(abs(trim.delta_m))} {verb} {which} recorded.", file=out)
+    units = entry[1] if entry is not None else "metric"
+    print(f"{row.id}: {format_both(abs(trim.delta_m), units)} {verb} {which} recorded.",
+          file=out)
     print_state(entry, out)
     return 0
 

@@ -34,11 +34,21 @@ CAUTION = ("Caution: element ends carry high RF voltage; keep people away from l
 
 @dataclass(frozen=True)
 class LengthText:
-    """A length (metres) with its metric and feet-inches texts."""
+    """A length (metres) with its metric and feet-inches texts; ``units`` says which is
+    printed first (the packet's primary unit system)."""
 
     metres: float
     metric: str
     imperial: str
+    units: UnitSystem = "metric"
+
+    @property
+    def primary(self) -> str:
+        return self.imperial if self.units == "imperial" else self.metric
+
+    @property
+    def secondary(self) -> str:
+        return self.metric if self.units == "imperial" else self.imperial
 
 
 @dataclass(frozen=True)
@@ -154,14 +164,15 @@ def page_name(element_id: str) -> str:
     return f"{safe}.html"
 
 
-def length_text(metres: float) -> LengthText:
-    """Metric and feet-inches texts of a length in metres."""
-    return LengthText(metres, format_length(metres, "metric"), format_length(metres, "imperial"))
+def length_text(metres: float, units: UnitSystem = "metric") -> LengthText:
+    """Metric and feet-inches texts of a length in metres, ``units`` first."""
+    return LengthText(metres, format_length(metres, "metric"), format_length(metres, "imperial"),
+                      units)
 
 
-def _precise(metres: float) -> LengthText:
-    """Cut and current lengths: metric to the millimetre (a tape reads that)."""
-    return LengthText(metres, f"{metres:.3f} m", format_length(metres, "imperial"))
+def _precise(metres: float, units: UnitSystem) -> LengthText:
+    """Cut and current lengths: metric to the millimetre (a tape reads that), ``units`` first."""
+    return LengthText(metres, f"{metres:.3f} m", format_length(metres, "imperial"), units)
 
 
 def _time(iso: str) -> str:
@@ -178,17 +189,18 @@ def leg_views(h: ElementHistory, entry: ElementEntry | None,
     """Formatted legs: from the packet's as-built state when the element is in the packet,
     else (archived) from the ledger alone."""
     if entry is not None:
-        return tuple(LegView(leg.leg_id, _precise(leg.prescribed_cut_m),
-                             None if leg.cut_m is None else _precise(leg.cut_m),
-                             _precise(leg.current_m), _precise(leg.target_m),
+        return tuple(LegView(leg.leg_id, _precise(leg.prescribed_cut_m, units),
+                             None if leg.cut_m is None else _precise(leg.cut_m, units),
+                             _precise(leg.current_m, units), _precise(leg.target_m, units),
                              leg.action.words(units, both=False))
                      for leg in entry.state.legs)
     out = []
     for side in SIDES:
         cut, now = h.leg_cut(side), h.current_leg_m(side)
-        out.append(LegView(f"{h.element.id}-{side}", _precise(h.element.cut_leg_m),
-                           None if cut is None else _precise(cut.length_m),
-                           _precise(now if now is not None else h.element.cut_leg_m), None,
+        out.append(LegView(f"{h.element.id}-{side}", _precise(h.element.cut_leg_m, units),
+                           None if cut is None else _precise(cut.length_m, units),
+                           _precise(now if now is not None else h.element.cut_leg_m, units),
+                           None,
                            "archived: no target"))
     return tuple(out)
 
@@ -205,7 +217,7 @@ def element_page(h: ElementHistory, built_at: str, sheet_file: str = "",
                for m in h.measurements)
     ts = tuple(TrimView(_time(t.time), "A and B" if t.leg == "both" else t.leg,
                         "removed" if t.delta_m > 0 else "added back",
-                        length_text(abs(t.delta_m)), t.note) for t in h.trims)
+                        length_text(abs(t.delta_m), units), t.note) for t in h.trims)
     ps = tuple(PrintView(p.revision, p.kind, p.file, p.hash[:12], _time(p.time))
                for p in h.prints)
     if not sheet_file:
@@ -215,7 +227,7 @@ def element_page(h: ElementHistory, built_at: str, sheet_file: str = "",
         element_id=e.id, kit=e.kit, design=e.design, band=e.key, status=e.status,
         design_frequency=format_frequency(f0),
         band_edges=f"{format_frequency(e.band_low_hz)} to {format_frequency(e.band_high_hz)}",
-        spec_revision=e.spec_revision, predicted=_precise(e.predicted_leg_m),
+        spec_revision=e.spec_revision, predicted=_precise(e.predicted_leg_m, units),
         leg_views=leg_views(h, entry, units), advice=entry.advice if entry else (),
         legs=(f"{e.id}-A", f"{e.id}-B"),
         measurements=ms, trims=ts, prints=ps,
