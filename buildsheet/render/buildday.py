@@ -12,6 +12,7 @@ from __future__ import annotations
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from fractions import Fraction
+from functools import lru_cache
 
 from reportlab.lib import colors
 from reportlab.lib.enums import TA_LEFT
@@ -30,6 +31,7 @@ from reportlab.platypus import (
 from buildsheet.calc.bom import BomLine
 from buildsheet.calc.safety import STATION_CAUTIONS
 from buildsheet.calc.stock import SpoolPlan, SpoolUse
+from buildsheet.render.cells import CachedParagraph, wrap_cell
 from buildsheet.render.markup import plain
 from buildsheet.spec.units import feet_inches_eighths, format_metric
 
@@ -72,7 +74,18 @@ def default_feet_inches(m: float) -> str:
 
 def _p(text: str, style: ParagraphStyle = _CELL) -> Paragraph:
     """Paragraph of plain (escaped) text."""
-    return Paragraph(plain(text), style)
+    return CachedParagraph(plain(text), style)
+
+
+class Cell:
+    """Plain text for a table cell in a given style: laid out by :func:`_grid` as pre-wrapped
+    lines (much faster than a Paragraph, same look); ``style`` gives font, size and leading."""
+
+    __slots__ = ("style", "text")
+
+    def __init__(self, text: object, style: ParagraphStyle = _CELL):
+        self.text = text
+        self.style = style
 
 
 def _count(q: float) -> str:
@@ -86,17 +99,30 @@ def _pieces(q: float, unit: str) -> str:
     return f"{_count(q)} {unit}"
 
 
+def _font_runs(fonts: dict[tuple[int, int], tuple[str, float, float]]) -> list[tuple]:
+    """FONT commands for cells set in their own font, one per run of rows in a column."""
+    out: list[tuple] = []
+    for (c, r), font in sorted(fonts.items()):
+        last = out[-1] if out else None
+        if last and last[1][0] == c and last[2][1] == r - 1 and last[3:] == font:
+            out[-1] = ("FONT", last[1], (c, r), *font)
+        else:
+            out.append(("FONT", (c, r), (c, r), *font))
+    return out
+
+
+@lru_cache(maxsize=64)
+def _head_style(font_size: float) -> ParagraphStyle:
+    return ParagraphStyle(f"bd-head-{font_size:g}", parent=_CELL, fontName="Helvetica-Bold",
+                          fontSize=font_size, leading=font_size * 1.2)
+
+
 def _grid(data: list[list[object]], widths: Sequence[float], *, header_rows: int = 1,
           font_size: float = 8.5, row_height: float | None = None,
           right_cols: Sequence[int] = ()) -> Table:
-    """Table with black rules, bold header (wrapped) repeated on each page."""
-    head = ParagraphStyle("bd-head", parent=_CELL, fontName="Helvetica-Bold",
-                          fontSize=font_size, leading=font_size * 1.2)
-    data = [[_p(c, head) if isinstance(c, str) else c for c in row] if r < header_rows else row
-            for r, row in enumerate(data)]
-    t = Table(data, colWidths=list(widths), repeatRows=header_rows,
-              rowHeights=None if row_height is None else [None] * header_rows
-              + [row_height] * (len(data) - header_rows))
+    """Table with black rules, bold header (wrapped) repeated on each page. Header strings and
+    :class:`Cell` values become pre-wrapped plain text in their style's font."""
+    head = _head_style(font_size)
     style = [
         ("FONT", (0, 0), (-1, -1), "Helvetica", font_size),
         ("FONT", (0, 0), (-1, header_rows - 1), "Helvetica-Bold", font_size),
@@ -107,6 +133,26 @@ def _grid(data: list[list[object]], widths: Sequence[float], *, header_rows: int
         ("TOPPADDING", (0, 0), (-1, -1), 2.5),
         ("BOTTOMPADDING", (0, 0), (-1, -1), 2.5),
     ]
+    cells: list[list[object]] = []
+    fonts: dict[tuple[int, int], tuple[str, float, float]] = {}  # (col, row) -> cell font
+    for r, row in enumerate(data):
+        out_row: list[object] = []
+        for c, value in enumerate(row):
+            if r < header_rows and isinstance(value, str):
+                value = Cell(value, head)
+            if isinstance(value, Cell):
+                st = value.style
+                value = wrap_cell(value.text, st.fontName, st.fontSize, widths[c])
+                font = (st.fontName, st.fontSize, st.leading)
+                if font != ("Helvetica-Bold" if r < header_rows else "Helvetica", font_size,
+                            font_size * 1.2):
+                    fonts[(c, r)] = font
+            out_row.append(value)
+        cells.append(out_row)
+    style += _font_runs(fonts)
+    t = Table(cells, colWidths=list(widths), repeatRows=header_rows,
+              rowHeights=None if row_height is None else [None] * header_rows
+              + [row_height] * (len(data) - header_rows))
     for c in right_cols:
         style.append(("ALIGN", (c, header_rows), (c, -1), "RIGHT"))
     t.setStyle(TableStyle(style))
@@ -147,7 +193,7 @@ def bom_flowables(lines: Iterable[BomLine], *, title: str = "Bill of materials",
     rows: list[list[object]] = [["Category", "Item", "Quantity", "Note"]]
     for line in lines:
         qty = fmt(line.quantity) if line.unit == "m" else _pieces(line.quantity, line.unit)
-        rows.append([_p(line.category), _p(line.item), qty, _p(line.note, _SMALL)])
+        rows.append([Cell(line.category), Cell(line.item), qty, Cell(line.note, _SMALL)])
     w = [0.13 * width, 0.35 * width, 0.15 * width, 0.37 * width]
     out: list[Flowable] = [_p(title, _H1), _grid(rows, w, right_cols=(2,))]
     if safety:
@@ -179,14 +225,14 @@ def spool_plan_flowables(plan: SpoolPlan, *, title: str = "Spool cut plan",
             how += ", meets bound"
         elif not m.proven_optimal and m.method != "none":
             how += f"; not proven: the bound is {m.lower_bound}"
-        rows.append([_p(m.material), str(m.spools_on_hand), str(m.spools_used),
-                     str(m.lower_bound), fmt(m.needed_m), fmt(m.waste_m), _p(how, _SMALL)])
+        rows.append([Cell(m.material), str(m.spools_on_hand), str(m.spools_used),
+                     str(m.lower_bound), fmt(m.needed_m), fmt(m.waste_m), Cell(how, _SMALL)])
     out.append(_grid(rows, [w * width for w in (0.2, 0.1, 0.1, 0.12, 0.16, 0.16, 0.16)],
                      right_cols=(1, 2, 3, 4, 5)))
     out.append(_p("Spools to open", _H2))
     rows = [["Spool", "Description", "Length", "Cuts", "Used", "Remainder"]]
     for s in plan.spools:
-        rows.append([_p(s.spool_id), _p(s.title), fmt(s.length_m), str(len(s.cuts)),
+        rows.append([Cell(s.spool_id), Cell(s.title), fmt(s.length_m), str(len(s.cuts)),
                      fmt(s.used_m), fmt(s.remainder_m)])
     out.append(_grid(rows, [w * width for w in (0.17, 0.35, 0.12, 0.08, 0.14, 0.14)],
                      right_cols=(2, 3, 4, 5)))
@@ -194,14 +240,14 @@ def spool_plan_flowables(plan: SpoolPlan, *, title: str = "Spool cut plan",
         out.append(_p("Not enough on hand: cuts without a spool", _H2))
         rows = [["Cut", "Material", "Length", "Label"]]
         for c in plan.unassigned:
-            rows.append([_p(c.cut_id), _p(c.material), fmt(c.length_m), _p(c.label)])
+            rows.append([Cell(c.cut_id), Cell(c.material), fmt(c.length_m), Cell(c.label)])
         out.append(_grid(rows, [w * width for w in (0.25, 0.2, 0.15, 0.4)], right_cols=(2,)))
         out.append(_p("To buy", _H2))
         rows = [["Material", "Short (with tolerance)", "Whole spools", "Note"]]
         for b in plan.to_buy:
             spools = ("-" if b.spools is None or b.spool_length_m is None
                       else f"{b.spools} x {fmt(b.spool_length_m)}")
-            rows.append([_p(b.material), fmt(b.short_m), spools, _p(b.note, _SMALL)])
+            rows.append([Cell(b.material), fmt(b.short_m), spools, Cell(b.note, _SMALL)])
         out.append(_grid(rows, [w * width for w in (0.22, 0.2, 0.22, 0.36)]))
     return out
 
@@ -235,7 +281,7 @@ def station_list_flowables(spool: SpoolUse, *, metric: LengthFormat = default_me
     rows: list[list[object]] = [["Done", "#", "Cut ID", "Label", "Length",
                                  *(heads if primary == "metric" else heads[::-1])]]
     for n, pc in enumerate(spool.cuts, start=1):
-        rows.append([TickBox(), str(n), _p(pc.cut.cut_id, _BIG_BOLD), _p(pc.cut.label),
+        rows.append([TickBox(), str(n), Cell(pc.cut.cut_id, _BIG_BOLD), Cell(pc.cut.label),
                      first(pc.cut.length_m), first(pc.mark_m), f"({second(pc.mark_m)})"])
     table = _grid(rows, [w * width for w in (0.09, 0.05, 0.26, 0.17, 0.12, 0.13, 0.18)],
                   font_size=10, row_height=(9 if len(spool.cuts) <= 9 else 7) * mm,
@@ -287,7 +333,7 @@ def log_form_flowables(kit_id: str, builder: str, rows: Sequence[LogRow], *, pas
     re-measuring), with blank boxes for dip frequency, SWR, trim made and initials."""
     out: list[Flowable] = [
         _p(f"Measurement log: kit {kit_id}", _H1),
-        _grid([["Builder", "Date", "Site"], [_p(builder or ""), "", ""]],
+        _grid([["Builder", "Date", "Site"], [Cell(builder or ""), "", ""]],
               [w * width for w in (0.42, 0.26, 0.32)], header_rows=1,
               font_size=9, row_height=9 * mm),
         Spacer(1, 3 * mm),
@@ -303,7 +349,7 @@ def log_form_flowables(kit_id: str, builder: str, rows: Sequence[LogRow], *, pas
         expected = fmt_freq(r.expected_dip_hz) if r.expected_dip_hz else ""
         for k in range(max(1, passes)):
             first = k == 0
-            data.append([_p(r.element_id if first else "", _BIG_BOLD), r.band if first else "",
+            data.append([Cell(r.element_id if first else "", _BIG_BOLD), r.band if first else "",
                          fmt_freq(r.design_frequency_hz) if first else "",
                          expected if first else "", "", "", "", ""])
     out.append(_grid(data, [w * width for w in (0.15, 0.08, 0.13, 0.14, 0.14, 0.09, 0.17, 0.10)],

@@ -10,6 +10,7 @@ from collections.abc import Callable, Collection
 from pathlib import Path
 from typing import BinaryIO
 
+from reportlab.graphics.shapes import Drawing
 from reportlab.lib import colors
 from reportlab.lib.enums import TA_LEFT
 from reportlab.lib.pagesizes import A4, LETTER
@@ -36,6 +37,7 @@ from buildsheet.calc.performance import DesignPerformance
 from buildsheet.calc.safety import SITE_CAUTIONS
 from buildsheet.packet import ElementEntry, Packet
 from buildsheet.render import buildday, charts, drawings
+from buildsheet.render.cells import CachedParagraph, SharedDrawing, clear_paragraph_caches
 from buildsheet.render.markup import plain, shorten
 from buildsheet.spec.design import Kit
 from buildsheet.spec.units import UnitSystem, format_both, format_frequency, format_length
@@ -117,7 +119,7 @@ def content_width(paper: str) -> float:
 
 
 def _p(text: str, style: str = "cell") -> Paragraph:
-    return Paragraph(text, STYLES[style])
+    return CachedParagraph(text, STYLES[style])
 
 
 def _two_line(metres: float, units: UnitSystem) -> str:
@@ -278,7 +280,7 @@ def support_table(cuts: DesignCuts, units: UnitSystem) -> Table:
 
 def cautions_box(cautions: tuple[str, ...] = SITE_CAUTIONS) -> Table:
     paras = [_p("<b>Safety cautions</b>", "body")] + [
-        Paragraph(plain(text), STYLES["caution"], bulletText="\u2022") for text in cautions]
+        CachedParagraph(plain(text), STYLES["caution"], bulletText="\u2022") for text in cautions]
     t = Table([[paras]], colWidths=[500])
     t.setStyle(TableStyle([("BOX", (0, 0), (-1, -1), 1.2, colors.black),
                            ("LEFTPADDING", (0, 0), (-1, -1), 6),
@@ -286,14 +288,34 @@ def cautions_box(cautions: tuple[str, ...] = SITE_CAUTIONS) -> Table:
     return t
 
 
-def swr_row(cuts: DesignCuts, width: float = 500) -> Table:
+#: Drawings shared by every sheet of one design within one document, by (kind, design key).
+SharedDrawings = dict[tuple[str, str], Flowable]
+
+
+def _shared(shared: SharedDrawings | None, kind: str, design_key: str,
+            make: Callable[[], Drawing]) -> Flowable:
+    """The drawing ``kind`` of a design, built once per document and placed as a PDF form on
+    every later sheet (``shared`` None: a fresh drawing each time)."""
+    if shared is None:
+        return make()
+    key = (kind, design_key)
+    if key not in shared:
+        shared[key] = SharedDrawing(make(), f"shared-drawing-{len(shared)}")
+    return shared[key]
+
+
+def swr_row(cuts: DesignCuts, width: float = 500, shared: SharedDrawings | None = None) -> Table:
     """The SWR-vs-frequency plot of every band, side by side."""
     n = len(cuts.elements)
     w = width / n - 6
-    plots = [charts.swr_drawing(c.prediction.frequencies_hz, c.prediction.swr,
-                                c.element.frequency_hz, c.element.low_hz, c.element.high_hz,
-                                w, 120, f"{c.element.band_label} SWR on 50 ohm",
-                                c.element.band.channels_hz if c.element.band else ())
+
+    def plot(c: ElementCut) -> Callable[[], Drawing]:
+        return lambda: charts.swr_drawing(
+            c.prediction.frequencies_hz, c.prediction.swr, c.element.frequency_hz,
+            c.element.low_hz, c.element.high_hz, w, 120, f"{c.element.band_label} SWR on 50 ohm",
+            c.element.band.channels_hz if c.element.band else ())
+
+    plots = [_shared(shared, f"swr-{c.element.key}-{width:g}", cuts.design.key, plot(c))
              for c in cuts.elements]
     return Table([plots], colWidths=[width / n] * n)
 
@@ -304,7 +326,8 @@ def exposure_box(packet: Packet, design_key: str, width: float = 500) -> Table:
     paras: list[Flowable] = [_p(f"<b>{a.exposure_head}</b>:", "body")]
     paras += [_p(text, "caution") for text in a.exposure_bands]
     paras.append(_p(f"<b>{a.keep_out}</b>", "caution"))
-    paras += [Paragraph(text, STYLES["caution"], bulletText="\u2022") for text in a.exposure_cautions]
+    paras += [CachedParagraph(text, STYLES["caution"], bulletText="\u2022")
+              for text in a.exposure_cautions]
     t = Table([[paras]], colWidths=[width])
     t.setStyle(TableStyle([("BOX", (0, 0), (-1, -1), 1.6, colors.black),
                            ("LEFTPADDING", (0, 0), (-1, -1), 6),
@@ -350,12 +373,14 @@ def coverage_page(packet: Packet, cuts: DesignCuts) -> list[Flowable]:
     story.append(Table([polar], colWidths=[w + 6] * n))
     story += [_p("Height advice", "h2")] + [_p(t, "body") for t in packet.advice[d.key].height]
     story += [_p("Band by time of day", "h2")] + [_p(t, "body") for t in perf.guidance]
-    story += [Spacer(1, 6), KeepTogether([exposure_box(packet, d.key)]), PageBreak()]
+    story += [Spacer(1, 6), exposure_box(packet, d.key), PageBreak()]
     return story
 
 
-def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list[Flowable]:
-    """Flowables of one build sheet for ``kits`` (one kit, or a roster for per-design layout)."""
+def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...],
+                shared: SharedDrawings | None = None) -> list[Flowable]:
+    """Flowables of one build sheet for ``kits`` (one kit, or a roster for per-design layout);
+    with ``shared`` the design's drawings are built once for all its sheets."""
     ev = packet.design.event
     units = ev.units
     width = content_width(ev.paper)
@@ -397,11 +422,12 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list
     story += [_p(t, "body") for t in packet.advice[d.key].dips]
     story += [_p(plain(t), "body") for t in packet.advice[d.key].spacing]
     story += [_p(t, "body") for t in packet.advice[d.key].band_rules]
-    story += [_p("Feed point", "h2")] + feed_lines(cuts) + [swr_row(cuts)]
+    story += [_p("Feed point", "h2")] + feed_lines(cuts) + [swr_row(cuts, shared=shared)]
     story += [CondPageBreak(120 * mm), _p("Deployment", "h2"),
-              drawings.side_view(cuts, width, 165, units), Spacer(1, 4)]
+              _shared(shared, "side", d.key, lambda: drawings.side_view(cuts, width, 165, units)),
+              Spacer(1, 4)]
     size = drawings.plan_size(width)
-    plan = drawings.plan_view(cuts, size, units)
+    plan = _shared(shared, "plan", d.key, lambda: drawings.plan_view(cuts, size, units))
     fit = [_p(plain(t), "small") for t in packet.advice[d.key].site_fit]
     story += [KeepTogether([geometry_table(cuts, units), Spacer(1, 4),
                             Table([[plan, fit]], colWidths=[size + 8, width - size - 14],
@@ -419,8 +445,9 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...]) -> list
         story += [CondPageBreak(60 * mm), _p("Kit bill of materials", "h2")]
         story += buildday.bom_flowables(packet.kit_boms[kits[0].kit_id], title="",
                                         fmt=_fmt(units), safety=False)[1:]
-    story += [Spacer(1, 6), KeepTogether([exposure_box(packet, d.key)]),
-              Spacer(1, 6), KeepTogether([cautions_box(advice.cautions)]), PageBreak()]
+    # The boxes are one-row tables, which never split: each moves whole to the next page.
+    story += [Spacer(1, 6), exposure_box(packet, d.key),
+              Spacer(1, 6), cautions_box(advice.cautions), PageBreak()]
     return story
 
 
@@ -621,6 +648,7 @@ def sheet_story(packet: Packet, only: Collection[str] | None = None) -> list[Flo
         return only is None or item in only
 
     story: list[Flowable] = []
+    shared: SharedDrawings = {}
     if wanted("day:cover"):
         story += cover(packet)
     story += logistics_pages(packet, only)
@@ -632,11 +660,11 @@ def sheet_story(packet: Packet, only: Collection[str] | None = None) -> list[Flo
             story += coverage_page(packet, c)
         if packet.design.event.layout == "per_design":
             if wanted(f"design:{c.design.key}"):
-                story += build_sheet(packet, c, kits)
+                story += build_sheet(packet, c, kits, shared)
         else:
             for k in kits:
                 if wanted(f"kit:{k.kit_id}"):
-                    story += build_sheet(packet, c, (k,))
+                    story += build_sheet(packet, c, (k,), shared)
     kit_ids = [k.kit_id for k in packet.design.kits if wanted(packet.sheet_item(k))]
     return story + log_forms(packet, kit_ids)
 
@@ -656,6 +684,7 @@ def render_sheets(packet: Packet, out: str | Path | BinaryIO, story: list[Flowab
                   *, only: Collection[str] | None = None) -> None:
     """Write the sheets PDF (all of it, or the printable items in ``only``) to a path or a
     binary stream."""
+    clear_paragraph_caches()
     pagesize = LETTER if packet.design.event.paper == "letter" else A4
     buf = io.BytesIO()
     doc = SheetDoc(buf, pagesize=pagesize, footer=footer_text(packet),
