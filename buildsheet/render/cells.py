@@ -13,6 +13,7 @@ from __future__ import annotations
 from functools import lru_cache
 from typing import Any
 
+from reportlab import rl_config
 from reportlab.graphics import renderPDF
 from reportlab.graphics.shapes import Drawing
 from reportlab.pdfbase.pdfmetrics import stringWidth
@@ -31,27 +32,28 @@ def printable(text: object) -> str:
 def _wrapped(text: str, font: str, size: float, width: float) -> str:
     lines: list[str] = []
     space = stringWidth(" ", font, size)
+    shrink = rl_config.spaceShrinkage * space  # Paragraph lets each space give a little
     for part in text.split("\n"):
-        line, used = "", 0.0
+        line, used, count = "", 0.0, 0
         for word in part.split():
             w = stringWidth(word, font, size)
             while w > width and len(word) > 1:  # a word longer than the cell: split it
                 if line:
                     lines.append(line)
-                    line, used = "", 0.0
+                    line, used, count = "", 0.0, 0
                 cut = len(word) - 1
                 while cut > 1 and stringWidth(word[:cut], font, size) > width:
                     cut -= 1
                 lines.append(word[:cut])
                 word = word[cut:]
                 w = stringWidth(word, font, size)
-            if line and used + space + w <= width:
-                line, used = f"{line} {word}", used + space + w
+            if line and used + space + w <= width + shrink * count:
+                line, used, count = f"{line} {word}", used + space + w, count + 1
             elif line:
                 lines.append(line)
-                line, used = word, w
+                line, used, count = word, w, 1
             else:
-                line, used = word, w
+                line, used, count = word, w, 1
         lines.append(line)
     return "\n".join(lines)
 
@@ -153,3 +155,56 @@ class SharedDrawing(Flowable):
             canv.endForm()
             defined.add(self.name)
         canv.doForm(self.name)
+
+
+class SharedFlowable(Flowable):
+    """A flowable that repeats unchanged on many sheets (a design's cut table, its cautions
+    box): laid out once per width and drawn into the PDF once as a form XObject named
+    ``name``, then placed by reference. If it must split across a page, the parts are the
+    inner flowable's own parts, drawn as usual. ``name`` is unique per distinct content."""
+
+    def __init__(self, inner: Flowable, name: str,
+                 sizes: dict[float, tuple[float, float]] | None = None):
+        super().__init__()
+        self.inner = inner
+        self.name = name
+        self.hAlign = getattr(inner, "hAlign", "LEFT")
+        self._width_for = 0.0
+        self._size: dict[float, tuple[float, float]] = {} if sizes is None else sizes
+
+    def again(self) -> SharedFlowable:
+        """A new placement of the same content (the document keeps per-placement state on
+        each flowable, such as a postponement to the next page)."""
+        return SharedFlowable(self.inner, self.name, self._size)
+
+    def wrap(self, availWidth: float, availHeight: float) -> tuple[float, float]:
+        size = self._size.get(availWidth)
+        if size is None:
+            w, h = self.inner.wrap(availWidth, availHeight)
+            size = self._size[availWidth] = (float(w), float(h))
+        self.width: float = size[0]
+        self.height: float = size[1]
+        self._width_for = availWidth
+        return size
+
+    def split(self, availWidth: float, availHeight: float) -> list[Flowable]:
+        self._size.pop(availWidth, None)  # the inner flowable is laid out afresh for its parts
+        return self.inner.split(availWidth, availHeight)
+
+    def getSpaceBefore(self) -> float:
+        return self.inner.getSpaceBefore()
+
+    def getSpaceAfter(self) -> float:
+        return self.inner.getSpaceAfter()
+
+    def draw(self) -> None:
+        canv = self.canv
+        name = f"{self.name}-{self._width_for:g}"
+        defined: set[str] = canv.__dict__.setdefault("_shared_forms", set())
+        if name not in defined:
+            canv.beginForm(name, -50, -50, self.width + 50, self.height + 50)
+            self.inner.wrap(self._width_for, self.height)  # the size it is drawn at
+            self.inner.drawOn(canv, 0, 0)
+            canv.endForm()
+            defined.add(name)
+        canv.doForm(name)

@@ -37,7 +37,12 @@ from buildsheet.calc.performance import DesignPerformance
 from buildsheet.calc.safety import SITE_CAUTIONS
 from buildsheet.packet import ElementEntry, Packet
 from buildsheet.render import buildday, charts, drawings
-from buildsheet.render.cells import CachedParagraph, SharedDrawing, clear_paragraph_caches
+from buildsheet.render.cells import (
+    CachedParagraph,
+    SharedDrawing,
+    SharedFlowable,
+    clear_paragraph_caches,
+)
 from buildsheet.render.markup import plain, shorten
 from buildsheet.spec.design import Kit
 from buildsheet.spec.units import UnitSystem, format_both, format_frequency, format_length
@@ -288,8 +293,9 @@ def cautions_box(cautions: tuple[str, ...] = SITE_CAUTIONS) -> Table:
     return t
 
 
-#: Drawings shared by every sheet of one design within one document, by (kind, design key).
-SharedDrawings = dict[tuple[str, str], Flowable]
+#: Drawings and tables shared by every sheet of one design within one document, by (kind,
+#: content key).
+SharedDrawings = dict[tuple[object, ...], "Flowable | list[Flowable]"]
 
 
 def _shared(shared: SharedDrawings | None, kind: str, design_key: str,
@@ -301,7 +307,23 @@ def _shared(shared: SharedDrawings | None, kind: str, design_key: str,
     key = (kind, design_key)
     if key not in shared:
         shared[key] = SharedDrawing(make(), f"shared-drawing-{len(shared)}")
-    return shared[key]
+    found = shared[key]
+    assert isinstance(found, SharedDrawing)
+    return SharedDrawing(found.drawing, found.name)  # one placement each
+
+
+def _same_all(shared: SharedDrawings | None, key: tuple[object, ...],
+              make: Callable[[], list[Flowable]]) -> list[Flowable]:
+    """:func:`_same` for a run of flowables (none of them a heading: headings stay plain
+    paragraphs so that they become bookmarks and contents entries)."""
+    if shared is None:
+        return make()
+    if key not in shared:
+        shared[key] = [SharedFlowable(f, f"shared-block-{len(shared)}-{i}")
+                       for i, f in enumerate(make())]
+    found = shared[key]
+    assert isinstance(found, list)
+    return [f.again() if isinstance(f, SharedFlowable) else f for f in found]
 
 
 def swr_row(cuts: DesignCuts, width: float = 500, shared: SharedDrawings | None = None) -> Table:
@@ -412,42 +434,53 @@ def build_sheet(packet: Packet, cuts: DesignCuts, kits: tuple[Kit, ...],
     if ids:
         story.append(_p("<b>Element IDs:</b> " + ", ".join(f"{i} (legs {i}-A, {i}-B)" for i in ids),
                         "body"))
-    story += [_p("Cut list", "h2"), element_table(cuts, units), Spacer(1, 3)]
-    story.append(_p(
-        f"Cut = model leg + trim allowance + termination at the end insulator + feed allowance "
-        f"(pigtail to the balun terminal). Model: {plain(cuts.prediction.model_note)}. The 468/f rule and the straight-dipole closed form are "
-        "shown for comparison.", "small"))
-    story += band_flowables(cuts, units)
-    story += tuning_lines(cuts, units)
-    story += [_p(t, "body") for t in packet.advice[d.key].dips]
-    story += [_p(plain(t), "body") for t in packet.advice[d.key].spacing]
-    story += [_p(t, "body") for t in packet.advice[d.key].band_rules]
-    story += [_p("Feed point", "h2")] + feed_lines(cuts) + [swr_row(cuts, shared=shared)]
+    key = (d.key, units)
+    story += [_p("Cut list", "h2")]
+    story += _same_all(shared, ("cut-list", *key), lambda: [
+        element_table(cuts, units), Spacer(1, 3),
+        _p(f"Cut = model leg + trim allowance + termination at the end insulator + feed "
+           f"allowance (pigtail to the balun terminal). Model: "
+           f"{plain(cuts.prediction.model_note)}. The 468/f rule and the straight-dipole "
+           "closed form are shown for comparison.", "small"),
+        *band_flowables(cuts, units), *tuning_lines(cuts, units),
+        *[_p(t, "body") for t in packet.advice[d.key].dips],
+        *[_p(plain(t), "body") for t in packet.advice[d.key].spacing],
+        *[_p(t, "body") for t in packet.advice[d.key].band_rules]])
+    story += [_p("Feed point", "h2")]
+    story += _same_all(shared, ("feed-point", *key),
+                       lambda: [*feed_lines(cuts), swr_row(cuts)])
     story += [CondPageBreak(120 * mm), _p("Deployment", "h2"),
               _shared(shared, "side", d.key, lambda: drawings.side_view(cuts, width, 165, units)),
               Spacer(1, 4)]
     size = drawings.plan_size(width)
-    plan = _shared(shared, "plan", d.key, lambda: drawings.plan_view(cuts, size, units))
-    fit = [_p(plain(t), "small") for t in packet.advice[d.key].site_fit]
-    story += [KeepTogether([geometry_table(cuts, units), Spacer(1, 4),
-                            Table([[plan, fit]], colWidths=[size + 8, width - size - 14],
-                                  style=[("VALIGN", (0, 0), (-1, -1), "TOP")])])]
-    for w in cuts.warnings:
-        story.append(_p(f"<b>Note:</b> {plain(w)}", "small"))
+
+    def geometry() -> list[Flowable]:
+        plan = drawings.plan_view(cuts, size, units)
+        fit = [_p(plain(t), "small") for t in packet.advice[d.key].site_fit]
+        return [geometry_table(cuts, units), Spacer(1, 4),
+                Table([[plan, fit]], colWidths=[size + 8, width - size - 14],
+                      style=[("VALIGN", (0, 0), (-1, -1), "TOP")])]
+
+    story += [KeepTogether(_same_all(shared, ("geometry", *key), geometry))]
+    story += _same_all(shared, ("notes", *key), lambda: [
+        _p(f"<b>Note:</b> {plain(w)}", "small") for w in cuts.warnings])
     advice = packet.advice[d.key]
     kit_name = kits[0].kit_id if len(kits) == 1 else "K.."
     story += [CondPageBreak(50 * mm), _p("Assembly", "h2")]
     story += [_p(plain(t.replace("{kit}", kit_name)), "body") for t in advice.assembly]
-    story += [_p("Feed line", "h2")] + [_p(plain(t), "body") for t in advice.feed_line]
+    story += [_p("Feed line", "h2")]
+    story += _same_all(shared, ("feed-line", *key),
+                       lambda: [_p(plain(t), "body") for t in advice.feed_line])
     if len(kits) == 1:
         story += as_built_flowables(packet.kit_entries(kits[0].kit_id), units)
     if len(kits) == 1:
         story += [CondPageBreak(60 * mm), _p("Kit bill of materials", "h2")]
-        story += buildday.bom_flowables(packet.kit_boms[kits[0].kit_id], title="",
-                                        fmt=_fmt(units), safety=False)[1:]
+        lines = packet.kit_boms[kits[0].kit_id]
+        story += _same_all(shared, ("kit-bom", units, *lines), lambda: buildday.bom_flowables(
+            lines, title="", fmt=_fmt(units), safety=False)[1:])
     # The boxes are one-row tables, which never split: each moves whole to the next page.
-    story += [Spacer(1, 6), exposure_box(packet, d.key),
-              Spacer(1, 6), cautions_box(advice.cautions), PageBreak()]
+    story += [Spacer(1, 6), *_same_all(shared, ("boxes", *key), lambda: [
+        exposure_box(packet, d.key), Spacer(1, 6), cautions_box(advice.cautions)]), PageBreak()]
     return story
 
 
@@ -641,14 +674,16 @@ def log_forms(packet: Packet, kits: Collection[str] | None = None) -> list[Flowa
     return story
 
 
-def sheet_story(packet: Packet, only: Collection[str] | None = None) -> list[Flowable]:
+def sheet_story(packet: Packet, only: Collection[str] | None = None, *,
+                share_blocks: bool = True) -> list[Flowable]:
     """The whole sheets document (cover, logistics, build sheets, then the log forms), or the
-    printable items named in ``only`` (``kit:K01``, ``design:KEY``, ``nvis:KEY``, ``day:PAGE``)."""
+    printable items named in ``only`` (``kit:K01``, ``design:KEY``, ``nvis:KEY``, ``day:PAGE``).
+    With ``share_blocks`` what every sheet of a design repeats is laid out and drawn once."""
     def wanted(item: str) -> bool:
         return only is None or item in only
 
     story: list[Flowable] = []
-    shared: SharedDrawings = {}
+    shared: SharedDrawings | None = {} if share_blocks else None
     if wanted("day:cover"):
         story += cover(packet)
     story += logistics_pages(packet, only)
