@@ -283,7 +283,7 @@ def station_list_flowables(spool: SpoolUse, *, metric: LengthFormat = default_me
     for n, pc in enumerate(spool.cuts, start=1):
         rows.append([TickBox(), str(n), Cell(pc.cut.cut_id, _BIG_BOLD), Cell(pc.cut.label),
                      first(pc.cut.length_m), first(pc.mark_m), f"({second(pc.mark_m)})"])
-    table = _grid(rows, [w * width for w in (0.09, 0.05, 0.26, 0.17, 0.12, 0.13, 0.18)],
+    table = _grid(rows, [w * width for w in (0.09, 0.05, 0.23, 0.17, 0.12, 0.13, 0.21)],
                   font_size=10, row_height=(9 if len(spool.cuts) <= 9 else 7) * mm,
                   right_cols=(4, 5, 6))
     table.setStyle(TableStyle([("ALIGN", (0, 1), (0, -1), "CENTER"),
@@ -352,7 +352,7 @@ def log_form_flowables(kit_id: str, builder: str, rows: Sequence[LogRow], *, pas
             data.append([Cell(r.element_id if first else "", _BIG_BOLD), r.band if first else "",
                          fmt_freq(r.design_frequency_hz) if first else "",
                          expected if first else "", "", "", "", ""])
-    out.append(_grid(data, [w * width for w in (0.15, 0.08, 0.13, 0.14, 0.14, 0.09, 0.17, 0.10)],
+    out.append(_grid(data, [w * width for w in (0.18, 0.09, 0.13, 0.14, 0.13, 0.09, 0.14, 0.10)],
                      font_size=9, row_height=11 * mm))
     out.append(_p("Expected dip: where the wire as it is now should dip (from the site "
                   "calibration where there is one, from its own last reading once read); a leg "
