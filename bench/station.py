@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import http.client
 import math
+import os
 import re
 import socket
 import sqlite3
@@ -119,6 +120,7 @@ def main() -> None:
             threads = [threading.Thread(target=client, args=("127.0.0.1", port, elements, i,
                                                              latencies, failures))
                        for i in range(CLIENTS)]
+            load = os.getloadavg()
             wall = time.perf_counter()
             for t in threads:
                 t.start()
@@ -133,6 +135,8 @@ def main() -> None:
             check = conn.execute("PRAGMA integrity_check").fetchone()[0]
     post = percentiles([a for a, _b in latencies])
     full = percentiles([b for _a, b in latencies])
+    print(f"machine: {os.cpu_count()} cores, load average {load[0]:.1f} when the readings "
+          "started (other work on the machine stretches the figures)")
     print(f"station on loopback: {CLIENTS} clients x {PER_CLIENT} readings, "
           f"{len(elements)} elements, wall {wall:.2f} s ({len(latencies) / wall:.0f} readings/s)")
     print(f"reading stored (POST to 303): p50 {post[0]:.1f} ms, p95 {post[1]:.1f} ms, "

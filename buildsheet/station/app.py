@@ -2,13 +2,23 @@
 
 Pages: ``/e/<element ID>`` (the element page a winder label's QR opens; leg IDs redirect to
 their element), ``/board`` (the day board, refreshing itself), ``/organiser`` (PIN-protected
-actions). Every POST carries a CSRF token; request bodies are capped at
-:data:`MAX_BODY_BYTES`; store work runs in the thread pool, one open store per request.
+actions). Every POST goes through :func:`_handle_form`: CSRF token, field limits, the CLI's
+validation, one store write, one answer. Request bodies are capped at :data:`MAX_BODY_BYTES`.
+
+Where the work runs: an element page and a typed reading or trim are short SQLite work (well
+under a millisecond against the per-thread store of :class:`ledger_api.StorePool`), done on
+the event loop; handing them to a worker thread and back cost more than the work itself once
+fifty phones post at once (bench/station.py: p95 of a reading about 150 ms through the thread
+pool, under 60 ms on the loop, on the 2-core machine). Slow work stays in the thread pool:
+sweep files (parsed and analysed), calibration fits, the day board over every element, the
+labels-to-reprint comparison, sweep plots. A write on the loop waits only for the station's
+own short writes or for another process's (the CLI) write transaction, itself a single short
+transaction; WAL readers never wait for writers.
 """
 
 from __future__ import annotations
 
-import asyncio
+import threading
 import time
 from collections.abc import Awaitable, Callable, MutableMapping
 from dataclasses import dataclass, field
@@ -21,7 +31,7 @@ from starlette.requests import Request
 from starlette.responses import HTMLResponse, PlainTextResponse, RedirectResponse, Response
 from starlette.routing import Route
 
-from buildsheet.calc.sweep import MAX_SWEEP_BYTES
+from buildsheet.calc.sweep import MAX_SWEEP_BYTES, Sweep, SweepFit
 from buildsheet.errors import BuildsheetError
 from buildsheet.station import ledger_api as api
 from buildsheet.station import security as sec
@@ -31,6 +41,9 @@ from buildsheet.station import views
 MAX_BODY_BYTES = MAX_SWEEP_BYTES + 64 * 1024
 #: Longest free-text field (a note) kept, characters; longer text is refused.
 MAX_TEXT = 500
+#: The station's page templates.
+STATION_TEMPLATES = ("station_element.html", "station_board.html", "station_board_rows.html",
+                     "station_message.html", "station_organiser.html")
 #: How often the day board refreshes itself, seconds.
 BOARD_REFRESH_S = 10
 
@@ -67,7 +80,7 @@ class StationState:
     keys: sec.Keys
     env: Any
     pin_failures: dict[str, tuple[int, float]] = field(default_factory=dict)
-    calibrating: asyncio.Lock = field(default_factory=asyncio.Lock)
+    calibrating: threading.Lock = field(default_factory=threading.Lock)
 
 
 class BodyLimit:
@@ -194,32 +207,75 @@ def _csrf(request: Request) -> tuple[str, tuple[str, bool]]:
     return sec.csrf_token(_state(request).keys.secret, client[0]), client
 
 
+# --------------------------------------------------------------------------- forms
+
+
+class Refused(Exception):
+    """A form turned down with a message and an HTTP status (wrong PIN, lockout)."""
+
+    def __init__(self, message: str, status: int = 400):
+        super().__init__(message)
+        self.message, self.status = message, status
+
+
+#: A form's work: (state, fields, client ID) -> the URL to send the browser to, or a finished
+#: response (one that sets a cookie). It validates through :mod:`ledger_api` (the CLI's
+#: parsers and messages) and makes at most one store write; BuildsheetError or Refused when
+#: the input is turned down.
+FormWork = Callable[[StationState, dict[str, Any], str], "str | Response"]
+#: How a form answers a refusal: (request, message, status, fields, client) -> response.
+ErrorAnswer = Callable[[Request, str, int, dict[str, Any], tuple[str, bool]],
+                       Awaitable[Response]]
+
+
+async def _handle_form(request: Request, work: FormWork, answer_error: ErrorAnswer, *,
+                       organiser: bool = False, slow: bool = False) -> Response:
+    """The one path of every POST: read the form (size and field limits) and check its CSRF
+    token (:func:`_form`), check the organiser session when asked, run ``work`` and answer
+    with a 303 to where it leads, or ``answer_error`` with the one-line message.
+
+    ``work`` runs on the event loop unless ``slow``: a reading or a trim is a sub-millisecond
+    SQLite transaction, cheaper than the hop to a worker thread and back (under fifty phones
+    that hop, not the store, was most of a reading's latency; bench/station.py). Slow work
+    (parsing a sweep file, fitting a calibration) goes to the thread pool."""
+    got = await _form(request)
+    if isinstance(got, Response):
+        return got
+    fields, cid, new = got
+    st = _state(request)
+    try:
+        if organiser and not _is_organiser(request):
+            return _message(request, "Organiser only", "Sign in with the organiser PIN first.",
+                            403)
+        try:
+            result = await run_in_threadpool(work, st, fields, cid) if slow else work(
+                st, fields, cid)
+        except Refused as exc:
+            return await answer_error(request, exc.message, exc.status, fields, (cid, new))
+        except BuildsheetError as exc:
+            return await answer_error(request, _one_line(exc), 400, fields, (cid, new))
+    finally:
+        for value in fields.values():
+            if isinstance(value, UploadFile):
+                await value.close()
+    response = result if isinstance(result, Response) else RedirectResponse(result, 303)
+    return _finish(response, cid, new)
+
+
 # --------------------------------------------------------------------------- element page
 
 
-def _render_element(st: StationState, facts: api.ElementFacts, token: str, *,
-                    status: int, error: str = "", notice: str = "",
-                    form: dict[str, str] | None = None) -> tuple[str, int]:
+def _element_response(st: StationState, element_id: str, client: tuple[str, bool], *,
+                      status: int = 200, error: str = "", notice: str = "",
+                      form: dict[str, str] | None = None) -> Response:
+    """The element page (store read and template on the event loop: about a millisecond)."""
+    cid, new = client
+    facts = api.element_facts(st.station, element_id)
     page = views.element_page(facts, st.station.spec.event.units, st.station.spec.event.name,
-                              token, error=error, notice=notice, form=form)
-    return st.env.get_template("station_element.html").render(page=page), status
-
-
-async def _element_response(request: Request, element_id: str, *, status: int = 200,
-                            error: str = "", notice: str = "",
-                            form: dict[str, str] | None = None,
-                            client: tuple[str, bool] | None = None) -> Response:
-    st = _state(request)
-    cid, new = client or _client(request)
-    token = sec.csrf_token(st.keys.secret, cid)
-
-    def work() -> tuple[str, int]:
-        facts = api.element_facts(st.station, element_id)
-        return _render_element(st, facts, token, status=status, error=error, notice=notice,
-                               form=form)
-
-    html, code = await run_in_threadpool(work)
-    return _finish(HTMLResponse(html, status_code=code), cid, new)
+                              sec.csrf_token(st.keys.secret, cid), error=error, notice=notice,
+                              form=form)
+    html = st.env.get_template("station_element.html").render(page=page)
+    return _finish(HTMLResponse(html, status_code=status), cid, new)
 
 
 async def element(request: Request) -> Response:
@@ -230,79 +286,72 @@ async def element(request: Request) -> Response:
         notice = f"Reading {request.query_params['reading']} recorded."
     elif request.query_params.get("trim", "").isdigit():
         notice = f"Trim {request.query_params['trim']} recorded."
-    cid, new = _client(request)
-    token = sec.csrf_token(st.keys.secret, cid)
-
-    def work() -> tuple[str, str, int]:
+    client = _client(request)
+    try:
         element_id = api.resolve(st.station, wanted)
         if element_id != wanted:
-            return element_id, "", 303
-        facts = api.element_facts(st.station, element_id)
-        return (element_id, *_render_element(st, facts, token, status=200, notice=notice))
-
-    try:
-        element_id, html, code = await run_in_threadpool(work)
+            return _finish(RedirectResponse(views.element_url(element_id), status_code=303),
+                           *client)
+        return _element_response(st, element_id, client, notice=notice)
     except BuildsheetError as exc:
         return _message(request, "Unknown element", _one_line(exc), 404)
-    if code == 303:
-        return _finish(RedirectResponse(views.element_url(element_id), status_code=303), cid,
-                       new)
-    return _finish(HTMLResponse(html, status_code=code), cid, new)
 
 
-async def _post(request: Request, action: Callable[..., int], args: Callable[[dict[str, Any]],
-                tuple[Any, ...]], done: str, keep: tuple[str, ...]) -> Response:
-    element_id = request.path_params["element_id"]
-    got = await _form(request)
-    if isinstance(got, Response):
-        return got
-    fields, cid, new = got
-    st = _state(request)
-    try:
-        values = args(fields)
-        number = await run_in_threadpool(action, st.station, element_id, *values)
-    except BuildsheetError as exc:
-        form = {k: _text(fields, k) for k in keep}
+def _element_error(element_id: str, keep: tuple[str, ...]) -> ErrorAnswer:
+    """Answer a refused element form: the page again with the message and the typed fields."""
+
+    async def answer(request: Request, message: str, status: int, fields: dict[str, Any],
+                     client: tuple[str, bool]) -> Response:
         try:
-            return await _element_response(request, element_id, status=400,
-                                           error=_one_line(exc), form=form, client=(cid, new))
+            return _element_response(_state(request), element_id, client, status=status,
+                                     error=message, form={k: _text(fields, k) for k in keep})
         except BuildsheetError as missing:
             return _message(request, "Unknown element", _one_line(missing), 404)
-    finally:
-        for value in fields.values():
-            if isinstance(value, UploadFile):
-                await value.close()
-    url = f"{views.element_url(element_id)}?{done}={number}#advice"
-    return _finish(RedirectResponse(url, status_code=303), cid, new)
+
+    return answer
+
+
+def _element_form(request: Request, record: Callable[[api.Station, str, dict[str, Any]], int],
+                  done: str, keep: tuple[str, ...], *, slow: bool = False) -> Awaitable[Response]:
+    """An element page form: ``record`` validates and stores one reading or trim and returns
+    its number; the browser goes back to the page, the answer in large type."""
+    element_id = request.path_params["element_id"]
+
+    def work(st: StationState, fields: dict[str, Any], _cid: str) -> str:
+        number = record(st.station, element_id, fields)
+        return f"{views.element_url(element_id)}?{done}={number}#advice"
+
+    return _handle_form(request, work, _element_error(element_id, keep), slow=slow)
 
 
 async def post_dip(request: Request) -> Response:
-    def args(f: dict[str, Any]) -> tuple[Any, ...]:
-        return (_text(f, "dip"), _text(f, "swr"), _text(f, "r"), _text(f, "x"), _text(f, "note"))
+    def record(station: api.Station, element_id: str, f: dict[str, Any]) -> int:
+        return api.record_dip(station, element_id, _text(f, "dip"), _text(f, "swr"),
+                              _text(f, "r"), _text(f, "x"), _text(f, "note"))
 
-    return await _post(request, api.record_dip, args, "reading", ("dip", "swr", "r", "x", "note"))
+    return await _element_form(request, record, "reading", ("dip", "swr", "r", "x", "note"))
 
 
 async def post_sweep(request: Request) -> Response:
-    def args(f: dict[str, Any]) -> tuple[Any, ...]:
+    def record(station: api.Station, element_id: str, f: dict[str, Any]) -> int:
         upload = f.get("sweep")
         if not isinstance(upload, UploadFile) or not upload.filename:
             raise BuildsheetError("choose a sweep file (.s1p or .csv) first")
         upload.file.seek(0)
         data = upload.file.read(MAX_SWEEP_BYTES + 1)  # one byte over: read_sweep says too large
         name = upload.filename.replace("\\", "/").rsplit("/", 1)[-1]
-        return (name, data, _text(f, "note"))
+        return api.record_sweep(station, element_id, name, data, _text(f, "note"))
 
-    return await _post(request, api.record_sweep, args, "reading", ("note",))
+    return await _element_form(request, record, "reading", ("note",), slow=True)
 
 
 async def post_trim(request: Request) -> Response:
-    def args(f: dict[str, Any]) -> tuple[Any, ...]:
-        return (_text(f, "amount"), _text(f, "direction") or "removed", _text(f, "leg") or "both",
-                _text(f, "note"))
+    def record(station: api.Station, element_id: str, f: dict[str, Any]) -> int:
+        return api.record_trim(station, element_id, _text(f, "amount"),
+                               _text(f, "direction") or "removed",  # type: ignore[arg-type]
+                               _text(f, "leg") or "both", _text(f, "note"))
 
-    return await _post(request, api.record_trim, args, "trim",
-                       ("amount", "direction", "leg", "note"))
+    return await _element_form(request, record, "trim", ("amount", "direction", "leg", "note"))
 
 
 async def sweep_plot(request: Request) -> Response:
@@ -310,22 +359,25 @@ async def sweep_plot(request: Request) -> Response:
 
     st = _state(request)
     number = request.path_params["number"]
+
+    def work() -> tuple[api.ElementFacts, tuple[Sweep, SweepFit] | None]:
+        facts = api.element_facts(st.station, request.path_params["element_id"])
+        known = any(m.id == number for m in facts.readings)
+        return facts, api.stored_sweep(st.station, facts.element_id, number) if known else None
+
     try:
-        facts = await run_in_threadpool(api.element_facts, st.station,
-                                        request.path_params["element_id"])
+        facts, found = await run_in_threadpool(work)
     except BuildsheetError as exc:
         return _message(request, "Unknown element", _one_line(exc), 404)
     if not any(m.id == number for m in facts.readings):
         return _message(request, "No such sweep", f"{facts.element_id} has no reading {number}.",
                         404)
-    found = await run_in_threadpool(api.stored_sweep, st.station, facts.element_id, number)
     if found is None:
         return _message(request, "No sweep", f"Reading {number} has no sweep stored.", 404)
     sweep, fit = found
     svg = sweep_svg(sweep, fit, facts.band_low_hz, facts.band_high_hz, facts.design_hz,
                     title=f"{facts.element_id} reading {number}")
-    cid, new = _client(request)
-    return _finish(Response(svg, media_type="image/svg+xml"), cid, new)
+    return _finish(Response(svg, media_type="image/svg+xml"), *_client(request))
 
 
 # --------------------------------------------------------------------------- day board
@@ -374,14 +426,22 @@ async def _organiser_page(request: Request, *, error: str = "", notice: str = ""
     if not _is_organiser(request):
         page = views.OrganiserPage(st.station.spec.event.name, token, False, error=error)
         return _page(request, "station_organiser.html", page, status, client)
-    facts = await run_in_threadpool(api.board_facts, st.station)
+
+    def work() -> tuple[api.BoardFacts, tuple[str, ...] | None]:
+        return api.board_facts(st.station), api.labels_to_reprint(st.station)
+
+    facts, reprint = await run_in_threadpool(work)
     board_view = views.board_page(facts, st.station.spec.event.units, "", token, True)
-    reprint = await run_in_threadpool(api.labels_to_reprint, st.station)
     legs = None if reprint is None else tuple(
         (leg, views.element_url(leg.rsplit("-", 1)[0])) for leg in reprint)
     page = views.OrganiserPage(st.station.spec.event.name, token, True, board_view.offers,
                                legs, error, notice)
     return _page(request, "station_organiser.html", page, status, client)
+
+
+async def _organiser_error(request: Request, message: str, status: int, _fields: dict[str, Any],
+                           _client_id: tuple[str, bool]) -> Response:
+    return await _organiser_page(request, error=message, status=status)
 
 
 async def organiser(request: Request) -> Response:
@@ -394,70 +454,54 @@ async def organiser(request: Request) -> Response:
 
 
 async def organiser_pin(request: Request) -> Response:
-    got = await _form(request)
-    if isinstance(got, Response):
-        return got
-    fields, cid, new = got
-    st = _state(request)
-    count, since = st.pin_failures.get(cid, (0, 0.0))
-    if count >= sec.PIN_ATTEMPTS and time.monotonic() - since < sec.PIN_LOCKOUT_S:
-        return await _organiser_page(request, status=429, error="Too many wrong PINs from this "
-                                     f"browser: wait {sec.PIN_LOCKOUT_S:.0f} s.")
-    if not sec.pin_ok(st.keys.pin, _text(fields, "pin")):
-        st.pin_failures[cid] = (count + 1 if count < sec.PIN_ATTEMPTS else 1, time.monotonic())
-        return await _organiser_page(request, status=403, error="Wrong PIN. The PIN is printed "
-                                     "on the organiser's cover page of the sheets.")
-    st.pin_failures.pop(cid, None)
-    response = RedirectResponse("/organiser?done=signed-in", status_code=303)
-    response.set_cookie(sec.ORGANISER_COOKIE, sec.organiser_token(st.keys.secret, cid),
-                        httponly=True, samesite="strict", max_age=12 * 3600)
-    return _finish(response, cid, new)
+    def work(st: StationState, fields: dict[str, Any], cid: str) -> Response:
+        count, since = st.pin_failures.get(cid, (0, 0.0))
+        if count >= sec.PIN_ATTEMPTS and time.monotonic() - since < sec.PIN_LOCKOUT_S:
+            raise Refused("Too many wrong PINs from this browser: wait "
+                          f"{sec.PIN_LOCKOUT_S:.0f} s.", 429)
+        if not sec.pin_ok(st.keys.pin, _text(fields, "pin")):
+            st.pin_failures[cid] = (count + 1 if count < sec.PIN_ATTEMPTS else 1,
+                                    time.monotonic())
+            raise Refused("Wrong PIN. The PIN is printed on the organiser's cover page of the "
+                          "sheets.", 403)
+        st.pin_failures.pop(cid, None)
+        response = RedirectResponse("/organiser?done=signed-in", status_code=303)
+        response.set_cookie(sec.ORGANISER_COOKIE, sec.organiser_token(st.keys.secret, cid),
+                            httponly=True, samesite="strict", max_age=12 * 3600)
+        return response
+
+    return await _handle_form(request, work, _organiser_error)
 
 
 async def organiser_calibrate(request: Request) -> Response:
-    got = await _form(request)
-    if isinstance(got, Response):
-        return got
-    fields, cid, new = got
-    if not _is_organiser(request):
-        return _message(request, "Organiser only", "Sign in with the organiser PIN first.", 403)
-    st = _state(request)
-    sources = fields.get("source", [])
-    sources = [sources] if isinstance(sources, str) else [s for s in sources if isinstance(s, str)]
-    async with st.calibrating:
-        try:
-            st.station = await run_in_threadpool(api.calibrate, st.station,
-                                                 _text(fields, "design"), sources)
-        except BuildsheetError as exc:
-            return await _organiser_page(request, error=_one_line(exc), status=400)
-    return _finish(RedirectResponse("/organiser?done=calibrated", status_code=303), cid, new)
+    def work(st: StationState, fields: dict[str, Any], _cid: str) -> str:
+        sources = fields.get("source", [])
+        sources = [sources] if isinstance(sources, str) else [
+            s for s in sources if isinstance(s, str)]
+        with st.calibrating:  # one fit at a time; the station is swapped when it is stored
+            st.station = api.calibrate(st.station, _text(fields, "design"), sources)
+        return "/organiser?done=calibrated"
+
+    return await _handle_form(request, work, _organiser_error, organiser=True, slow=True)
 
 
 async def organiser_void(request: Request) -> Response:
-    got = await _form(request)
-    if isinstance(got, Response):
-        return got
-    fields, cid, new = got
-    if not _is_organiser(request):
-        return _message(request, "Organiser only", "Sign in with the organiser PIN first.", 403)
-    st = _state(request)
-    try:
-        element_id = await run_in_threadpool(api.resolve, st.station, _text(fields, "element"))
-        await run_in_threadpool(api.void_reading, st.station, element_id,
-                                _text(fields, "number"), _text(fields, "reason"))
-    except BuildsheetError as exc:
-        return await _organiser_page(request, error=_one_line(exc), status=400)
-    return _finish(RedirectResponse("/organiser?done=voided", status_code=303), cid, new)
+    def work(st: StationState, fields: dict[str, Any], _cid: str) -> str:
+        element_id = api.resolve(st.station, _text(fields, "element"))
+        api.void_reading(st.station, element_id, _text(fields, "number"),
+                         _text(fields, "reason"))
+        return "/organiser?done=voided"
+
+    return await _handle_form(request, work, _organiser_error, organiser=True)
 
 
 async def organiser_signout(request: Request) -> Response:
-    got = await _form(request)
-    if isinstance(got, Response):
-        return got
-    _fields, cid, new = got
-    response = RedirectResponse("/board", status_code=303)
-    response.delete_cookie(sec.ORGANISER_COOKIE)
-    return _finish(response, cid, new)
+    def work(_st: StationState, _fields: dict[str, Any], _cid: str) -> Response:
+        response = RedirectResponse("/board", status_code=303)
+        response.delete_cookie(sec.ORGANISER_COOKIE)
+        return response
+
+    return await _handle_form(request, work, _organiser_error)
 
 
 # --------------------------------------------------------------------------- the app
@@ -484,7 +528,11 @@ def make_app(station: api.Station, keys: sec.Keys | None = None) -> Any:
         Route("/organiser/signout", organiser_signout, methods=["POST"]),
     ]
     app = Starlette(routes=routes)
+    env = environment()
+    env.auto_reload = False  # the shipped templates do not change during a run: no stat per page
+    for name in STATION_TEMPLATES:  # compiled now, not while the first phones wait
+        env.get_template(name)
     app.state.station_state = StationState(station, keys or sec.Keys(sec.new_secret(),
-                                                                     station.pin), environment())
+                                                                     station.pin), env)
     return BodyLimit(app, MAX_BODY_BYTES)
 

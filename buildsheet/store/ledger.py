@@ -692,8 +692,13 @@ def _assemble(elements: Sequence[ElementRow], conn: sqlite3.Connection,
     out = []
     for e in elements:
         rec = by_id[e.id]
-        gone = tuple(x for x in (*rec["c"], *rec["t"], *rec["m"]) if _void_key(x) in voided)
-        keep = [tuple(x for x in rec[k] if _void_key(x) not in voided) for k in ("m", "t", "c")]
+        if not voided:  # the usual case: no content keys to build
+            gone: tuple[Measurement | Trim | LegCut, ...] = ()
+            keep = [tuple(rec[k]) for k in ("m", "t", "c")]
+        else:
+            gone = tuple(x for x in (*rec["c"], *rec["t"], *rec["m"]) if _void_key(x) in voided)
+            keep = [tuple(x for x in rec[k] if _void_key(x) not in voided)
+                    for k in ("m", "t", "c")]
         out.append(ElementHistory(e, keep[0], keep[1], tuple(rec["p"]), keep[2], gone))
     return out
 
