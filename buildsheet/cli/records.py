@@ -473,6 +473,9 @@ def handle_import(args: argparse.Namespace, out: TextIO | None = None) -> int:
     print(f"Imported into {path}: {report.elements} elements, {report.measurements} "
           f"measurements, {report.trims} trims, {report.cuts} cuts, {report.prints} prints "
           f"({report.skipped} already present).", file=out)
+    if report.extras:
+        print(f"  Added R, X or the sweep to {report.extras} readings already in the store.",
+              file=out)
     if report.conflicts:
         print("  Kept the store's values for elements that differ from the file: "
               + ", ".join(report.conflicts), file=out)

@@ -1,6 +1,9 @@
 """Export and import of the element record store as JSON (a readable backup and restore).
 
 The export holds every table; importing merges, skipping exact duplicates, in one transaction.
+Each measurement row carries what the station (and ``measure --sweep``) records beside the dip
+(schema 4): R and X at the dip, ohm, and the analyzer sweep (file name and the stored CSV
+text); rows of older exports without them are still read.
 """
 
 from __future__ import annotations
@@ -41,6 +44,7 @@ class ImportReport:
     calibrations: int = 0
     cuts: int = 0
     voids: int = 0
+    extras: int = 0  # R/X/sweep added to a reading already in the store without them
 
 
 # --------------------------------------------------------------------------- export / import
@@ -55,6 +59,28 @@ _TABLES: dict[str, tuple[str, ...]] = {
 }
 
 
+#: The reading extras (schema 4) in each exported measurement row, after ``_TABLES``' columns.
+EXTRA_COLS: tuple[str, ...] = ("r_ohm", "x_ohm", "sweep_name", "sweep_csv")
+_MEASUREMENTS_SQL = ("SELECT m.element_id, m.time, m.dip_hz, m.swr, m.note, e.r_ohm, e.x_ohm, "
+                     "e.sweep_name, e.sweep_csv FROM measurements m LEFT JOIN reading_extras e "
+                     "ON e.measurement_id = m.id ORDER BY m.id")
+
+
+def _keys_ok(table: str, item: Any) -> bool:
+    """True when an exported row has exactly its table's keys (a measurement: with or without
+    the four extras, all of them or none)."""
+    if not isinstance(item, Mapping):
+        return False
+    keys, cols = set(item), set(_TABLES[table])
+    return keys == cols or (table == "measurements" and keys == cols | set(EXTRA_COLS))
+
+
+def _keys_rule(table: str) -> str:
+    rule = f"{table} rows must have exactly the keys {', '.join(_TABLES[table])}"
+    return rule + (f" (and optionally all of {', '.join(EXTRA_COLS)})"
+                   if table == "measurements" else "")
+
+
 def export_json(store: RecordStore) -> dict[str, Any]:
     """The whole store as plain JSON-ready data (a readable backup), read in one snapshot."""
     conn = store.conn
@@ -65,8 +91,10 @@ def export_json(store: RecordStore) -> dict[str, Any]:
             out["elements"] = [{**asdict(e), "partners": list(e.partners)} for e in map(
                 element_from_row, conn.execute(f"SELECT {ELEMENT_COLS} FROM elements ORDER BY id"))]
             for table, cols in _TABLES.items():
-                out[table] = [dict(zip(cols, r)) for r in conn.execute(
-                    f"SELECT {', '.join(cols)} FROM {table} ORDER BY id")]
+                sql = (_MEASUREMENTS_SQL if table == "measurements"
+                       else f"SELECT {', '.join(cols)} FROM {table} ORDER BY id")
+                names = (*cols, *EXTRA_COLS) if table == "measurements" else cols
+                out[table] = [dict(zip(names, r)) for r in conn.execute(sql)]
         finally:
             conn.execute("COMMIT")
     except sqlite3.DatabaseError as exc:
@@ -177,14 +205,42 @@ def _calibration_problem(item: Mapping[str, Any]) -> str | None:
     return None
 
 
+def _extras_problems(item: Mapping[str, Any]) -> list[str]:
+    """What is wrong with a measurement row's R, X and sweep, judged as ``measure`` and the
+    station judge them (R 0 ohm or more, X finite, the sweep text read back as the station
+    reads a stored sweep)."""
+    from buildsheet.calc.sweep import read_sweep
+
+    out = []
+    r, x = item.get("r_ohm"), item.get("x_ohm")
+    if r is not None and not (_finite(r) and r >= 0):
+        out.append(f"r_ohm {r!r} is not a resistance of 0 ohm or more (or null)")
+    if x is not None and not _finite(x):
+        out.append(f"x_ohm {x!r} is not a finite reactance in ohm (or null)")
+    name, csv = item.get("sweep_name"), item.get("sweep_csv")
+    if (name is None) != (csv is None):
+        out.append("sweep_name and sweep_csv go together: both text or both null")
+    elif name is not None:
+        if not isinstance(name, str) or not 0 < len(name) <= MAX_NOTE:
+            out.append(f"sweep_name must be text of 1 to {MAX_NOTE} characters")
+        if not isinstance(csv, str):
+            out.append("sweep_csv must be the sweep as CSV text")
+        else:
+            try:
+                read_sweep(csv.encode("utf-8"), "sweep_csv.csv")
+            except RecordError as exc:
+                out.append(str(exc))
+    return out
+
+
 def _row_problems(table: str, item: Mapping[str, Any],
                   legs: Mapping[str, float]) -> list[str]:
     """What is wrong with one exported row, as the record commands would judge it: types,
     finite numbers, plausible ranges, known elements, ISO 8601 times."""
     out = []
-    for key, allowed in _CHOICES.items():
-        if key[0] == table and item.get(key[1]) not in allowed:
-            out.append(f"{key[1]} {item.get(key[1])!r} is not one of {', '.join(allowed)}")
+    for (of, name), allowed in _CHOICES.items():
+        if of == table and item.get(name) not in allowed:
+            out.append(f"{name} {item.get(name)!r} is not one of {', '.join(allowed)}")
     for key in _TIME_KEYS:
         if key in item and not _iso_time(item[key]):
             out.append(f"{key} {item[key]!r} is not an ISO 8601 time (e.g. "
@@ -197,13 +253,15 @@ def _row_problems(table: str, item: Mapping[str, Any],
         out.append(f"revision {item['revision']!r} is not a whole number >= 0")
     if table != "elements" and "element_id" in item and item["element_id"] not in legs:
         out.append(f"element_id {item['element_id']!r} is neither in the file nor in the store")
-    leg = legs.get(item.get("element_id")) if isinstance(item.get("element_id"), str) else None
+    element_id = item.get("element_id")
+    leg = legs.get(element_id) if isinstance(element_id, str) else None
     low, high = HF_RANGE_HZ
     if table == "measurements":
         if not (_finite(item["dip_hz"]) and low <= item["dip_hz"] <= high):
             out.append(f"dip_hz {item['dip_hz']!r} is not a frequency from 1 to 30 MHz in Hz")
         if item["swr"] is not None and not (_finite(item["swr"]) and 1.0 <= item["swr"] <= 100):
             out.append(f"swr {item['swr']!r} is not an SWR from 1 to 100 (or null)")
+        out += _extras_problems(item)
     elif table == "trims":
         delta = item["delta_m"]
         if not (_finite(delta) and delta != 0):
@@ -244,10 +302,10 @@ def check_import(store: RecordStore, data: Mapping[str, Any]) -> list[ElementRow
     except sqlite3.DatabaseError as exc:
         raise corrupt_error(store.path, exc) from exc
     legs = {**stored, **{r.id: r.cut_leg_m for r in rows}}
-    for table, cols in _TABLES.items():
+    for table in _TABLES:
         for i, item in enumerate(data.get(table, [])):
-            if not isinstance(item, Mapping) or set(item) != set(cols):
-                problems.append(f"{table}[{i}] must have exactly the keys {', '.join(cols)}")
+            if not _keys_ok(table, item):
+                problems.append(f"{table}[{i}]: {_keys_rule(table)}")
                 continue
             problems += [f"{table}[{i}]: {p}" for p in _row_problems(table, item, legs)]
     if problems:
@@ -268,7 +326,7 @@ def import_json(store: RecordStore, data: Any) -> ImportReport:
     data = _check_export(data)
     rows = check_import(store, data)
     counts = {"elements": 0, "measurements": 0, "trims": 0, "prints": 0, "calibrations": 0,
-              "cuts": 0, "voids": 0, "skipped": 0}
+              "cuts": 0, "voids": 0, "skipped": 0, "extras": 0}
     conflicts: list[str] = []
     with write_transaction(store) as conn:
         for row in rows:
@@ -284,19 +342,46 @@ def import_json(store: RecordStore, data: Any) -> ImportReport:
                 conflicts.append(row.id)
         for table, cols in _TABLES.items():
             for i, item in enumerate(data.get(table, [])):
-                if not isinstance(item, Mapping) or set(item) != set(cols):
-                    raise RecordError(f"export: {table}[{i}] must have exactly the keys "
-                                      f"{', '.join(cols)}")
+                if not _keys_ok(table, item):
+                    raise RecordError(f"export: {table}[{i}]: {_keys_rule(table)}")
                 values = [item[c] for c in cols]
                 if not all(v is None or isinstance(v, (str, int, float)) for v in values):
                     raise RecordError(f"export: {table}[{i}] values must be text or numbers")
                 match = " AND ".join(f"{c} IS ?" for c in cols)
-                if conn.execute(f"SELECT 1 FROM {table} WHERE {match}", values).fetchone():
+                found = conn.execute(f"SELECT id FROM {table} WHERE {match} ORDER BY id",
+                                     values).fetchone()
+                if found is None:
+                    cur = conn.execute(f"INSERT INTO {table} ({', '.join(cols)}) VALUES "
+                                       f"({', '.join('?' * len(cols))})", values)
+                    counts[table] += 1
+                if table == "measurements":
+                    extras = tuple(item.get(c) for c in EXTRA_COLS)
+                    number = int(found[0]) if found else int(cur.lastrowid or 0)
+                    outcome = _merge_extras(conn, number, extras, fresh=found is None)
+                    if outcome == "conflict":
+                        conflicts.append(f"{item['element_id']} (reading at {item['time']})")
+                    elif outcome == "added":
+                        counts["extras"] += 1
+                if found is not None:
                     counts["skipped"] += 1
-                    continue
-                conn.execute(f"INSERT INTO {table} ({', '.join(cols)}) VALUES "
-                             f"({', '.join('?' * len(cols))})", values)
-                counts[table] += 1
     return ImportReport(counts["elements"], counts["measurements"], counts["trims"],
                         counts["prints"], counts["skipped"], tuple(conflicts),
-                        counts["calibrations"], counts["cuts"], counts["voids"])
+                        counts["calibrations"], counts["cuts"], counts["voids"],
+                        counts["extras"])
+
+
+def _merge_extras(conn: sqlite3.Connection, measurement_id: int, extras: tuple[Any, ...], *,
+                  fresh: bool) -> str:
+    """Store a reading's R, X and sweep from the file: "added" (new, or missing beside a
+    reading already stored), "same", "none" (the file has none) or "conflict" (the store
+    keeps its own)."""
+    if all(v is None for v in extras):
+        return "none"
+    stored = None if fresh else conn.execute(
+        f"SELECT {', '.join(EXTRA_COLS)} FROM reading_extras WHERE measurement_id = ?",
+        (measurement_id,)).fetchone()
+    if stored is None:
+        conn.execute(f"INSERT INTO reading_extras (measurement_id, {', '.join(EXTRA_COLS)}) "
+                     "VALUES (?, ?, ?, ?, ?)", (measurement_id, *extras))
+        return "none" if fresh else "added"
+    return "same" if tuple(stored) == extras else "conflict"
