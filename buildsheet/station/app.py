@@ -129,7 +129,7 @@ def _too_large(limit: int) -> Response:
 
 
 def _state(request: Request) -> StationState:
-    return request.app.state.station_state  # type: ignore[no-any-return]
+    return request.app.state.station_state
 
 
 def _client(request: Request) -> tuple[str, bool]:

@@ -388,7 +388,7 @@ def board_facts(station: Station) -> BoardFacts:
         mine = [e for e in entries.values() if e.kit.design_key == key]
         measured = tuple(e.element_id for e in mine if e.state.latest_dip_hz is not None)
         calibrated = key in station.calibrated
-        batch = tuple((e.element_id, *(leg.action.words(units, both=False)  # type: ignore[arg-type]
+        batch = tuple((e.element_id, *(leg.action.words(units, both=False)
                                        for leg in e.state.legs))
                       for e in mine if calibrated and e.state.is_cut)
         offers.append(DesignOffer(key, c.design.title, measured, calibrated, batch))  # type: ignore[arg-type]
