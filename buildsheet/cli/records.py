@@ -17,7 +17,7 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, TextIO
 
-from buildsheet.errors import RecordError, UsageError
+from buildsheet.errors import Problem, RecordError, UsageError
 from buildsheet.store.ledger import STORE_SUFFIX
 
 if TYPE_CHECKING:
@@ -463,7 +463,11 @@ def handle_import(args: argparse.Namespace, out: TextIO | None = None) -> int:
     fresh = not path.exists()
     try:
         with rec.open_store(path, create=True, verify=not fresh) as store:
-            report = exchange.import_json(store, data)
+            try:
+                report = exchange.import_json(store, data)
+            except RecordError as exc:  # name the file the bad rows are in
+                raise RecordError([Problem(str(source), p.message) if p.where == "buildsheet"
+                                   else p for p in exc.problems]) from exc
     except BaseException:
         if fresh:  # a refused import leaves no new, empty store behind
             from buildsheet.store.files import remove_new_store
