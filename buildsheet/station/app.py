@@ -8,8 +8,9 @@ validation, one store write, one answer. Request bodies are capped at :data:`MAX
 Where the work runs: an element page and a typed reading or trim are short SQLite work (well
 under a millisecond against the per-thread store of :class:`ledger_api.StorePool`), done on
 the event loop; handing them to a worker thread and back cost more than the work itself once
-fifty phones post at once (bench/station.py: p95 of a reading about 150 ms through the thread
-pool, under 60 ms on the loop, on the 2-core machine). Slow work stays in the thread pool:
+fifty phones post at once (bench/station.py on the 2-core machine, side by side: p95 of a
+reading 115-180 ms through the thread pool, 30-65 ms on the loop). Slow work stays in the
+thread pool:
 sweep files (parsed and analysed), calibration fits, the day board over every element, the
 labels-to-reprint comparison, sweep plots. A write on the loop waits only for the station's
 own short writes or for another process's (the CLI) write transaction, itself a single short
