@@ -80,7 +80,7 @@ def packet_timing(kits: int) -> float:
         spec.write_text(text, encoding="utf-8")
         t0 = time.perf_counter()
         subprocess.run([exe, "packet", str(spec), "-o", str(Path(tmp) / "out")], check=True,
-                       stdout=subprocess.DEVNULL, env=dict(os.environ))
+                       stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, env=dict(os.environ))
         return time.perf_counter() - t0
 
 

@@ -40,7 +40,7 @@ EXACT_NODE_BUDGET: int = 400_000
 #: The integer program is used for at most this many distinct cut lengths x spools.
 MILP_MAX_CELLS: int = 2000
 #: Node limit of each integer-program solve (deterministic, unlike a time limit).
-MILP_NODE_LIMIT: int = 2000
+MILP_NODE_LIMIT: int = 200
 #: Most swaps tried per spool the improvement step tries to empty.
 _SWAP_ROUNDS: int = 50
 #: Internal length quantum, m (micrometre integers avoid float ties in feasibility tests).
