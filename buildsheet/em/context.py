@@ -19,15 +19,18 @@ machine oversubscribes the cores. Each fill and solve therefore runs with one BL
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from contextlib import nullcontext
 from dataclasses import dataclass, field, replace
-from typing import Any
+from typing import Any, TypeVar
 
 import numpy as np
 
 from buildsheet.em import mom
 from buildsheet.em.currents import SegmentCurrents
 from buildsheet.em.sommerfeld import TableStore
+
+T = TypeVar("T")
 
 
 def mesh_key(mesh: mom.Mesh) -> tuple[Any, ...]:
@@ -39,17 +42,13 @@ def mesh_key(mesh: mom.Mesh) -> tuple[Any, ...]:
 
 @dataclass(eq=False)
 class Solver:
-    """Solver state of one build. ``fills``: impedance matrices filled so far; ``repeats``:
-    fills of a (mesh, frequency) already filled (zero unless a caller bypasses the context)."""
+    """Solver state of one build. ``fills``: impedance matrices filled so far."""
 
     tables: TableStore = field(default_factory=TableStore)
     fills: int = 0
-    repeats: int = 0
     _responses: dict[tuple[Any, float], np.ndarray] = field(default_factory=dict, repr=False)
-    _filled: set[tuple[Any, float]] = field(default_factory=set, repr=False)
     #: solved antennas and predictions of this build, by the callers' own immutable keys
-    solutions: dict[Any, Any] = field(default_factory=dict, repr=False)
-    predictions: dict[Any, Any] = field(default_factory=dict, repr=False)
+    _kept: dict[Any, Any] = field(default_factory=dict, repr=False)
     #: BLAS threads for a fill and solve (None: leave the library's default)
     blas_threads: int | None = 1
     _blas: Any = field(default=None, repr=False)
@@ -59,14 +58,24 @@ class Solver:
         key = (mesh_key(mesh), float(frequency_hz))
         out = self._responses.get(key)
         if out is None:
-            self.repeats += key in self._filled
-            self._filled.add(key)
             self.fills += 1
             with self._thread_limit():
                 out = mom.port_responses(mesh, float(frequency_hz))
             out.flags.writeable = False
             self._responses[key] = out
         return out
+
+    @property
+    def repeats(self) -> int:
+        """Fills of a (mesh, frequency) filled before: zero by construction, since every fill is
+        kept; the build reports it, and tests count fills independently of this class."""
+        return self.fills - len(self._responses)
+
+    def kept(self, key: Any, compute: Callable[[], T]) -> T:
+        """The result stored under ``key`` (hashable, immutable inputs), computed once."""
+        if key not in self._kept:
+            self._kept[key] = compute()
+        return self._kept[key]
 
     def _thread_limit(self) -> Any:
         """Context limiting BLAS to ``blas_threads`` (the library's pools found once)."""

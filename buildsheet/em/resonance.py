@@ -347,12 +347,8 @@ def solve_resonance(antenna: DeployedAntenna, solver: Solver | None = None, *, z
     so asking again for the same antenna solves nothing.
     """
     solver = solver_or_new(solver)
-    key = (antenna, z0, n_swr_points)
-    if key in solver.solutions:
-        return solver.solutions[key]
-    solution = _solve_resonance(antenna, solver, z0, n_swr_points)
-    solver.solutions[key] = solution
-    return solution
+    return solver.kept(("resonance", antenna, z0, n_swr_points),
+                       lambda: _solve_resonance(antenna, solver, z0, n_swr_points))
 
 
 def _solve_resonance(antenna: DeployedAntenna, solver: Solver, z0: float,

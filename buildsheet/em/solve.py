@@ -47,10 +47,7 @@ def predict_mom(design: AntennaDesign, ground: Ground,
     """Method-of-moments prediction of every element of ``design`` over ``ground``; kept in
     ``solver`` (a fresh context if None), so a build predicts each design once."""
     solver = solver_or_new(solver)
-    key = ("mom", design, ground)
-    if key not in solver.predictions:
-        solver.predictions[key] = _predict_mom(design, ground, solver)
-    return solver.predictions[key]
+    return solver.kept(("mom", design, ground), lambda: _predict_mom(design, ground, solver))
 
 
 def _predict_mom(design: AntennaDesign, ground: Ground, solver: Solver) -> DesignPrediction:
