@@ -5,8 +5,10 @@ Damage (tests/damage.py, fixed seeds): round blots of 1-2 mm radius, dark or lig
 centred anywhere on the label until the given share of the label's area is covered; either no
 blot touches a finder pattern of any copy of the symbol ("finders spared") or blots may land
 anywhere. Pages are rasterised at 150 dpi with pypdfium2 and decoded with zxing-cpp; a label
-counts as read when a code on it decodes to its payload (either copy). Issue 13 asks for
-decoding with 10 % blotted (finders spared) and with 5 % anywhere, on the smallest stock.
+counts as read when a code on it decodes to its payload (any copy). Issue 13 asks for
+decoding with 10 % blotted (finders spared) and with 5 % anywhere, on the smallest stock; the
+bar we set is 95 % of the trials. Each stock line shows the shapes the labels got (copies x
+symbol side in modules, error correction level) and the smallest module.
 Run: python bench/labels.py  (needs the test extras)
 """
 
@@ -33,13 +35,17 @@ CONDITIONS = (("clean", 0.0, True), ("10 % finders spared", 0.10, True),
               ("15 % finders spared", 0.15, True), ("5 % anywhere", 0.05, False))
 
 
-def demo_labels(record_url: str | None):
+def demo_labels(code: str):
+    """The demo's labels with QR code ``code``: "id" (the leg ID) or "link" (the demo's record
+    URL)."""
     from buildsheet.cli.main import demo_spec_text
     from buildsheet.packet import build_packet
     from buildsheet.spec.reader import read_spec_text
 
     spec = read_spec_text(demo_spec_text(), "demo.toml")
-    spec = replace(spec, event=replace(spec.event, record_url=record_url))
+    spec = replace(spec, event=replace(spec.event,
+                                       record_url="http://buildsheet.local:8000/{element}.html"),
+                   labels=replace(spec.labels, code=code))
     packet = build_packet(spec, built_at="2027-03-01T00:00:00Z", model="closed_form")
     return list(packet.labels)
 
@@ -105,15 +111,13 @@ def main() -> None:
     from buildsheet.calc.labels import STOCKS
     from buildsheet.render.labels import plan_labels, render_labels
 
-    for kind, url in (("offline record", None),
-                      ("record URL", "http://buildsheet.local:8000/{element}.html")):
-        labels = demo_labels(url)
-        print(f"{len(labels)} demo labels, payload: {kind} (e.g. {labels[0].payload!r})")
+    for code in ("id", "link"):
+        labels = demo_labels(code)
+        print(f"{len(labels)} demo labels, labels.code = {code!r} (e.g. {labels[0].payload!r})")
         for name in sorted(STOCKS, key=lambda n: STOCKS[n].label_width * STOCKS[n].label_height):
             stock = STOCKS[name]
             plans = plan_labels(labels, stock)
-            shapes = sorted({(len(getattr(p.layout, "symbols", (0,))), len(p.matrix), p.error)
-                             for p in plans})
+            shapes = sorted({(p.layout.copies, len(p.matrix), p.error) for p in plans})
             shown = ", ".join(f"{c} x {m} modules {e}" for c, m, e in shapes)
             mm = min(p.layout.module for p in plans)
             line = ", ".join(f"{c} {ok}/{n}" for c, (ok, n) in rates(labels, stock).items())

@@ -30,7 +30,7 @@ from buildsheet.calc.cuts import DesignCuts, ElementCut, design_cuts
 from buildsheet.calc.labels import (
     LabelContent,
     Leg,
-    offline_record,
+    label_payload,
     record_url,
     station_record_url,
 )
@@ -196,15 +196,11 @@ def label_contents(spec: Design, entries: Sequence[ElementEntry]) -> tuple[Label
             length = _length_text(as_cut, ev.units)
             trimmed = leg.cut_m is not None and abs(leg.current_m - leg.cut_m) > 1e-9
             now_text = _length_text(leg.current_m, ev.units) if trimmed else ""
-            short = format_length(as_cut, ev.units) + (
-                f" now {format_length(leg.current_m, ev.units)}" if trimmed else "")
-            if ev.record_url:
-                payload = record_url(ev.record_url, entry.kit.kit_id, entry.element_id, leg_id)
-            elif ev.station_url:
-                payload = station_record_url(ev.station_url, entry.element_id)
-            else:
-                payload = offline_record(leg_id, cut.element.band_label, freq, short,
-                                         entry.kit.kit_id, "")
+            link = (record_url(ev.record_url, entry.kit.kit_id, entry.element_id, leg_id)
+                    if ev.record_url else
+                    station_record_url(ev.station_url, entry.element_id) if ev.station_url
+                    else None)
+            payload = label_payload(spec.labels.code, leg_id, link)
             out.append(LabelContent(entry.kit.kit_id, entry.element_id, leg_id, side,
                                     cut.element.band_label, freq, length, payload,
                                     current_length_text=now_text))

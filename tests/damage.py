@@ -21,24 +21,29 @@ import numpy as np
 BLOT_RADIUS_MM: tuple[float, float] = (1.0, 2.0)
 
 
-def finder_zones(symbol: tuple[int, int, int], modules: int) -> list[tuple[int, int, int, int]]:
+def finder_zones(symbol: tuple[int, int, int], modules: int, turns: int = 0
+                 ) -> list[tuple[int, int, int, int]]:
     """The three finder patterns with separators as (x0, y0, x1, y1) px, for a symbol box
-    (left, top, side in px, quiet zone excluded) of ``modules`` across."""
+    (left, top, side in px, quiet zone excluded) of ``modules`` across, turned ``turns``
+    quarter turns clockwise (upright, the finders sit top-left, top-right and bottom-left)."""
     left, top, side = symbol
     f = round(8 * side / modules)
-    return [(left, top, left + f, top + f), (left + side - f, top, left + side, top + f),
-            (left, top + side - f, left + f, top + side)]
+    corners = [(0, 0), (1, 0), (0, 1)]  # (right?, bottom?) of each finder, upright
+    for _ in range(turns % 4):  # a clockwise quarter turn takes (x, y) to (1 - y, x)
+        corners = [(1 - y, x) for x, y in corners]
+    return [(left + (side - f) * x, top + (side - f) * y, left + (side - f) * x + f,
+             top + (side - f) * y + f) for x, y in corners]
 
 
 def label_finder_zones(layout, px_per_mm: float) -> list[tuple[int, int, int, int]]:
     """Finder zones (x0, y0, x1, y1 px) of every copy of the symbol in a label ``layout``
     (buildsheet.calc.labels.LabelLayout), pixels measured from the label's top-left."""
     zones = []
-    for box in getattr(layout, "symbols", None) or (layout.qr,):
+    for copy, box in enumerate(layout.symbols):
         left = round((box.x + layout.quiet_zone) * px_per_mm)
         top = round((box.y + layout.quiet_zone) * px_per_mm)
         zones += finder_zones((left, top, round(layout.modules * layout.module * px_per_mm)),
-                              layout.modules)
+                              layout.modules, layout.turn(copy))
     return zones
 
 

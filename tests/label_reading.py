@@ -1,9 +1,9 @@
 """Reading printed winder labels back: one decoded QR payload per label.
 
-A label carries its QR code twice where two copies fit (buildsheet.calc.labels), so reading a
-labels PDF counts codes per label cell, not per symbol: every code found is decoded by
-zxing-cpp from a pypdfium2 raster, placed in its cell of the stock's grid by its position,
-and the copies on one label must agree.
+A label carries its QR code up to six times (buildsheet.calc.labels), so reading a labels PDF
+counts codes per label cell, not per symbol: each cell of the stock's grid is cut from a
+pypdfium2 raster and decoded by zxing-cpp on its own, as a phone reads one label, and the
+copies on one label must agree.
 """
 
 from __future__ import annotations
@@ -29,15 +29,14 @@ def label_codes(pdf: Path, stock_name: str = "sheet-letter", scale: float = 6) -
     px_per_mm = scale * 72 / 25.4
     out: list[str] = []
     for px in pages:
-        cells: dict[int, set[str]] = {}
-        for r in zxingcpp.read_barcodes(Image.fromarray(px), formats=zxingcpp.BarcodeFormat.QRCode):
-            x = (r.position.top_left.x + r.position.bottom_right.x) / 2 / px_per_mm
-            y = (r.position.top_left.y + r.position.bottom_right.y) / 2 / px_per_mm
-            cell = next(i for i in range(stock.cells_per_page)
-                        if stock.cell_origin(i)[0] <= x <= stock.cell_origin(i)[0] + stock.label_width
-                        and stock.cell_origin(i)[1] <= y <= stock.cell_origin(i)[1] + stock.label_height)
-            cells.setdefault(cell, set()).add(r.text)
-        for cell in sorted(cells):
-            (text,) = cells[cell]  # the copies on one label agree
-            out.append(text)
+        for cell in range(stock.cells_per_page):  # one label at a time, as a phone reads them
+            left, top = stock.cell_origin(cell)
+            x0, y0 = round(left * px_per_mm), round(top * px_per_mm)
+            crop = px[y0:y0 + round(stock.label_height * px_per_mm),
+                      x0:x0 + round(stock.label_width * px_per_mm)]
+            found = {r.text for r in zxingcpp.read_barcodes(
+                Image.fromarray(crop), formats=zxingcpp.BarcodeFormat.QRCode)}
+            if found:
+                (text,) = found  # the copies on one label agree
+                out.append(text)
     return out

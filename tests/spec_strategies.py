@@ -43,7 +43,7 @@ PATHS: tuple[tuple[Any, ...], ...] = (
     ("designs", "d", "elements", 0, "frequency"), ("designs", "d", "elements", 0, "bearing"),
     ("designs", "d", "elements", 0, "end_height"), ("kits", 0, "count"),
     ("kits", 0, "builders"), ("kits", 0, "first"), ("kits", 0, "design"),
-    ("labels", "stock"), ("labels", "start_cell"), ("exposure", "power"),
+    ("labels", "stock"), ("labels", "start_cell"), ("labels", "code"), ("exposure", "power"),
     ("exposure", "mode"), ("exposure", "transmit_fraction"), ("exposure", "regime"),
     ("labels",), ("site",), ("kits",), ("wires",), ("stock",),
 )
@@ -211,6 +211,7 @@ TYPED: dict[tuple[Any, ...], st.SearchStrategy[Any]] = {
     ("kits", 0, "builders"): st.lists(_NAMES, max_size=3),
     ("labels", "stock"): st.sampled_from(["sheet-a4", "sheet-letter", "roll"]),
     ("labels", "start_cell"): st.integers(0, 30),
+    ("labels", "code"): st.sampled_from(["id", "link", "ID", ""]),
     ("exposure", "power"): st.integers(1, 12000).map(lambda w: f"{w} W"),
     ("exposure", "transmit_fraction"): st.floats(0, 1),
 }

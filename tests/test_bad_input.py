@@ -142,6 +142,19 @@ def test_start_cell_errors_name_file_and_key():
               "labels.start_cell", "'roll'", "0 to 0")
 
 
+def test_label_code_choices():
+    one_error(spec_text(**{"labels.code": '"qr"'}), "labels.code", "'qr' is not allowed",
+              "'id', 'link'")
+    one_error(spec_text(**{"labels.code": "true"}), "labels.code", "not allowed")
+    one_error(spec_text(**{"labels.code": '"link"'}), "labels.code", "event.record_url",
+              "event.station_url")
+    for edit, code in (({}, "id"), ({"labels.code": '"id"'}, "id"),
+                       ({"event.station_url": '"http://10.0.0.2:8080"'}, "link"),
+                       ({"event.station_url": '"http://10.0.0.2:8080"', "labels.code": '"id"'},
+                        "id")):
+        assert read_spec_text(spec_text(**edit), "club.toml").labels.code == code
+
+
 def test_grammar_expected_an_integer():
     one_error(spec_text(**{"kits.count": '"three"'}), "kits[0].count",
               "expected an integer from 1 to 2000, got text 'three'")

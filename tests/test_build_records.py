@@ -45,11 +45,11 @@ def small_spec(folder: Path, *, record_url: str | None = None, sixty_in_fan: boo
     text = re.sub(r"count = 3\nbuilders = \[.*?\]", 'count = 1\nbuilders = ["Kim"]',
                   text, flags=re.DOTALL)
     assert 'builders = ["Ada", "Ben"]' in text and 'builders = ["Kim"]' in text
-    if record_url:
+    if record_url:  # labels lead to the record pages
         text = text.replace("# record_url = ", "record_url = ", 1)
         text = re.sub(r'record_url = ".*?"', f'record_url = "{record_url}"', text, count=1)
-    else:  # the demo's codes lead to its record pages; these tests read the offline payload
-        text = re.sub(r'^record_url = ".*?"\n', "", text, count=1, flags=re.MULTILINE)
+        text = re.sub(r'^code = "id" .*$', 'code = "link"', text, count=1, flags=re.MULTILINE)
+        assert 'code = "link"' in text
     if sixty_in_fan:
         head, sep, tail = text.partition("  bearing = 90")
         text = head + sep + tail.replace("\n", "\n" + SIXTY_IN_FAN.strip("\n") + "\n", 1)
@@ -105,11 +105,7 @@ def test_measure_trim_rebuild_shows_current_length(tmp_path: Path, capsys) -> No
     now_a, now_b = cut - 0.035, cut - 0.045
     units = "metric"
     payloads = [p for p in qr_texts(out / "labels.pdf") if p.startswith("K01-40m-")]
-    assert len(payloads) == 2
-    for payload, now in zip(sorted(payloads), (now_a, now_b)):
-        assert f"now {format_length(now, units)}" in payload
-        assert f"cut {format_length(cut, units)}" in payload
-        assert "rev" not in payload  # no revision: an unchanged label stays byte-identical
+    assert sorted(payloads) == ["K01-40m-A", "K01-40m-B"]  # the QR holds the leg ID alone
     text = pdf_text(out / "labels.pdf")
     for now in (now_a, now_b):
         assert f"NOW {format_length(now, units)}" in text.replace("\n", " ")
@@ -178,7 +174,7 @@ def test_adding_60m_to_the_fan_flags_others_and_changed_only_writes_them(tmp_pat
     assert {"sheets-r2-changed.pdf", "labels-r2-changed.pdf", "sheets.pdf", "labels.pdf",
             "manifest.json", "site", "bom"} == written
     # Labels: only the new elements' (the cut fan legs keep their labels: as cut, unchanged).
-    legs = {p.split("\n")[0] for p in qr_texts(out / "labels-r2-changed.pdf")}
+    legs = set(qr_texts(out / "labels-r2-changed.pdf"))
     assert legs == {f"{e}-{leg}" for e in diff.new for leg in "AB"}
     sheets = pdf_text(out / "sheets-r2-changed.pdf")
     assert "Kit K01" in sheets and "Kit K02" in sheets and "Kit K03" not in sheets
@@ -227,8 +223,8 @@ def _first_label_cell(pdf: Path) -> int:
 ])
 def test_every_label_qr_leads_to_a_generated_page(tmp_path: Path, template: str | None) -> None:
     """Every QR code on the labels pages (zxing-cpp) resolves to a page in site/: for a URL the
-    path's file name exists (RFC 3986 path, percent-decoded); for the offline record its first
-    line is a leg ID whose element page exists and shows the band and frequency."""
+    path's file name exists (RFC 3986 path, percent-decoded); without a URL the code is a leg ID
+    whose element page exists and shows the band and frequency."""
     spec = small_spec(tmp_path, record_url=template)
     result = build(spec, tmp_path / "out", built_at=T1, model="closed_form")
     site = tmp_path / "out" / "site"
@@ -244,11 +240,10 @@ def test_every_label_qr_leads_to_a_generated_page(tmp_path: Path, template: str 
             eid = name.removesuffix(".html").removesuffix("-A").removesuffix("-B")
             assert eid in (site / name).read_text(encoding="utf-8")
         else:
-            leg_id, band_line = text.split("\n")[:2]
-            eid = leg_id[:-2]
+            eid = text.removesuffix("-A").removesuffix("-B")
+            assert text in (f"{eid}-A", f"{eid}-B")
             page = (site / page_name(eid)).read_text(encoding="utf-8")
             cut = entries[eid].cut
-            assert band_line == f"{cut.element.band_label} {format_frequency(cut.element.frequency_hz)}"
             assert format_frequency(cut.element.frequency_hz) in page
             assert f"{cut.cut_leg_m:.3f} m" in page  # the prescribed cut (not cut yet)
 

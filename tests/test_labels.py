@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import dataclasses
 import io
+import itertools
 import math
 import re
 import urllib.parse
@@ -26,7 +27,7 @@ from buildsheet.calc.labels import (
     LabelContent,
     LabelStock,
     check_fit,
-    offline_record,
+    label_payload,
     record_url,
     resolve_stock,
     stock_from_mapping,
@@ -42,7 +43,7 @@ BANDS = (
 
 
 def make_labels(kits: int = 4, start: int = 1) -> list[LabelContent]:
-    """Labels for ``kits`` kits of a 75 m + 40 m fan; odd kits get offline records, even URLs."""
+    """Labels for ``kits`` kits of a 75 m + 40 m fan; odd kits carry the leg ID, even URLs."""
     out = []
     for k in range(start, start + kits):
         kit = f"K{k:02d}"
@@ -50,10 +51,8 @@ def make_labels(kits: int = 4, start: int = 1) -> list[LabelContent]:
             element = f"{kit}-{band}"
             for leg in "AB":
                 leg_id = f"{element}-{leg}"
-                if k % 2:
-                    payload = offline_record(leg_id, band, freq, cut, kit, 3)
-                else:
-                    payload = record_url(URL_TEMPLATE, kit, element, leg_id)
+                link = record_url(URL_TEMPLATE, kit, element, leg_id)
+                payload = label_payload("id" if k % 2 else "link", leg_id, link)
                 out.append(
                     LabelContent(
                         kit, element, leg_id, leg, band, freq, cut, payload, ("Ridge County ARES",)
@@ -129,18 +128,18 @@ def test_record_url_rejects_unknown_placeholders(template):
     assert "{kit}, {element}, {leg}" in msg
 
 
-def test_offline_record_is_compact_and_complete():
-    rec = offline_record("K03-40m-A", "40m", "7.150 MHz", "10.43 m / 34 ft 2 5/8 in", "K03", 12)
-    assert rec == "K03-40m-A\n40m 7.150 MHz\ncut 10.43 m\nrev 12"  # the kit is in the leg ID
-    # Fits version 7 at level H, the version labels use on the built-in stocks: 64 bytes in
-    # byte mode (ISO/IEC 18004:2015 Table 7, from memory); with a current length in feet and
-    # inches, version 8 (84 bytes).
-    longer = offline_record("K03-7150k-B", "7150k", "7.150 MHz",
-                            "34 ft 2 5/8 in now 33 ft 11 in / 10.34 m", "K03", 123)
-    assert "cut 34 ft 2 5/8 in now 33 ft 11 in\n" in longer
-    for text, version, capacity in ((rec, 7, 64), (longer, 8, 84)):
-        assert len(text.encode()) <= capacity
-        assert segno.make_qr(text, error="h", boost_error=False).version <= version
+def test_leg_id_payload_fits_the_smallest_symbol():
+    """The "id" payload is the leg ID alone; the leg IDs of every HF band with a three-character
+    kit fit version 1 at level Q: 11 bytes in byte mode (ISO/IEC 18004:2015 Table 7, from
+    memory), checked with segno, an independent encoder."""
+    assert label_payload("id", "K03-40m-A", "https://x.example/K03-40m") == "K03-40m-A"
+    assert label_payload("link", "K03-40m-A", "https://x.example/K03-40m") == \
+        "https://x.example/K03-40m"
+    assert label_payload("link", "K03-40m-A", None) == "K03-40m-A"
+    for band in ("160m", "80m", "75m", "60m", "40m", "30m", "20m", "17m", "15m", "12m", "10m"):
+        leg_id = f"K03-{band}-B"
+        assert len(leg_id.encode()) <= 11
+        assert segno.make_qr(leg_id, error="q", boost_error=False).version == 1
 
 
 # --- stock ---------------------------------------------------------------------------------
@@ -233,7 +232,7 @@ def test_unknown_builtin_stock_suggests():
 
 
 def test_fit_error_on_small_stock_says_what_would_fit():
-    payload = offline_record("K03-40m-A", "40m", "7.150 MHz", "10.43 m / 34 ft 2 5/8 in", "K03", 3)
+    payload = record_url(URL_TEMPLATE, "K03", "K03-40m", "K03-40m-A")
     small = stock_from_mapping(
         {
             "page_width_mm": 40,
@@ -318,10 +317,10 @@ def test_every_qr_decodes_to_its_label(name):
         found = decode(cell_pixels(pages[page], stock, cell, scale))
         assert [r.text for r in found] == [label.payload] * copies[i]  # zxing-cpp decode
         assert {r.ec_level for r in found} <= {"Q", "H"}  # decoder reports Q or better
-    # Whole pages too: every payload found once per copy, none extra.
-    decoded = sorted(r.text for img in pages for r in decode(img))
-    assert decoded == sorted(lb.payload for lb, n in zip(labels, copies, strict=True)
-                             for _ in range(n))
+    # Cells left empty on the last page hold no code.
+    for cell in range(len(labels) % stock.cells_per_page or stock.cells_per_page,
+                      stock.cells_per_page):
+        assert decode(cell_pixels(pages[-1], stock, cell, scale)) == []
 
 
 def test_url_payloads_match_generated_record_addresses():
@@ -329,7 +328,9 @@ def test_url_payloads_match_generated_record_addresses():
     pdf = render_bytes(labels, STOCKS["sheet-a4"])
     scale = raster_scale(labels, STOCKS["sheet-a4"])
     (img,) = pages_as_gray(pdf, scale)
-    urls = {r.text for r in decode(img) if r.text.startswith("https://")}
+    urls = {r.text for cell in range(len(labels))
+            for r in decode(cell_pixels(img, STOCKS["sheet-a4"], cell, scale))
+            if r.text.startswith("https://")}
     assert urls == {
         f"https://club.example.org/records/K02/K02-{b}/K02-{b}-{leg}.html"
         for b in ("75m", "40m")
@@ -392,9 +393,11 @@ def test_module_size_and_quiet_zone(name):
             assert box.y >= 0 and box.y + box.height <= stock.label_height
             assert (lay.text.x + lay.text.width <= box.x or lay.text.x >= box.x + box.width
                     or lay.text.y >= box.y + box.height)  # text clear of the quiet zone
-        for first, second in zip(lay.symbols, lay.symbols[1:], strict=False):
-            # Two copies side by side may share quiet zone, never symbol modules.
-            assert second.x + lay.quiet_zone >= first.x + first.width - 1e-9
+        qz = lay.quiet_zone
+        for a, b in itertools.permutations(lay.symbols, 2):
+            # Neighbouring copies may share quiet zone; no copy's modules enter another's box.
+            assert (a.x + a.width - qz <= b.x + 1e-9 or b.x + b.width <= a.x + qz + 1e-9
+                    or a.y + a.height - qz <= b.y + 1e-9 or b.y + b.height <= a.y + qz + 1e-9)
     # ... and measured on the raster: the dark symbol's extent and a white quiet zone.
     scale = raster_scale(labels, stock)
     px = scale / MM_PER_PT
@@ -543,60 +546,77 @@ def _smallest_stock():
     return min(STOCKS.values(), key=lambda s: s.label_width * s.label_height)
 
 
-def field_labels(kits: int = 4) -> list[LabelContent]:
-    """Labels as a packet makes them (no revision in the offline record) with a short record
-    URL of the kind issue 13 asks for (ID plus URL): odd kits offline, even kits the URL."""
-    out = []
-    for label in make_labels(kits):
-        k = int(label.kit_id[1:])
-        payload = (offline_record(label.leg_id, label.band_name, label.frequency_text,
-                                  label.cut_length_text, label.kit_id, "") if k % 2 else
-                   record_url("https://ridge.example.org/{leg}", label.kit_id, label.element_id,
-                              label.leg_id))
-        out.append(dataclasses.replace(label, payload=payload))
-    return out
+def field_labels(code: str, kits: int = 4) -> list[LabelContent]:
+    """Labels as a packet makes them: the leg ID (``code`` "id") or a record URL like the demo's
+    (``code`` "link") in the QR code."""
+    return [dataclasses.replace(label, payload=label_payload(
+                code, label.leg_id, record_url("http://buildsheet.local:8000/{element}.html",
+                                               label.kit_id, label.element_id, label.leg_id)))
+            for label in make_labels(kits)]
 
 
-def test_labels_survive_scuffs_with_the_finders_spared():
-    """Issue 13: decode with 10 % of the label blotted, finder patterns spared. Target 95 %
-    of trials (the bar we chose: at most one label in twenty needs the text read by eye).
-    Measured 136/138 on the demo labels on sheet-a4 (bench/labels.py); the one-symbol layout
-    before managed about 87 % under this damage model."""
+# Issue 13 asks winder labels on the smallest built-in stock to decode with 10 % of their area
+# blotted (finder patterns spared) and with 5 % blotted anywhere; the bar we set is 95 % of
+# the trials (at most one label in twenty needs its text read by eye). zxing-cpp reads no
+# symbol with a blot on any of its three finder patterns (the test below), and at 5 % about
+# sixteen 1-2 mm blots fall on a 66 x 35 mm label, so one symbol of any module size survives
+# about a third of the trials; the labels print as many copies as fit, turned against their
+# neighbours. bench/labels.py prints the rates on every stock.
+
+
+def test_id_labels_survive_scuffs_with_the_finders_spared():
     stock = _smallest_stock()
-    labels = field_labels(4)  # 16 labels, offline records and record URLs
+    labels = field_labels("id")  # 16 labels, each the leg ID
+    assert {len(p.layout.symbols) for p in plan_labels(labels, stock)} == {6}
+    assert _damaged_decodes(labels, stock, 0.10, spare_finders=True, seeds=range(1, 7)) >= 0.95
+
+
+def test_id_labels_survive_scuffs_anywhere():
+    stock = _smallest_stock()
+    labels = field_labels("id")
+    assert _damaged_decodes(labels, stock, 0.05, spare_finders=False, seeds=range(1, 7)) >= 0.95
+
+
+def test_link_labels_survive_scuffs_with_the_finders_spared():
+    """A record URL of 41 characters needs version 4 at level Q: two copies fit the smallest
+    stock. With the finders spared they still reach the bar."""
+    stock = _smallest_stock()
+    labels = field_labels("link")
     assert {len(p.layout.symbols) for p in plan_labels(labels, stock)} == {2}
     assert _damaged_decodes(labels, stock, 0.10, spare_finders=True, seeds=(1, 2, 3)) >= 0.95
 
 
-def test_labels_survive_scuffs_anywhere_better_with_two_copies():
-    """Issue 13: 5 % of the label blotted anywhere. zxing-cpp reads no symbol with a blot on
-    any of its three finder patterns (tests below), and at 5 % about sixteen 1-2 mm blots fall
-    on a 66 x 35 mm label, so one symbol survives only about a third of the trials whatever
-    its module size; two copies far enough apart that one blot rarely spoils both reach about
-    two thirds. The bar asserts that gain (measured 92/138 on the demo labels, the one-symbol
-    layout 33 %); 95 % is not reachable with this reader on this label (see bench/labels.py)."""
+def test_link_labels_fall_short_with_scuffs_anywhere():
+    """Two copies, each surviving 5 % blots anywhere about half the time, read about three
+    times in four (measured 76 %; the one-symbol layout before 33 %): the reason the "id" code
+    exists. The bar asserts the gain of the second, turned copy; 95 % is out of reach."""
     stock = _smallest_stock()
-    labels = field_labels(4)
-    assert _damaged_decodes(labels, stock, 0.05, spare_finders=False, seeds=(1, 2, 3)) >= 0.55
+    labels = field_labels("link")
+    rate = _damaged_decodes(labels, stock, 0.05, spare_finders=False, seeds=(1, 2, 3))
+    assert 0.55 <= rate < 0.95
 
 
 def test_one_blot_on_a_finder_spoils_one_copy_not_the_label():
     """A single dark 1.5 mm blot on a finder pattern of one copy: zxing-cpp no longer reads
-    that copy, yet the label still reads from the other."""
+    that copy, yet the label still reads from the others."""
     stock = _smallest_stock()
-    labels = field_labels(1)
-    (plan, *_) = plan_labels(labels, stock)
-    scale = 150 / 72
-    px = scale / MM_PER_PT
-    (page,) = pages_as_gray(render_bytes(labels[:1], stock), scale)
-    pixels = cell_pixels(page, stock, 0, scale).copy()
-    lay = plan.layout
-    box = lay.symbols[0]
-    cx, cy = (box.x + lay.quiet_zone + 3.5 * lay.module) * px, (box.y + lay.quiet_zone
-                                                               + 3.5 * lay.module) * px
-    yy, xx = np.mgrid[0 : pixels.shape[0], 0 : pixels.shape[1]]
-    pixels[(xx - cx) ** 2 + (yy - cy) ** 2 <= (1.5 * px) ** 2] = 0
-    found = decode(pixels)
-    assert [r.text for r in found] == [labels[0].payload]  # one copy read, not two
-    left_edge = found[0].position.top_left.x / px
-    assert left_edge > box.x + box.width - lay.quiet_zone  # ... and it is the second copy
+    for code in ("id", "link"):
+        labels = field_labels(code, 1)
+        (plan, *_) = plan_labels(labels, stock)
+        scale = 150 / 72
+        px = scale / MM_PER_PT
+        (page,) = pages_as_gray(render_bytes(labels[:1], stock), scale)
+        pixels = cell_pixels(page, stock, 0, scale).copy()
+        lay = plan.layout
+        box = lay.symbols[0]  # upright: a finder at its top-left corner
+        assert lay.turn(0) == 0
+        cx, cy = ((box.x + lay.quiet_zone + 3.5 * lay.module) * px,
+                  (box.y + lay.quiet_zone + 3.5 * lay.module) * px)
+        yy, xx = np.mgrid[0 : pixels.shape[0], 0 : pixels.shape[1]]
+        assert len(decode(pixels)) == lay.copies
+        pixels[(xx - cx) ** 2 + (yy - cy) ** 2 <= (1.5 * px) ** 2] = 0
+        found = decode(pixels)
+        assert [r.text for r in found] == [labels[0].payload] * (lay.copies - 1)
+        for r in found:  # ... and none of them is the blotted copy
+            x, y = r.position.top_left.x / px, r.position.top_left.y / px
+            assert not (box.x <= x <= box.x + box.width and box.y <= y <= box.y + box.height)

@@ -139,29 +139,50 @@ class Box:
     height: float
 
 
-#: How the QR symbol(s) and the text share a label: "flank" (a copy of the symbol at each end,
-#: the text between), "pair" (text, then two copies side by side sharing one quiet zone),
-#: "beside" (text, then one symbol) or "above" (one symbol above the text).
-Arrangement = Literal["flank", "pair", "beside", "above"]
-#: Copies of the symbol per arrangement: with two, a blot that spoils one rarely reaches the
-#: other, and a reader that finds either copy has the record (bench/labels.py measures this).
-COPIES: Mapping[str, int] = {"flank": 2, "pair": 2, "beside": 1, "above": 1}
+#: How the QR symbol copies and the text share a label: "beside" (the text at the left, the
+#: copies to its right in a grid of columns x rows whose neighbours share one quiet zone),
+#: "above" (the grid above the text) or "flank" (one copy at each end, the text between).
+Arrangement = Literal["flank", "beside", "above"]
+#: Most copies of the symbol on one label. A blot on any of a symbol's three finder patterns
+#: spoils that copy (zxing-cpp reads none with a 1.5 mm blot there; tests/test_labels.py), so
+#: a scuffed label is read when any copy escaped: six small copies survive 5 % of the label
+#: blotted anywhere about 49 times in 50, two large ones about 3 times in 4 (bench/labels.py).
+MAX_COPIES: int = 6
+#: Grids of copies tried, (columns, rows).
+GRIDS: tuple[tuple[int, int], ...] = tuple(
+    (c, r) for c in range(1, MAX_COPIES + 1) for r in range(1, MAX_COPIES + 1)
+    if c * r <= MAX_COPIES)
 
 
 @dataclass(frozen=True)
 class LabelLayout:
-    """Where the QR symbol copies and the text block go on one label; lengths in mm."""
+    """Where the QR symbol copies and the text block go on one label; lengths in mm.
+
+    Neighbouring copies are turned half round (``turns`` 2) against each other, so the finder
+    patterns along an edge they share sit at opposite ends of it and one blot does not reach
+    a finder of both.
+    """
 
     arrangement: Arrangement
-    symbols: tuple[Box, ...]  # each copy including its quiet zone (squares), left to right
+    symbols: tuple[Box, ...]  # each copy including its quiet zone (squares), row by row
     modules: int  # symbol side in modules, quiet zone excluded
     module: float  # module size, mm
     text: Box
+    turns: tuple[int, ...] = ()  # quarter turns clockwise of each copy (default: none)
 
     @property
     def qr(self) -> Box:
-        """The first (leftmost) copy of the symbol, quiet zone included."""
+        """The first (top-left) copy of the symbol, quiet zone included."""
         return self.symbols[0]
+
+    @property
+    def copies(self) -> int:
+        """Copies of the symbol on the label."""
+        return len(self.symbols)
+
+    def turn(self, copy: int) -> int:
+        """Quarter turns clockwise (0-3) of copy ``copy``."""
+        return self.turns[copy] % 4 if self.turns else 0
 
     @property
     def quiet_zone(self) -> float:
@@ -232,25 +253,18 @@ def station_record_url(station_url: str, element: str) -> str:
     return station_url.rstrip("/") + "/e/" + urllib.parse.quote(element, safe="")
 
 
-def offline_record(
-    leg_id: str,
-    band_name: str,
-    frequency_text: str,
-    cut_text: str,
-    kit_id: str,
-    revision: int | str,
-) -> str:
-    """Compact plain-text record for a phone to show offline (about 40 characters):
-    "K03-40m-A\n40m 7.150 MHz\ncut 10.43 m\nrev 12".
+#: What a label's QR code holds (spec ``labels.code``): "id" is the leg ID ("K03-40m-A"; a
+#: symbol of version 1 or 2, printed four to six times on the smallest stock, that the station's
+#: lookup and any scanner read) and "link" the record's address from ``event.record_url`` or
+#: ``event.station_url`` (a phone opens it; a larger symbol, so fewer copies fit).
+CODE_KINDS: tuple[str, ...] = ("id", "link")
 
-    The leg ID already names the kit, so ``kit_id`` is not repeated; an empty ``revision``
-    leaves the revision line out. ``cut_text`` is the cut
-    length or "CUT now CURRENT"; of a length given in both unit systems ("10.43 m / 34 ft
-    2 5/8 in") only the first is kept, so the symbol stays small.
-    """
-    lengths = " now ".join(part.split(" / ")[0] for part in cut_text.split(" now "))
-    rev = f"\nrev {revision}" if revision != "" else ""
-    return f"{leg_id}\n{band_name} {frequency_text}\ncut {lengths}{rev}"
+
+def label_payload(code: str, leg_id: str, link: str | None) -> str:
+    """The QR payload of one leg's label: its leg ID for ``code`` "id", else ``link``."""
+    if code == "id" or not link:
+        return leg_id
+    return link
 
 
 # --- QR symbols and the fit check ----------------------------------------------------------
@@ -272,59 +286,75 @@ def check_ec(ec: str, where: str = "labels.ec") -> str:
     return level
 
 
-def version_room(stock: LabelStock) -> Mapping[int, tuple[int, int]]:
-    """Per number of symbol copies (2, 1): the largest QR version that fits the stock's label
-    and the :func:`robust_version` among them, (0, 0) when none fits."""
-    return {copies: (_largest_version(stock, copies), robust_version(stock, copies))
-            for copies in (2, 1)}
+def version_room(stock: LabelStock) -> Mapping[int, int]:
+    """Per QR version (1-40): the most copies of its symbol that fit the stock's label by the
+    weatherproof rules (0 when not even one fits)."""
+    return {version: _most_copies(stock, symbol_modules(version)) for version in range(1, 41)}
 
 
-def robust_version(stock: LabelStock, copies: int = 1) -> int:
-    """Version whose symbol best survives scuffs on ``stock`` with ``copies`` copies: the
-    largest that keeps modules of at least ROBUST_MODULE_MM in the label's layout (0 if none).
+def _most_copies(stock: LabelStock, modules: int) -> int:
+    """Most copies (up to MAX_COPIES) of a ``modules``-wide symbol that fit the stock's label."""
+    return next((k for k in range(MAX_COPIES, 0, -1)
+                 if layout_label(stock.label_width, stock.label_height, modules, k).fits), 0)
+
+
+def robust_version(stock: LabelStock, room: Mapping[int, int] | None = None) -> int:
+    """Version whose single symbol best survives scuffs on ``stock``: the largest that keeps
+    modules of at least ROBUST_MODULE_MM in the label's one-copy layout (0 if none).
 
     Scuffs are millimetres across whatever the module size; the more (and smaller) codewords
     a symbol has, the fewer of them one scuff spoils (bench/labels.py measures this).
     """
+    room = version_room(stock) if room is None else room
     for version in range(40, 0, -1):
-        layout = layout_label(stock.label_width, stock.label_height, symbol_modules(version),
-                              copies)
-        if layout.fits and layout.module >= ROBUST_MODULE_MM - 1e-9:
+        layout = layout_label(stock.label_width, stock.label_height, symbol_modules(version))
+        if room[version] and layout.fits and layout.module >= ROBUST_MODULE_MM - 1e-9:
             return version
     return 0
 
 
+def smallest_version(payload: str, level: str) -> int | None:
+    """Smallest QR version that holds ``payload`` at error correction ``level`` (segno's
+    choice of modes), or None when no version holds it."""
+    try:
+        # A fixed mask skips the mask evaluation; the version does not depend on it.
+        return int(segno.make_qr(payload, error=level, mask=0, boost_error=False).version)
+    except segno.DataOverflowError:
+        return None
+
+
 def label_options(payload: str, stock: LabelStock, ec: str = "q",
-                  room: Mapping[int, tuple[int, int]] | None = None,
-                  built: dict[tuple[str, str, int], Symbol | None] | None = None
+                  room: Mapping[int, int] | None = None,
+                  built: dict[tuple[str, str, int], Symbol] | None = None
                   ) -> Iterator[tuple[LabelLayout, Symbol]]:
     """Layouts of one label with their QR symbol, most robust first (none when no symbol fits).
 
-    Two copies of the symbol before one; within each, the best level of EC_PREFERENCE (never
-    below ``ec``) at the copies' :func:`robust_version`, or the smallest version that holds the
-    payload when that is larger and still fits. Each (level, version) symbol is built once;
-    the caller takes the first option whose text fits. ``room`` is :func:`version_room`;
-    ``built`` keeps the symbols by (payload, level, version) across the labels of one build.
+    Most copies first; for as many copies, the best level of EC_PREFERENCE (never below
+    ``ec``). Each level uses the smallest version that holds the payload, raised for a single
+    copy to the stock's :func:`robust_version`. Each (level, version) symbol is built once; the
+    caller takes the first option whose text fits. ``room`` is :func:`version_room`; ``built``
+    keeps the symbols by (payload, level, version) across the labels of one build.
     """
     level_floor = check_ec(ec)
     levels = EC_PREFERENCE[: EC_PREFERENCE.index(level_floor) + 1]
     room = version_room(stock) if room is None else room
     built = {} if built is None else built
-    for copies in (2, 1):
-        largest, robust = room[copies]
-        for level in levels:
-            for version in range(max(robust, 1), largest + 1):
-                key = (payload, level, version)
-                if key not in built:
-                    try:
-                        built[key] = build_symbol(payload, level, version)
-                    except segno.DataOverflowError:
-                        built[key] = None
-                symbol = built[key]
-                if symbol is not None:
-                    yield (layout_label(stock.label_width, stock.label_height,
-                                        len(symbol.matrix), copies), symbol)
-                    break
+    robust = robust_version(stock, room)
+    options: list[tuple[int, int, str, int]] = []  # (-copies, level rank, level, version)
+    for rank, level in enumerate(levels):
+        smallest = smallest_version(payload, level)
+        if smallest is None or not room[smallest]:
+            continue
+        for copies in range(room[smallest], 0, -1):
+            version = max(smallest, robust) if copies == 1 else smallest
+            options.append((-copies, rank, level, version))
+    for minus_copies, _, level, version in sorted(options):
+        key = (payload, level, version)
+        if key not in built:
+            built[key] = build_symbol(payload, level, version)
+        symbol = built[key]
+        yield (layout_label(stock.label_width, stock.label_height, len(symbol.matrix),
+                            -minus_copies), symbol)
 
 
 def symbol_modules(version: int) -> int:
@@ -332,68 +362,95 @@ def symbol_modules(version: int) -> int:
     return 17 + 4 * version
 
 
-def _row_layout(width: float, height: float, modules: int, arrangement: Arrangement
-                ) -> LabelLayout:
-    """The symbol copies and the text side by side ("flank", "pair" or "beside").
+def _checker(columns: int, rows: int) -> tuple[int, ...]:
+    """Quarter turns of a grid's copies, row by row: every neighbour turned half round."""
+    return tuple(2 * ((r + c) % 2) for r in range(rows) for c in range(columns))
+
+
+def _grid_boxes(left: float, top: float, columns: int, rows: int, modules: int,
+                module: float) -> tuple[Box, ...]:
+    """Boxes (quiet zone included) of a grid of copies whose neighbours share one quiet
+    zone, row by row, from the grid's top-left corner (mm)."""
+    side = (modules + 2 * QUIET_ZONE_MODULES) * module
+    pitch = (modules + QUIET_ZONE_MODULES) * module
+    return tuple(Box(left + c * pitch, top + r * pitch, side, side)
+                 for r in range(rows) for c in range(columns))
+
+
+def _grid_span(count: int, modules: int) -> int:
+    """Width in modules of ``count`` copies side by side sharing quiet zones."""
+    return count * (modules + QUIET_ZONE_MODULES) + QUIET_ZONE_MODULES
+
+
+def _beside(width: float, height: float, modules: int, columns: int, rows: int
+            ) -> LabelLayout:
+    """The text at the left, a grid of copies to its right.
 
     The text block narrows from PREFERRED_TEXT_WIDTH_MM toward MIN_TEXT_WIDTH_MM while that
     brings the module up to ROBUST_MODULE_MM; the symbols take the rest, up to the height.
     """
-    span = modules + 2 * QUIET_ZONE_MODULES
-    # Width of the symbol group in modules: two copies side by side share one quiet zone.
-    group = {"flank": 2 * span, "pair": 2 * span - QUIET_ZONE_MODULES, "beside": span,
-             "above": span}[arrangement]
-    gaps = 2 if arrangement == "flank" else 1
-    avail_w, avail_h = width - 2 * INSET_MM - gaps * GAP_MM, height - 2 * INSET_MM
+    group_w, group_h = _grid_span(columns, modules), _grid_span(rows, modules)
+    avail_w, avail_h = width - 2 * INSET_MM - GAP_MM, height - 2 * INSET_MM
     text_w = min(PREFERRED_TEXT_WIDTH_MM,
-                 max(MIN_TEXT_WIDTH_MM, avail_w - ROBUST_MODULE_MM * group))
-    module = max(min(avail_h / span, (avail_w - text_w) / group), 0.0)
-    text_w = avail_w - module * group
+                 max(MIN_TEXT_WIDTH_MM, avail_w - ROBUST_MODULE_MM * group_w))
+    module = max(min(avail_h / group_h, (avail_w - text_w) / group_w), 0.0)
+    text_w = avail_w - module * group_w
+    boxes = _grid_boxes(width - INSET_MM - module * group_w,
+                        INSET_MM + (avail_h - module * group_h) / 2, columns, rows, modules,
+                        module)
+    return LabelLayout("beside", boxes, modules, module, Box(INSET_MM, INSET_MM, text_w, avail_h),
+                       _checker(columns, rows))
+
+
+def _above(width: float, height: float, modules: int, columns: int, rows: int) -> LabelLayout:
+    """A grid of copies at the top, centred, the text below it across the label."""
+    group_w, group_h = _grid_span(columns, modules), _grid_span(rows, modules)
+    avail_w, avail_h = width - 2 * INSET_MM, height - 2 * INSET_MM - GAP_MM
+    module = max(min(avail_w / group_w, (avail_h - MIN_TEXT_HEIGHT_MM) / group_h), 0.0)
+    boxes = _grid_boxes(INSET_MM + (avail_w - module * group_w) / 2, INSET_MM, columns, rows,
+                        modules, module)
+    text_top = INSET_MM + module * group_h + GAP_MM
+    return LabelLayout("above", boxes, modules, module,
+                       Box(INSET_MM, text_top, avail_w, height - INSET_MM - text_top),
+                       _checker(columns, rows))
+
+
+def _flank(width: float, height: float, modules: int) -> LabelLayout:
+    """A copy at each end of the label, the text between them."""
+    span = modules + 2 * QUIET_ZONE_MODULES
+    avail_w, avail_h = width - 2 * INSET_MM - 2 * GAP_MM, height - 2 * INSET_MM
+    text_w = min(PREFERRED_TEXT_WIDTH_MM,
+                 max(MIN_TEXT_WIDTH_MM, avail_w - ROBUST_MODULE_MM * 2 * span))
+    module = max(min(avail_h / span, (avail_w - text_w) / (2 * span)), 0.0)
     side = span * module
     top = INSET_MM + (avail_h - side) / 2
-    boxes: tuple[Box, ...]
-    if arrangement == "flank":
-        boxes = (Box(INSET_MM, top, side, side), Box(width - INSET_MM - side, top, side, side))
-        text = Box(INSET_MM + side + GAP_MM, INSET_MM, text_w, avail_h)
-    else:
-        left = width - INSET_MM - module * group
-        boxes = tuple(Box(left + k * (modules + QUIET_ZONE_MODULES) * module, top, side, side)
-                      for k in range(COPIES[arrangement]))
-        text = Box(INSET_MM, INSET_MM, text_w, avail_h)
-    return LabelLayout(arrangement, boxes, modules, module, text)
+    return LabelLayout("flank", (Box(INSET_MM, top, side, side),
+                                 Box(width - INSET_MM - side, top, side, side)), modules, module,
+                       Box(INSET_MM + side + GAP_MM, INSET_MM, avail_w - 2 * side, avail_h),
+                       (0, 2))
 
 
 def layout_label(width: float, height: float, modules: int, copies: int = 1) -> LabelLayout:
-    """Best layout of ``copies`` (1 or 2) ``modules``-wide symbols and the text block on a
-    width x height mm label.
+    """Best layout of ``copies`` ``modules``-wide symbols and the text block on a width x
+    height mm label.
 
-    One copy: the QR beside the text or above it. Two: a copy at each end with the text
-    between (preferred: the copies lie farthest apart) or the text and the two copies side by
-    side. Returns the fitting layout with the largest module, counting modules above
-    ROBUST_MODULE_MM as equal for two copies (the first candidate when none fits).
+    Candidates: for two copies a copy at each end with the text between (preferred: the
+    copies lie farthest apart); then every grid of exactly ``copies`` copies beside the text
+    or above it. Returns the fitting candidate with the largest module, modules above
+    ROBUST_MODULE_MM counting as equal when there are several copies (the first candidate
+    when none fits).
     """
-    if copies == 2:
-        candidates = [_row_layout(width, height, modules, "flank"),
-                      _row_layout(width, height, modules, "pair")]
-    else:
-        candidates = [_row_layout(width, height, modules, "beside")]
-        # QR at the top, text below.
-        span = modules + 2 * QUIET_ZONE_MODULES
-        avail_w, avail_h = width - 2 * INSET_MM, height - 2 * INSET_MM - GAP_MM
-        side = max(min(avail_w, avail_h - MIN_TEXT_HEIGHT_MM), 0.0)
-        candidates.append(
-            LabelLayout(
-                "above",
-                (Box(INSET_MM + (avail_w - side) / 2, INSET_MM, side, side),),
-                modules,
-                side / span,
-                Box(INSET_MM, INSET_MM + side + GAP_MM, avail_w, avail_h - side),
-            )
-        )
+    candidates = [_flank(width, height, modules)] if copies == 2 else []
+    for columns, rows in GRIDS:
+        if columns * rows == copies:
+            candidates += [_beside(width, height, modules, columns, rows),
+                           _above(width, height, modules, columns, rows)]
+    if not candidates:
+        raise ValueError(f"copies must be 1 to {MAX_COPIES}, got {copies}")
     fitting = [c for c in candidates if c.fits]
     if not fitting:
         return candidates[0]
-    cap = ROBUST_MODULE_MM if copies == 2 else math.inf
+    cap = ROBUST_MODULE_MM if copies > 1 else math.inf
     return max(fitting, key=lambda c: min(c.module, cap))  # max() keeps the first of equals
 
 
@@ -416,14 +473,10 @@ def _ceil_tenth(value: float) -> float:
     return math.ceil(value * 10.0 - 1e-9) / 10.0
 
 
-def _largest_version(stock: LabelStock, copies: int = 1) -> int:
-    """Largest QR version that fits the stock's label by the weatherproof rules with
-    ``copies`` copies of the symbol (0 if none)."""
-    for version in range(40, 0, -1):
-        if layout_label(stock.label_width, stock.label_height, symbol_modules(version),
-                        copies).fits:
-            return version
-    return 0
+def _largest_version(stock: LabelStock) -> int:
+    """Largest QR version of which one copy fits the stock's label by the weatherproof rules
+    (0 if none)."""
+    return next((v for v in range(40, 0, -1) if _most_copies(stock, symbol_modules(v))), 0)
 
 
 def _longest_prefix(payload: str, version: int, ec: str) -> int:
@@ -457,10 +510,8 @@ def check_fit(
     problems: list[Problem] = []
     worst: tuple[int, str] | None = None
     for payload in payloads:
-        try:
-            # A fixed mask skips the mask evaluation; the version does not depend on it.
-            version = int(segno.make_qr(payload, error=level, mask=0, boost_error=False).version)
-        except segno.DataOverflowError:
+        version = smallest_version(payload, level)
+        if version is None:
             problems.append(
                 Problem(
                     where,

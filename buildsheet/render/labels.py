@@ -153,6 +153,14 @@ def symbol_rects(matrix: Sequence[bytes | bytearray]) -> list[tuple[int, int, in
     return sorted(done, key=lambda t: (t[1], t[0]))
 
 
+def turned(matrix: Sequence[bytes | bytearray], turns: int) -> tuple[bytes, ...]:
+    """The symbol matrix turned ``turns`` quarter turns clockwise (row 0 at the top)."""
+    rows = [bytes(row) for row in matrix]
+    for _ in range(turns % 4):
+        rows = [bytes(col) for col in zip(*reversed(rows), strict=True)]
+    return tuple(rows)
+
+
 def _draw_symbol(
     canvas: Canvas, matrix: Sequence[bytes | bytearray], x: float, top: float, module: float
 ) -> None:
@@ -172,9 +180,9 @@ def _draw_label(canvas: Canvas, plan: LabelPlan, left: float, top: float) -> Non
     """Draw one label whose top-left corner is at (left, top) in PDF points."""
     layout, set_lines = plan.layout, plan.lines
     qz = layout.quiet_zone * mm
-    for box in layout.symbols:
-        _draw_symbol(canvas, plan.matrix, left + box.x * mm + qz, top - box.y * mm - qz,
-                     layout.module * mm)
+    for copy, box in enumerate(layout.symbols):
+        _draw_symbol(canvas, turned(plan.matrix, layout.turn(copy)), left + box.x * mm + qz,
+                     top - box.y * mm - qz, layout.module * mm)
     block = sum(s.size * LEADING for s in set_lines)
     box_top = top - layout.text.y * mm
     y = box_top - (layout.text.height * mm - block) / 2  # centred vertically
@@ -203,14 +211,14 @@ def plan_labels(labels: Sequence[LabelContent], stock: LabelStock, *, start_cell
     """Layout, QR symbol and set text of every label, exactly as :func:`render_labels` draws
     them; raise SpecError naming each label that cannot fit (``buildsheet check`` runs this).
 
-    Each label takes the first option of :func:`label_options` whose text fits: two copies of
-    the symbol where they fit, level H where it fits, else Q (never below ``ec``); each symbol
-    is built once per build. ``where`` locates problems (file and key of the spec's stock).
+    Each label takes the first option of :func:`label_options` whose text fits: as many copies
+    of the symbol as fit (up to six), level H where it fits, else Q (never below ``ec``); each
+    symbol is built once per build. ``where`` locates problems (file and key of the spec's stock).
     """
     level = check_ec(ec)
     check_start_cell(stock, start_cell, where=where.replace("labels.stock", "labels.start_cell"))
     room = version_room(stock)
-    built: dict[tuple[str, str, int], Symbol | None] = {}  # labels sharing a payload share it
+    built: dict[tuple[str, str, int], Symbol] = {}  # labels sharing a payload share it
     plans: list[LabelPlan] = []
     problems: list[Problem] = []
     for i, label in enumerate(labels):
@@ -286,4 +294,4 @@ def render_labels(
 
 
 __all__ = ["LabelPlan", "SetLine", "label_lines", "plan_labels", "render_labels", "set_text",
-           "symbol_rects"]
+           "symbol_rects", "turned"]

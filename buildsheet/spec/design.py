@@ -106,10 +106,11 @@ class Kit:
 
 @dataclass(frozen=True)
 class LabelSettings:
-    """Winder label stock and where to start on the first sheet."""
+    """Winder label stock, where to start on the first sheet, and what the QR codes hold."""
 
     stock: object  # buildsheet.calc.labels.LabelStock (kept generic to avoid an import cycle)
     start_cell: int | None = None  # None: continue where the store says the last sheet ended
+    code: str = "id"  # what the QR codes hold: "id" (the leg ID) or "link" (the record's address)
 
 
 @dataclass(frozen=True)

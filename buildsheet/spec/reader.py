@@ -61,7 +61,7 @@ _DESIGN_KEYS = ("title", "kind", "mount", "apex_height", "end_height", "wire", "
                 "cord_hitch", "coax", "coax_length", "tie_off_angle")
 _ELEMENT_KEYS = ("band", "frequency", "bearing", "end_height")
 _KIT_KEYS = ("design", "count", "builders", "first")
-_LABEL_KEYS = ("stock", "start_cell")
+_LABEL_KEYS = ("stock", "start_cell", "code")
 _EXPOSURE_KEYS = ("power", "mode", "transmit_fraction", "regime", "transmit_fraction_6min",
                   "transmit_fraction_30min")
 _STOCK_KEYS = ("material", "length", "count")
@@ -523,6 +523,8 @@ def read_spec_text(text: str, source: str = "spec.toml") -> Design:
         except SpecError as exc:
             r.problems.extend(exc.problems)
 
+    code = _label_code(r, lb, "record_url" in ev or "station_url" in ev)
+
     ex = r.keys(raw.get("exposure", {}), "exposure", _EXPOSURE_KEYS)
     power = r.convert(ex.get("power", "100 W"), "exposure.power", values.power)
     if power is not None and power > values.POWER_WARN_W:
@@ -558,7 +560,22 @@ def read_spec_text(text: str, source: str = "spec.toml") -> Design:
         raise SpecError(list(dict.fromkeys(r.problems)))  # each problem once, in order
     return Design(source, hashlib.sha256(text.encode()).hexdigest(), event, site, wires,
                   tuple(d for d in designs.values() if d is not None), tuple(kits),
-                  LabelSettings(stock, start), exposure, tuple(spools), tuple(r.warnings))
+                  LabelSettings(stock, start, code), exposure, tuple(spools), tuple(r.warnings))
+
+
+def _label_code(r: _Reader, lb: Mapping[str, Any], link: bool) -> str:
+    """What the labels' QR codes hold: ``labels.code`` ("id" or "link"); by default "link"
+    when the event gives a record or station address (``link``), else "id"."""
+    from buildsheet.calc.labels import CODE_KINDS
+
+    if "code" not in lb:
+        return "link" if link else "id"
+    code = r.choice(lb["code"], "labels.code", CODE_KINDS)
+    if code == "link" and not link:
+        r.bad("labels.code", '"link" needs an address to link to: set event.record_url (the '
+              'record site) or event.station_url (the build-day station), or use "id" (the '
+              "leg ID)")
+    return code or "id"
 
 
 def _label_stock(r: _Reader, value: Any) -> LabelStock | None:

@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import threading
 import time
+import urllib.parse
 from collections.abc import Awaitable, Callable, MutableMapping
 from dataclasses import dataclass, field
 from typing import Any
@@ -413,6 +414,27 @@ async def board_js(request: Request) -> Response:
                     headers={"X-Content-Type-Options": "nosniff"})
 
 
+#: Longest text the lookup box takes (a label's ID or its whole link).
+FIND_MAX_CHARS = 300
+
+
+async def find(request: Request) -> Response:
+    """The board's lookup box: a leg or element ID typed, or read by a barcode scanner (which
+    types what it reads), or a label's whole link; answers with the element page."""
+    text = request.query_params.get("id", "").strip()[:FIND_MAX_CHARS]
+    if "/" in text:  # a link label's address: its last path segment names the element
+        last = text.split("?")[0].split("#")[0].rstrip("/").rsplit("/", 1)[-1]
+        text = urllib.parse.unquote(last).removesuffix(".html")
+    client = _client(request)
+    if not text:
+        return _finish(RedirectResponse("/board", status_code=303), *client)
+    try:
+        element_id = await run_in_threadpool(api.resolve, _state(request).station, text)
+    except BuildsheetError as exc:
+        return _message(request, "Unknown element", _one_line(exc), 404)
+    return _finish(RedirectResponse(views.element_url(element_id), status_code=303), *client)
+
+
 async def home(request: Request) -> Response:
     return RedirectResponse("/board", status_code=303)
 
@@ -517,6 +539,7 @@ def make_app(station: api.Station, keys: sec.Keys | None = None) -> Any:
         Route("/board", board),
         Route("/board/rows", board_rows),
         Route("/board.js", board_js),
+        Route("/find", find),
         Route("/e/{element_id}", element),
         Route("/e/{element_id}/dip", post_dip, methods=["POST"]),
         Route("/e/{element_id}/sweep", post_sweep, methods=["POST"]),

@@ -30,9 +30,10 @@ def small_station_spec(folder: Path, station_url: str) -> Path:
                   f"count = 2\nbuilders = ['{HOSTILE_BUILDER}', \"Ben\"]", text, flags=re.DOTALL)
     text = re.sub(r"count = 3\nbuilders = \[.*?\]", 'count = 1\nbuilders = ["Kim"]', text,
                   flags=re.DOTALL)
-    text = re.sub(r'^record_url = .*$', "", text, count=1, flags=re.MULTILINE)  # labels: station
     text = text.replace('layout = "per_kit"',
                         f'layout = "per_kit"\nstation_url = "{station_url}"', 1)
+    text = re.sub(r'^code = "id" .*$', 'code = "link"', text, count=1, flags=re.MULTILINE)
+    assert 'code = "link"' in text
     folder.mkdir(parents=True, exist_ok=True)
     path = folder / "club.toml"
     path.write_text(text, encoding="utf-8")

@@ -10,6 +10,7 @@ from __future__ import annotations
 import http.client
 import re
 import sqlite3
+import urllib.parse
 from concurrent.futures import ThreadPoolExecutor
 
 import pytest
@@ -35,6 +36,21 @@ def test_leg_id_redirects_and_unknown_names_nearest(live_station: LiveStation) -
     assert status == 200 and url.endswith("/e/K02-75m")
     status, text, _url = b.get("/e/K02-57m")
     assert status == 404 and "K02-75m" in error_text(text)
+
+
+def test_lookup_box_opens_the_element_of_a_scanned_label(live_station: LiveStation) -> None:
+    """A barcode scanner types what it reads: a leg ID ("id" labels) or a whole link."""
+    b = Browser(live_station.url)
+    status, text, _url = b.get("/board")
+    assert status == 200 and 'action="/find"' in text
+    for typed in ("K02-75m-A", " K02-75m ", "http://192.0.2.7:8080/e/K02-75m",
+                  "http://buildsheet.local:8000/K02-75m.html"):
+        status, _text, url = b.get("/find?id=" + urllib.parse.quote(typed))
+        assert status == 200 and url.endswith("/e/K02-75m"), typed
+    status, text, _url = b.get("/find?id=K02-57m-A")
+    assert status == 404 and "K02-75m" in error_text(text)
+    status, _text, url = b.get("/find?id=")
+    assert status == 200 and url.endswith("/board")
 
 
 def test_posts_without_the_token_are_refused(live_station: LiveStation) -> None:
