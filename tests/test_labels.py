@@ -588,8 +588,9 @@ def test_link_labels_survive_scuffs_with_the_finders_spared():
 
 def test_link_labels_fall_short_with_scuffs_anywhere():
     """Two copies, each surviving 5 % blots anywhere about half the time, read about three
-    times in four (measured 76 %; the one-symbol layout before 33 %): the reason the "id" code
-    exists. The bar asserts the gain of the second, turned copy; 95 % is out of reach."""
+    times in four (75 % here, 69 % on the demo's labels in bench/labels.py; one symbol, 33 %):
+    the reason the "id" code exists. The bar asserts the gain of the second, turned copy; 95 %
+    is out of reach for a symbol this size on this label."""
     stock = _smallest_stock()
     labels = field_labels("link")
     rate = _damaged_decodes(labels, stock, 0.05, spare_finders=False, seeds=(1, 2, 3))
