@@ -10,6 +10,7 @@ from buildsheet.spec.units import (
     format_frequency,
     format_imperial,
     format_metric,
+    format_tape,
     parse_frequency,
     parse_length,
 )
@@ -51,6 +52,10 @@ def test_imperial_formatting_eighths():
     assert format_metric(20.3649) == "20.36 m"
     assert format_metric(0.235) == "235 mm"
     assert format_both(0.2286, "imperial") == "9 in (229 mm)"
+    # A tape length: 1 in = 25.4 mm exactly (international yard and pound, 1959), so
+    # 10.432 m = 410.709 in = 34 ft 2.709 in, nearest eighth 2 3/4 in.
+    assert format_tape(10.432) == "10.432 m (34 ft 2 3/4 in)"
+    assert format_tape(10.432, "imperial") == "34 ft 2 3/4 in (10.432 m)"
     assert format_frequency(7.15e6) == "7.150 MHz"
     assert format_frequency(5.3585e6) == "5.3585 MHz"
 

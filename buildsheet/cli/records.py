@@ -108,14 +108,6 @@ def spec_of_store(store: Any, path: Path, args: argparse.Namespace,
     return spec
 
 
-def tape_length(metres: float, units: UnitSystem) -> str:
-    """A length as read off a tape: the primary unit first, metric to the millimetre."""
-    from buildsheet.spec.units import format_length
-
-    metric, imperial = f"{metres:.3f} m", format_length(metres, "imperial")
-    return f"{imperial} ({metric})" if units == "imperial" else f"{metric} ({imperial})"
-
-
 def _units(store: Any, choice: StoreChoice, args: argparse.Namespace) -> UnitSystem:
     """The unit system of the store's spec (metric when the spec is not known)."""
     from buildsheet.spec.reader import load_spec
@@ -214,14 +206,16 @@ def _entry(store: Any, choice: StoreChoice, args: argparse.Namespace,
 
 def print_state(found: tuple[Any, UnitSystem] | None, out: TextIO) -> None:
     """Both legs and the instruction, as the sheets print them."""
+    from buildsheet.spec.units import format_tape
+
     if found is None:
         print("  " + NO_SPEC, file=out)
         return
     entry, units = found
     for leg in entry.state.legs:
-        cut = "not cut" if leg.cut_m is None else f"cut {tape_length(leg.cut_m, units)}"
-        print(f"  {leg.leg_id}: {cut}, now {tape_length(leg.current_m, units)}, target "
-              f"{tape_length(leg.target_m, units)}: {leg.action.words(units, both=False)}",
+        cut = "not cut" if leg.cut_m is None else f"cut {format_tape(leg.cut_m, units)}"
+        print(f"  {leg.leg_id}: {cut}, now {format_tape(leg.current_m, units)}, target "
+              f"{format_tape(leg.target_m, units)}: {leg.action.words(units, both=False)}",
               file=out)
     for line in entry.advice:
         print("  " + line, file=out)
@@ -237,6 +231,7 @@ def _open(args: argparse.Namespace, err: TextIO) -> tuple[Any, StoreChoice]:
 
 def handle_cut(args: argparse.Namespace, out: TextIO | None = None) -> int:
     """Confirm the cut of legs (element IDs: both legs) at their printed length or --length."""
+    from buildsheet.spec.units import format_tape
     from buildsheet.store import ledger as rec
 
     out = out or sys.stdout
@@ -251,7 +246,7 @@ def handle_cut(args: argparse.Namespace, out: TextIO | None = None) -> int:
             if not done:
                 print(f"{text}: already confirmed as cut", file=out)
             for c in done:
-                print(f"{c.element_id}-{c.leg}: {c.how} at {tape_length(c.length_m, units)}",
+                print(f"{c.element_id}-{c.leg}: {c.how} at {format_tape(c.length_m, units)}",
                       file=out)
     return 0
 

@@ -136,6 +136,13 @@ def format_both(metres: float, primary: UnitSystem = "metric") -> str:
     return f"{format_length(metres, primary)} ({format_length(metres, other)})"
 
 
+def format_tape(metres: float, primary: UnitSystem = "metric") -> str:
+    """A length as read off a tape, both systems, primary first, metric to the millimetre:
+    "10.432 m (34 ft 2 3/4 in)"."""
+    metric, imperial = f"{metres:.3f} m", format_length(metres, "imperial")
+    return f"{imperial} ({metric})" if primary == "imperial" else f"{metric} ({imperial})"
+
+
 def format_frequency(hz: float) -> str:
     """Frequency in MHz with the precision of the kHz digit: 7150000 -> "7.150 MHz"."""
     mhz = hz / 1e6

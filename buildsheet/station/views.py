@@ -10,20 +10,13 @@ import urllib.parse
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
-from buildsheet.spec.units import UnitSystem, format_both, format_frequency, format_length
+from buildsheet.spec.units import UnitSystem, format_both, format_frequency, format_tape
 from buildsheet.station.ledger_api import BoardFacts, ElementFacts
 
 
 def element_url(element_id: str) -> str:
     """The station path of an element page: /e/<element ID> (percent-encoded)."""
     return "/e/" + urllib.parse.quote(element_id, safe="")
-
-
-def tape(metres: float, units: UnitSystem) -> str:
-    """A tape-measure length: metres to the millimetre and feet-inches, primary first."""
-    metric = f"{metres:.3f} m"
-    imperial = format_length(metres, "imperial")
-    return f"{metric} ({imperial})" if units == "metric" else f"{imperial} ({metric})"
 
 
 @dataclass(frozen=True)
@@ -94,9 +87,9 @@ def element_page(facts: ElementFacts, units: UnitSystem, event: str, csrf: str, 
                  error: str = "", notice: str = "", form: Mapping[str, str] | None = None,
                  ) -> ElementPage:
     """The element page context."""
-    legs = tuple(LegRow(leg.leg_id, tape(leg.prescribed_cut_m, units),
-                        tape(leg.cut_m, units) if leg.cut_m is not None else "not cut yet",
-                        tape(leg.current_m, units), tape(leg.target_m, units), leg.action)
+    legs = tuple(LegRow(leg.leg_id, format_tape(leg.prescribed_cut_m, units),
+                        format_tape(leg.cut_m, units) if leg.cut_m is not None else "not cut yet",
+                        format_tape(leg.current_m, units), format_tape(leg.target_m, units), leg.action)
                  for leg in facts.legs)
     tuning = (facts.tuning[:1].upper() + facts.tuning[1:]) if facts.tuning else ""
     rows: list[tuple[tuple[str, int], HistoryRow]] = []
@@ -109,7 +102,7 @@ def element_page(facts: ElementFacts, units: UnitSystem, event: str, csrf: str, 
     for t in facts.entries:
         which = "each leg" if t.leg == "both" else f"leg {t.leg}"
         if t.kind == "cut":
-            text = f"{which} cut at {tape(t.length_m, units)}"
+            text = f"{which} cut at {format_tape(t.length_m, units)}"
         else:
             verb = "removed from" if t.length_m > 0 else "added back to"
             text = f"{format_both(abs(t.length_m), units)} {verb} {which}"
