@@ -141,6 +141,7 @@ def test_calibrated_prediction_note_and_spread(design: AntennaDesign,
     assert p.model_note.startswith("calibrated from K01-75m, K01-40m: site behaves like wet ground")
     assert p.spread == (calibration.uncertainty,) * 3
     assert cal.UNCERTAINTY_FLOOR <= calibration.uncertainty < 0.01
+    assert not any("one combination" in n for n in calibration.notes)  # two bands measured
 
 
 @pytest.mark.parametrize("shift", [0.05, 0.015])
@@ -303,3 +304,6 @@ def test_recorded_swr_enters_the_fit(design: AntennaDesign) -> None:
     c0 = cal.fit_site(design, ASSUMED, obs)
     r0 = feed_impedance(deployed_antenna(design, c0.fitted_ground(), legs), obs[0].dip_hz)[0].real
     assert abs(r0 - r_true) > abs(r_fit - r_true)
+    # ... and says so; the SWR (or a second band) pins both constants
+    assert any("one combination of eps_r and sigma" in n for n in c0.notes)
+    assert not any("one combination" in n for n in c.notes)

@@ -422,6 +422,10 @@ def _summarise(solver: Solver, design: AntennaDesign, site_ground: Ground, keep:
     if edge:
         notes.append(f"the fit reached the end of the P.527 range in {', '.join(edge)}; the "
                      "per-band ratios carry the rest")
+    if len({c.obs.element_key for c in keep}) < 2 and all(c.obs.swr is None for c in keep):
+        notes.append("every dip is on one band and none has an SWR: they fix one combination "
+                     "of eps_r and sigma, not each; the fit keeps the spec's ground for the "
+                     "rest. A dip on a second band, or the SWR at the dip, pins both")
     g = fitted.ground_class
     return Calibration(
         design.key, design_fingerprint(design), fitted_class(g.eps_r, g.sigma, like), like,
