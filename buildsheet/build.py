@@ -67,7 +67,6 @@ class BuildResult:
     sync: SyncReport | None = None
     report: str = ""  # the change table and re-check lines, for the terminal
     matrix_fills: int = 0  # impedance matrices filled by this build's solver context
-    repeated_fills: int = 0  # of those, fills of a mesh and frequency already filled
 
 
 @dataclass(frozen=True)
@@ -490,7 +489,7 @@ def _build(spec_path: str | Path, out_dir: str | Path, *, built_at: str, model: 
     listed = [n for n in docs.files if "/" not in n]
     listed += sorted({n.split("/")[0] + "/" for n in docs.files if "/" in n})
     return BuildResult(out, (*listed, f"{SITE_DIR}/", MANIFEST_JSON), packet, manifest,
-                       diff, store_file, sync, report, solver.fills, solver.repeats)
+                       diff, store_file, sync, report, solver.fills)
 
 
 def _relative(path: Path, folder: Path) -> str:

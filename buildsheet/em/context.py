@@ -65,12 +65,6 @@ class Solver:
             self._responses[key] = out
         return out
 
-    @property
-    def repeats(self) -> int:
-        """Fills of a (mesh, frequency) filled before: zero by construction, since every fill is
-        kept; the build reports it, and tests count fills independently of this class."""
-        return self.fills - len(self._responses)
-
     def kept(self, key: Any, compute: Callable[[], T]) -> T:
         """The result stored under ``key`` (hashable, immutable inputs), computed once."""
         if key not in self._kept:
