@@ -33,7 +33,7 @@ from buildsheet.calc.labels import (
     stock_from_mapping,
 )
 from buildsheet.errors import BuildError, SpecError
-from buildsheet.render.labels import plan_labels, render_labels, symbol_rects
+from buildsheet.render.labels import label_summary, plan_labels, render_labels, symbol_rects
 
 URL_TEMPLATE = "https://club.example.org/records/{kit}/{element}/{leg}.html"
 BANDS = (
@@ -595,6 +595,22 @@ def test_link_labels_fall_short_with_scuffs_anywhere():
     labels = field_labels("link")
     rate = _damaged_decodes(labels, stock, 0.05, spare_finders=False, seeds=(1, 2, 3))
     assert 0.55 <= rate < 0.95
+
+
+def test_summary_counts_the_copies_a_reader_finds():
+    stock = _smallest_stock()
+    for code, copies in (("id", 6), ("link", 2)):
+        labels = field_labels(code, 1)
+        plans = plan_labels(labels, stock)
+        line = label_summary(plans, stock, code)
+        assert line.startswith(f"labels: 4 on stock {stock.name}; ") and \
+            f"{copies} copies per label" in line
+        scale = raster_scale(labels, stock)
+        (page,) = pages_as_gray(render_bytes(labels, stock), scale)
+        for cell in range(len(labels)):  # zxing-cpp finds every copy, all holding the payload
+            found = decode(cell_pixels(page, stock, cell, scale))
+            assert [r.text for r in found] == [labels[cell].payload] * copies
+    assert "fits more copies" in label_summary(plans, stock, "link")
 
 
 def test_one_blot_on_a_finder_spoils_one_copy_not_the_label():

@@ -39,14 +39,16 @@ def _cmd_packet(args: argparse.Namespace) -> int:
     return 0
 
 
-def preflight(packet) -> None:
+def preflight(packet) -> str:
     """What ``packet`` would refuse beyond the spec and the model: every label's QR payload,
-    stock fit, start cell and text, planned exactly as the labels are rendered."""
-    from buildsheet.render.labels import plan_labels
+    stock fit, start cell and text, planned exactly as the labels are rendered. Returns a line
+    saying what the labels will carry."""
+    from buildsheet.render.labels import label_summary, plan_labels
 
     settings = packet.design.labels
-    plan_labels(packet.labels, settings.stock, start_cell=settings.start_cell or 0,
-                where=f"{packet.design.source}: labels.stock")
+    plans = plan_labels(packet.labels, settings.stock, start_cell=settings.start_cell or 0,
+                        where=f"{packet.design.source}: labels.stock")
+    return label_summary(plans, settings.stock, settings.code)
 
 
 def _cmd_check(args: argparse.Namespace) -> int:
@@ -56,8 +58,9 @@ def _cmd_check(args: argparse.Namespace) -> int:
 
     spec = load_spec(args.spec)
     packet = build_packet(spec, built_at=build_timestamp(), model=args.model)
-    preflight(packet)
+    labels = preflight(packet)
     print(cut_table(packet))
+    print(labels)
     for w in packet.warnings:
         print(f"warning: {w}", file=sys.stderr)
     return 0

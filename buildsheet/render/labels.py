@@ -250,6 +250,24 @@ def plan_labels(labels: Sequence[LabelContent], stock: LabelStock, *, start_cell
     return plans
 
 
+def label_summary(plans: Sequence[LabelPlan], stock: LabelStock, code: str) -> str:
+    """One line on what the labels carry: how many, the stock, the QR code's content, copies
+    per label and error correction levels."""
+    if not plans:
+        return f"labels: none (stock {stock.name})"
+    copies = sorted({p.layout.copies for p in plans})
+    shown = (f"{copies[0]}" if len(copies) == 1 else f"{copies[0]} to {copies[-1]}")
+    levels = "/".join(sorted({p.error for p in plans}, reverse=True))
+    what = "the leg ID" if code == "id" else "the record's link"
+    line = (f"labels: {len(plans)} on stock {stock.name}; each QR code holds {what} "
+            f"(labels.code = {code!r}), {shown} "
+            f"cop{'y' if copies[-1] == 1 else 'ies'} per label, error correction {levels}")
+    if code != "id" and copies[0] < 4:
+        line += ('; labels.code = "id" fits more copies, which survive scuffs better '
+                 "(README: what the QR codes hold)")
+    return line
+
+
 def render_labels(
     labels: Sequence[LabelContent],
     stock: LabelStock,
@@ -293,5 +311,5 @@ def render_labels(
     return pages_needed(stock, len(labels), start_cell)
 
 
-__all__ = ["LabelPlan", "SetLine", "label_lines", "plan_labels", "render_labels", "set_text",
+__all__ = ["LabelPlan", "SetLine", "label_lines", "label_summary", "plan_labels", "render_labels", "set_text",
            "symbol_rects", "turned"]
