@@ -508,8 +508,11 @@ def _notes(selection: Selection, docs: Documents, carried: Mapping[str, str]) ->
     if not docs.files:
         notes = ["changed-only build: nothing changed, no sheets or labels written"]
     else:
-        notes = [(f"changed-only build: {' and '.join(docs.files)} hold only what changed "
-                  "(see 'reprinted')")]
+        printed = [n for n in docs.files if "/" not in n]
+        folders = sorted({n.split("/")[0] + "/" for n in docs.files if "/" in n})
+        notes = [f"changed-only build: {' and '.join(printed)} hold only what changed "
+                 "(see 'reprinted')" + (f"; {', '.join(folders)} rewritten in full"
+                                        if folders else "")]
     if carried:
         notes.append("earlier files kept alongside unchanged: " + ", ".join(sorted(carried)))
     return tuple(notes)

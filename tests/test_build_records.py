@@ -181,6 +181,9 @@ def test_adding_60m_to_the_fan_flags_others_and_changed_only_writes_them(tmp_pat
     assert "Kit K03" in pdf_text(out / "sheets.pdf")  # the earlier full file, kept
     stored = read_manifest(out / "manifest.json")
     assert stored is not None and any("changed-only" in n for n in stored.notes)
+    (note,) = [n for n in stored.notes if n.startswith("changed-only")]
+    assert note == ("changed-only build: sheets-r2-changed.pdf and labels-r2-changed.pdf hold "
+                    "only what changed (see 'reprinted'); bom/ rewritten in full")
     assert stored.elements["K03-60m-us"].files == ("sheets.pdf", "labels.pdf")
     assert stored.elements["K01-60m-us"].files == ("sheets-r2-changed.pdf",
                                                    "labels-r2-changed.pdf")
