@@ -35,16 +35,21 @@ CONDITIONS = (("clean", 0.0, True), ("10 % finders spared", 0.10, True),
               ("15 % finders spared", 0.15, True), ("5 % anywhere", 0.05, False))
 
 
-def demo_labels(code: str):
-    """The demo's labels with QR code ``code``: "id" (the leg ID) or "link" (the demo's record
-    URL)."""
+#: The QR contents benched: (labels.code, event.record_url, event.station_url).
+VARIANTS = (("id", None, None),
+            ("link", "http://buildsheet.local:8000/{element}.html", None),
+            ("link", None, "http://buildsheet.local:8080"))
+
+
+def demo_labels(code: str, record: str | None, station: str | None):
+    """The demo's labels with QR code ``code``: "id" (the leg ID) or "link" (the address of
+    the record site ``record`` or of the station ``station``)."""
     from buildsheet.cli.main import demo_spec_text
     from buildsheet.packet import build_packet
     from buildsheet.spec.reader import read_spec_text
 
     spec = read_spec_text(demo_spec_text(), "demo.toml")
-    spec = replace(spec, event=replace(spec.event,
-                                       record_url="http://buildsheet.local:8000/{element}.html"),
+    spec = replace(spec, event=replace(spec.event, record_url=record, station_url=station),
                    labels=replace(spec.labels, code=code))
     packet = build_packet(spec, built_at="2027-03-01T00:00:00Z", model="closed_form")
     return list(packet.labels)
@@ -111,8 +116,8 @@ def main() -> None:
     from buildsheet.calc.labels import STOCKS
     from buildsheet.render.labels import plan_labels, render_labels
 
-    for code in ("id", "link"):
-        labels = demo_labels(code)
+    for code, record, station in VARIANTS:
+        labels = demo_labels(code, record, station)
         print(f"{len(labels)} demo labels, labels.code = {code!r} (e.g. {labels[0].payload!r})")
         for name in sorted(STOCKS, key=lambda n: STOCKS[n].label_width * STOCKS[n].label_height):
             stock = STOCKS[name]

@@ -32,7 +32,7 @@ from buildsheet.calc.labels import (
     Leg,
     label_payload,
     record_url,
-    station_record_url,
+    station_label_link,
 )
 from buildsheet.calc.logistics import logistics
 from buildsheet.calc.performance import DesignPerformance, design_performance
@@ -198,7 +198,7 @@ def label_contents(spec: Design, entries: Sequence[ElementEntry]) -> tuple[Label
             now_text = _length_text(leg.current_m, ev.units) if trimmed else ""
             link = (record_url(ev.record_url, entry.kit.kit_id, entry.element_id, leg_id)
                     if ev.record_url else
-                    station_record_url(ev.station_url, entry.element_id) if ev.station_url
+                    station_label_link(ev.station_url, entry.element_id) if ev.station_url
                     else None)
             payload = label_payload(spec.labels.code, leg_id, link)
             out.append(LabelContent(entry.kit.kit_id, entry.element_id, leg_id, side,

@@ -104,8 +104,8 @@ def test_measure_trim_rebuild_shows_current_length(tmp_path: Path, capsys) -> No
     assert re.search(r"K01-40m\s+changed", report) and "revision 2 (previous 1)" in report
     now_a, now_b = cut - 0.035, cut - 0.045
     units = "metric"
-    payloads = [p for p in qr_texts(out / "labels.pdf") if p.startswith("K01-40m-")]
-    assert sorted(payloads) == ["K01-40m-A", "K01-40m-B"]  # the QR holds the leg ID alone
+    payloads = [p for p in qr_texts(out / "labels.pdf") if p.startswith("K01-40M-")]
+    assert sorted(payloads) == ["K01-40M-A", "K01-40M-B"]  # the leg ID alone, in capitals
     text = pdf_text(out / "labels.pdf")
     for now in (now_a, now_b):
         assert f"NOW {format_length(now, units)}" in text.replace("\n", " ")
@@ -175,7 +175,7 @@ def test_adding_60m_to_the_fan_flags_others_and_changed_only_writes_them(tmp_pat
             "manifest.json", "site", "bom"} == written
     # Labels: only the new elements' (the cut fan legs keep their labels: as cut, unchanged).
     legs = set(qr_texts(out / "labels-r2-changed.pdf"))
-    assert legs == {f"{e}-{leg}" for e in diff.new for leg in "AB"}
+    assert legs == {f"{e}-{leg}".upper() for e in diff.new for leg in "AB"}
     sheets = pdf_text(out / "sheets-r2-changed.pdf")
     assert "Kit K01" in sheets and "Kit K02" in sheets and "Kit K03" not in sheets
     assert "Kit K03" in pdf_text(out / "sheets.pdf")  # the earlier full file, kept
@@ -227,7 +227,7 @@ def _first_label_cell(pdf: Path) -> int:
 def test_every_label_qr_leads_to_a_generated_page(tmp_path: Path, template: str | None) -> None:
     """Every QR code on the labels pages (zxing-cpp) resolves to a page in site/: for a URL the
     path's file name exists (RFC 3986 path, percent-decoded); without a URL the code is a leg ID
-    whose element page exists and shows the band and frequency."""
+    (in capitals) whose element page exists and shows the band and frequency."""
     spec = small_spec(tmp_path, record_url=template)
     result = build(spec, tmp_path / "out", built_at=T1, model="closed_form")
     site = tmp_path / "out" / "site"
@@ -243,8 +243,10 @@ def test_every_label_qr_leads_to_a_generated_page(tmp_path: Path, template: str 
             eid = name.removesuffix(".html").removesuffix("-A").removesuffix("-B")
             assert eid in (site / name).read_text(encoding="utf-8")
         else:
-            eid = text.removesuffix("-A").removesuffix("-B")
-            assert text in (f"{eid}-A", f"{eid}-B")
+            # the leg ID in capitals (QR alphanumeric mode); IDs are read in any case
+            by_case = {e.upper(): e for e in entries}
+            eid = by_case[text.removesuffix("-A").removesuffix("-B")]
+            assert text in (f"{eid}-A".upper(), f"{eid}-B".upper())
             page = (site / page_name(eid)).read_text(encoding="utf-8")
             cut = entries[eid].cut
             assert format_frequency(cut.element.frequency_hz) in page

@@ -41,9 +41,10 @@ def test_check_prints_cut_table(demo_spec, capsys):
     assert main(["check", str(demo_spec), "--model", "closed_form"]) == 0
     out = capsys.readouterr().out
     assert "CUT each leg" in out and "75m" in out and "60m-us" in out
-    # the demo: 23 elements, 46 labels on its stock, each code the leg ID
+    # the demo: 23 elements, 46 labels on its stock, each code the leg ID: version 1 symbols
+    # (alphanumeric mode), six to a label, the shorter IDs at level H
     assert ("labels: 46 on stock sheet-letter; each QR code holds the leg ID (labels.code = "
-            "'id'), 4 to 6 copies per label") in out
+            "'id'), 6 copies per label, error correction Q/H") in out
 
 
 def _write(tmp_path: Path, text: str) -> Path:

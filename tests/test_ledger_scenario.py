@@ -60,9 +60,9 @@ def check_agreement(folder: Path, out: Path, legs: dict[str, dict], labels_pdf: 
         else:
             assert leg["current_m"] == leg["prescribed_cut_m"]
         if printed is not None and leg_id not in printed:
-            assert leg_id not in qr
+            assert leg_id.upper() not in qr
             continue
-        assert qr[leg_id] == leg_id  # the QR holds the leg ID; the lengths are in the text
+        assert qr[leg_id.upper()] == leg_id.upper()  # the leg ID in capitals; lengths in text
         as_cut = leg["cut_m"] if leg["cut_m"] is not None else leg["prescribed_cut_m"]
         if leg["trims_m"]:
             assert f"cut {format_length(as_cut)}" in label_text

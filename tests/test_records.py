@@ -183,6 +183,11 @@ def test_unknown_id_suggests_nearest(store_path: Path) -> None:
             rec.get_element(store, "K03-40")
         row, leg = rec.resolve_id(store, "K03-80m-B")
         assert (row.id, leg) == ("K03-80m", "B")
+        # IDs as the labels' QR codes hold them, in capitals, or typed in any case
+        for typed, want in (("K03-80M-B", ("K03-80m", "B")), ("k03-40m", ("K03-40m", None)),
+                            ("K03-40M-a", ("K03-40m", "A"))):
+            row, leg = rec.resolve_id(store, typed)
+            assert (row.id, leg) == want, typed
 
 
 def test_refuses_foreign_and_newer_files(tmp_path: Path) -> None:

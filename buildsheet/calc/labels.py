@@ -254,17 +254,36 @@ def station_record_url(station_url: str, element: str) -> str:
     return station_url.rstrip("/") + "/e/" + urllib.parse.quote(element, safe="")
 
 
-#: What a label's QR code holds (spec ``labels.code``): "id" is the leg ID ("K03-40m-A"; a
-#: symbol of version 1 or 2, printed four to six times on the smallest stock, that the station's
-#: lookup and any scanner read) and "link" the record's address from ``event.record_url`` or
+#: The characters of the QR alphanumeric mode (ISO/IEC 18004:2015 clause 7.4.4, Table 5). A
+#: text of these alone takes 5.5 bits a character instead of the byte mode's 8, so it fits a
+#: smaller symbol: "K01-60M-US-A" a version 1 symbol at level Q, "K01-60m-us-A" only version 2.
+QR_ALPHANUMERIC: frozenset[str] = frozenset("0123456789ABCDEFGHIJKLMNOPQRSTUVWXYZ $%*+-./:")
+
+
+def station_label_link(station_url: str, element: str) -> str:
+    """The station's element page as a label's QR code holds it: in capitals, so that it fits
+    the QR alphanumeric mode, when the station's address has no path of its own (scheme and
+    host do not depend on case, RFC 3986 sections 3.1 and 3.2.2, and the station answers
+    ``/E/<ID>`` in any case); the ordinary :func:`station_record_url` otherwise."""
+    url = station_record_url(station_url, element)
+    if urllib.parse.urlsplit(station_url).path.strip("/"):
+        return url  # a path prefix belongs to whatever serves it, in its own case
+    compact = url.upper()
+    return compact if set(compact) <= QR_ALPHANUMERIC else url
+
+
+#: What a label's QR code holds (spec ``labels.code``): "id" is the leg ID ("K03-40M-A"; a
+#: version 1 symbol, printed six times on the smallest stock, that the station's lookup, the
+#: commands and any scanner read) and "link" the record's address from ``event.record_url`` or
 #: ``event.station_url`` (a phone opens it; a larger symbol, so fewer copies fit).
 CODE_KINDS: tuple[str, ...] = ("id", "link")
 
 
 def label_payload(code: str, leg_id: str, link: str | None) -> str:
-    """The QR payload of one leg's label: its leg ID for ``code`` "id", else ``link``."""
+    """The QR payload of one leg's label: for ``code`` "id" its leg ID in capitals (QR
+    alphanumeric mode; IDs are read in any case), else ``link``."""
     if code == "id" or not link:
-        return leg_id
+        return leg_id.upper()
     return link
 
 

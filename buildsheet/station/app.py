@@ -1,7 +1,7 @@
 """The station's web application (Starlette): routes, forms, cookies, limits.
 
-Pages: ``/e/<element ID>`` (the element page a winder label's QR opens; leg IDs redirect to
-their element), ``/board`` (the day board, refreshing itself), ``/organiser`` (PIN-protected
+Pages: ``/e/<element ID>`` (the element page a winder label's QR opens, also as ``/E/`` with
+the ID in capitals; leg IDs and other cases redirect to the element's own address), ``/board`` (the day board, refreshing itself), ``/organiser`` (PIN-protected
 actions). Every POST goes through :func:`_handle_form`: CSRF token, field limits, the CLI's
 validation, one store write, one answer. Request bodies are capped at :data:`MAX_BODY_BYTES`.
 
@@ -541,6 +541,7 @@ def make_app(station: api.Station, keys: sec.Keys | None = None) -> Any:
         Route("/board.js", board_js),
         Route("/find", find),
         Route("/e/{element_id}", element),
+        Route("/E/{element_id}", element),  # a link label's QR code, in capitals
         Route("/e/{element_id}/dip", post_dip, methods=["POST"]),
         Route("/e/{element_id}/sweep", post_sweep, methods=["POST"]),
         Route("/e/{element_id}/trim", post_trim, methods=["POST"]),

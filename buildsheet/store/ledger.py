@@ -365,17 +365,27 @@ def get_element(store: RecordStore, element_id: str) -> ElementRow:
 
 
 def resolve_id(store: RecordStore, text: str) -> tuple[ElementRow, Literal["A", "B"] | None]:
-    """Element for an element ID ("K03-40m") or a leg ID ("K03-40m-A": also returns the leg)."""
+    """Element for an element ID ("K03-40m") or a leg ID ("K03-40m-A": also returns the leg).
+
+    Case does not matter ("K03-40M-A" as a label's QR code holds it): element IDs are a kit
+    number and a band name, which no two elements share in any case."""
     text = text.strip()
-    rows = _read(store, f"SELECT {ELEMENT_COLS} FROM elements WHERE id = ?", (text,))
-    if rows:
-        return element_from_row(rows[0]), None
+    row = _element_by_id(store, text)
+    if row is not None:
+        return row, None
     base, _, leg = text.rpartition("-")
     if base and leg.upper() in ("A", "B"):
-        rows = _read(store, f"SELECT {ELEMENT_COLS} FROM elements WHERE id = ?", (base,))
-        if rows:
-            return element_from_row(rows[0]), "A" if leg.upper() == "A" else "B"
+        row = _element_by_id(store, base)
+        if row is not None:
+            return row, "A" if leg.upper() == "A" else "B"
     raise _unknown(store, text)
+
+
+def _element_by_id(store: RecordStore, element_id: str) -> ElementRow | None:
+    """The element row of ``element_id``, the exact ID first, else one equal but for case."""
+    rows = _read(store, f"SELECT {ELEMENT_COLS} FROM elements WHERE id = ? COLLATE NOCASE "
+                 "ORDER BY id <> ?", (element_id, element_id))
+    return element_from_row(rows[0]) if rows else None
 
 
 def _same_design(a: ElementRow, b: ElementRow) -> bool:

@@ -44,9 +44,13 @@ def test_lookup_box_opens_the_element_of_a_scanned_label(live_station: LiveStati
     status, text, _url = b.get("/board")
     assert status == 200 and 'action="/find"' in text
     for typed in ("K02-75m-A", " K02-75m ", "http://192.0.2.7:8080/e/K02-75m",
-                  "http://buildsheet.local:8000/K02-75m.html"):
+                  "http://buildsheet.local:8000/K02-75m.html",
+                  "K02-75M-A", "HTTP://192.0.2.7:8080/E/K02-75M"):  # as the QR codes hold them
         status, _text, url = b.get("/find?id=" + urllib.parse.quote(typed))
         assert status == 200 and url.endswith("/e/K02-75m"), typed
+    # A phone opening a link label's capitals lands on the element page under its own name.
+    status, text, url = b.get("/E/K02-75M")
+    assert status == 200 and url == live_station.url + "/e/K02-75m" and "K02-75m" in text
     status, text, _url = b.get("/find?id=K02-57m-A")
     assert status == 404 and "K02-75m" in error_text(text)
     status, _text, url = b.get("/find?id=")

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import re
 import shutil
+import urllib.parse
 from pathlib import Path
 
 import pytest
@@ -99,9 +100,13 @@ def test_scan_dip_trim_and_board(live_station: LiveStation, driver, tmp_path: Pa
         return board_text(f"#row-{ELEMENT} .state")
 
     urls = label_urls(live_station.out / "labels.pdf")
-    mine = [u for u in urls if u.endswith(f"/e/{ELEMENT}")]
+    # The codes hold the address in capitals (QR alphanumeric mode); scheme and host do not
+    # depend on case (RFC 3986 sections 3.1, 3.2.2), which urllib.parse reads back in lower case.
+    base = urllib.parse.urlsplit(live_station.url)
+    read = [urllib.parse.urlsplit(u) for u in urls]
+    assert all((r.scheme, r.netloc.lower()) == (base.scheme, base.netloc) for r in read), urls
+    mine = [u for u, r in zip(urls, read) if r.path == f"/E/{ELEMENT.upper()}"]
     assert len(mine) == 2, urls  # both legs' labels lead to the element page
-    assert all(u.startswith(live_station.url) for u in urls)
 
     # The day board, open in its own window and never reloaded.
     driver.get(live_station.url + "/board")
@@ -113,6 +118,7 @@ def test_scan_dip_trim_and_board(live_station: LiveStation, driver, tmp_path: Pa
     driver.switch_to.new_window("window")
     driver.get(mine[0])
     assert driver.find_element(By.ID, "element").text.startswith(ELEMENT)
+    assert driver.current_url == f"{live_station.url}/e/{ELEMENT}"  # redirected to its own case
     legs = driver.find_elements(By.CSS_SELECTOR, "#legs td.now")
     leg_m = float(re.match(r"([\d.]+) m", legs[0].text).group(1))
     shot("2-element")
