@@ -2,8 +2,9 @@
 
 Pages: ``/e/<element ID>`` (the element page a winder label's QR opens, also as ``/E/`` with
 the ID in capitals; leg IDs and other cases redirect to the element's own address),
-``/board`` (the day board, refreshing itself), ``/organiser`` (PIN-protected actions). Every POST goes through :func:`_handle_form`: CSRF token, field limits, the CLI's
-validation, one store write, one answer. Request bodies are capped at :data:`MAX_BODY_BYTES`.
+``/board`` (the day board, refreshing itself), ``/organiser`` (PIN-protected actions).
+Every POST goes through :func:`_handle_form`: CSRF token, field limits, the CLI's validation,
+one store write, one answer. Request bodies are capped at :data:`MAX_BODY_BYTES`.
 
 Where the work runs: an element page and a typed reading or trim are short SQLite work (well
 under a millisecond against the per-thread store of :class:`ledger_api.StorePool`), done on
