@@ -208,7 +208,8 @@ def test_flat_dipole_gets_end_supports_halyards_and_bill(tmp_path):
 
 def test_demo_qr_codes_lead_to_its_record_pages(demo_packet):
     # The demo's codes decode (zxing-cpp, PyPI, an independent QR reader; one label at a time)
-    # to leg IDs (in capitals), one per leg, each naming an element whose page is in the packet's site/.
+    # to leg IDs (in capitals), one per leg, each naming an element whose page is in the
+    # packet's site/.
     from label_reading import label_codes
 
     codes = label_codes(demo_packet.out_dir / "labels.pdf", "sheet-letter")

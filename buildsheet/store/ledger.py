@@ -382,9 +382,11 @@ def resolve_id(store: RecordStore, text: str) -> tuple[ElementRow, Literal["A", 
 
 
 def _element_by_id(store: RecordStore, element_id: str) -> ElementRow | None:
-    """The element row of ``element_id``, the exact ID first, else one equal but for case."""
-    rows = _read(store, f"SELECT {ELEMENT_COLS} FROM elements WHERE id = ? COLLATE NOCASE "
-                 "ORDER BY id <> ?", (element_id, element_id))
+    """The element row of ``element_id``: the exact ID (the key's index), else one equal but
+    for case (a scan of the few hundred rows a build day has)."""
+    query = f"SELECT {ELEMENT_COLS} FROM elements WHERE id = ?"
+    rows = (_read(store, query, (element_id,))
+            or _read(store, query + " COLLATE NOCASE", (element_id,)))
     return element_from_row(rows[0]) if rows else None
 
 
