@@ -69,7 +69,9 @@ def test_imperial_record_page_and_commands_put_feet_first(tmp_path, capsys):
     capsys.readouterr()
     assert main(["cut", "K01-40m", "--spec", str(spec)]) == 0
     assert main(["trim", "K01-40m", "--removed", "20mm", "--spec", str(spec)]) == 0
+    assert main(["cut", "k01-40M-a", "--spec", str(spec)]) == 0  # typed in any case
     said = capsys.readouterr().out
+    assert "K01-40m-A: already confirmed as cut" in said  # named as the spec writes it
     assert "ft" in said
     bare = [(m.group(0), line) for line in said.splitlines()
             for m in METRIC.finditer(outside_parentheses(line))]

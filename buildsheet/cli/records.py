@@ -244,7 +244,8 @@ def handle_cut(args: argparse.Namespace, out: TextIO | None = None) -> int:
             done = rec.confirm_cut(store, row.id, (leg,) if leg else ("A", "B"), _now(),
                                    length_m=length, note=args.note or "")
             if not done:
-                print(f"{text}: already confirmed as cut", file=out)
+                named = f"{row.id}-{leg}" if leg else row.id  # as the spec writes it
+                print(f"{named}: already confirmed as cut", file=out)
             for c in done:
                 print(f"{c.element_id}-{c.leg}: {c.how} at {format_tape(c.length_m, units)}",
                       file=out)
